@@ -1,0 +1,232 @@
+// Shared plain-data types. Every stage takes and returns these; only io/ and report/ touch files.
+//
+// Coordinates (see DEVELOPERS.md):
+//  - camera pixels: x right, y down, pixel centres at integer coordinates (top-left pixel covers
+//    -0.5..0.5 in both axes);
+//  - panel coordinates: u right, v down, 0..1 over the active area as the viewer sees it;
+//  - corners: top-left, top-right, bottom-right, bottom-left of the displayed image.
+
+/** Interleaved 3-channel linear-light image (R, G, B per pixel), values relative to the encoding's white (1.0). */
+export interface RgbImage {
+  width: number;
+  height: number;
+  data: Float32Array; // length = width * height * 3
+}
+
+/** Single-channel image (luminance, a gain map, a contrast map ...). */
+export interface Plane {
+  width: number;
+  height: number;
+  data: Float32Array; // length = width * height
+}
+
+export type Point = [number, number];
+/** top-left, top-right, bottom-right, bottom-left */
+export type Corners = [Point, Point, Point, Point];
+
+/** Row-major 3x3 homography, 9 numbers, maps [x, y, 1] -> [x', y', w']. */
+export type Homography = number[];
+
+/** Test pattern shown on the panel when the photo was taken. */
+export type Pattern = 'white' | 'gray' | 'black' | 'red' | 'green' | 'blue';
+
+/** What the camera recorded about the exposure (EXIF), each field null when absent. */
+export interface ExposureRecord {
+  make: string | null;
+  model: string | null;
+  lens: string | null;
+  exposureTimeS: number | null;
+  fNumber: number | null;
+  iso: number | null;
+  focalLengthMm: number | null;
+  focalLength35mm: number | null;
+  dateTime: string | null;
+}
+
+/** How a file decoded. */
+export interface DecodeInfo {
+  format: string; // jpeg, png, tiff ...
+  width: number; // full-size pixels in the file
+  height: number;
+  bitDepth: 8 | 16;
+  channels: number; // in the file
+  /** How code values were turned into linear light. */
+  transfer: 'srgb' | 'linear';
+  /** Decoded at 1/scale of full size (JPEG shrink-on-load or box average); 1 = full size. */
+  scale: number;
+}
+
+/** Exposure quality of the decoded pixels (whole frame and, once known, the panel area). */
+export interface ExposureStats {
+  /** Fraction of pixels with any channel at or above the clip threshold (code value >= 0.98 of white). */
+  clippedFraction: number;
+  /** Fraction of pixels whose largest channel is below 2 code values of 255 (lost in the floor). */
+  darkFraction: number;
+  /** 99.9th percentile of linear Y. */
+  p999: number;
+  /** median of linear Y. */
+  median: number;
+}
+
+/** A rectified panel map: linear CIE XYZ (relative units) on a square-pixel grid in panel mm. */
+export interface PanelMap {
+  width: number;
+  height: number;
+  /** map pixels per mm (same in both axes). When the panel size is unknown, mmKnown is false and
+   *  "mm" are nominal units from the assumed size. */
+  pxPerMm: number;
+  widthMm: number;
+  heightMm: number;
+  mmKnown: boolean;
+  X: Float32Array;
+  Y: Float32Array;
+  Z: Float32Array;
+  /** 1 where the map pixel has camera data, 0 where it fell outside the photo. */
+  valid: Uint8Array;
+}
+
+export type GridLayout = 5 | 9 | 13 | 25;
+export type GridPlacement = 'cells' | 'inset';
+
+export interface GridPoint {
+  index: number; // 1-based, reading order (row by row, top to bottom)
+  u: number;
+  v: number;
+  xMm: number | null;
+  yMm: number | null;
+  /** mean linear Y in the spot, in the photo's relative units */
+  Y: number;
+  /** Y / Y(centre point) */
+  relative: number;
+  uprime: number;
+  vprime: number;
+  /** Δu'v' from the centre point */
+  duvFromCentre: number;
+  /** number of map pixels averaged */
+  pixels: number;
+}
+
+export interface UniformityFigures {
+  minOverMaxPct: number;
+  nonuniformityPct: number;
+  maxOverMin: number;
+  cvPct: number;
+  /** every point's (Li - Lc)/Lc in % — largest magnitude */
+  maxDeviationFromCentrePct: number;
+  maxDuvFromCentre: number;
+  maxDuvAnyPair: number;
+}
+
+export type BlobKind =
+  | 'spot'
+  | 'cloud'
+  | 'line'
+  | 'band'
+  | 'edge-glow'
+  | 'corner-glow'
+  | 'seam'
+  | 'hotspot-array';
+
+export interface Blob {
+  id: number; // 1-based, in SEMU rank order
+  kind: BlobKind;
+  polarity: 'bright' | 'dark';
+  u: number;
+  v: number;
+  xMm: number;
+  yMm: number;
+  /** [u0, v0, u1, v1] */
+  bbox: [number, number, number, number];
+  areaMm2: number;
+  /** signed mean contrast over the half-peak region, % */
+  contrastPct: number;
+  peakContrastPct: number;
+  semu: number;
+  /** edge or corner for glow: 'top', 'left', 'top-left' ...; pitch for hot-spot arrays, etc. */
+  detail: Record<string, string | number>;
+}
+
+export interface MuraResult {
+  blobs: Blob[];
+  maxSemu: number;
+  /** 1-sigma contrast noise of the map at the map's own pixel scale, % */
+  noiseFloorPct: number;
+  /** smallest resolvable contrast (%) at a few feature diameters, mm -> % */
+  resolvableContrastPct: Record<string, number>;
+  backgroundModel: string;
+}
+
+export interface FalloffRecord {
+  applied: boolean;
+  /** 'none' | 'profile' | 'flat-frames' | 'cos4-model' */
+  method: string;
+  source: string | null;
+  /** ratio corner/centre of the applied gain's inverse, i.e. how much light the corners had lost */
+  cornerFalloff: number | null;
+  warnings: string[];
+}
+
+export interface GeometryRecord {
+  cornersSource: 'auto' | 'manual' | 'shared';
+  /** rms of edge-point distances to the fitted edge lines, camera pixels (auto only) */
+  edgeResidualPx: number | null;
+  /** largest angle between the camera axis and the panel normal, degrees, when estimable */
+  tiltDeg: number | null;
+  mapWidth: number;
+  mapHeight: number;
+  pxPerMm: number;
+  /** camera pixels per map pixel at the panel centre */
+  cameraPxPerMapPx: number;
+}
+
+export type PhotoStatus = 'ok' | 'error';
+
+export interface PhotoResult {
+  file: string;
+  sha256: string;
+  pattern: Pattern;
+  /** gray level in % when the pattern is gray (e.g. 50) */
+  patternLevel: number | null;
+  status: PhotoStatus;
+  error: string | null;
+  /** machine-readable error code, e.g. 'unreadable', 'no-panel', 'clipped' */
+  errorCode: string | null;
+  decode: DecodeInfo | null;
+  exposure: ExposureRecord | null;
+  exposureStats: ExposureStats | null;
+  corners: Corners | null;
+  geometry: GeometryRecord | null;
+  falloff: FalloffRecord | null;
+  grid: {
+    layout: GridLayout;
+    placement: GridPlacement;
+    insetPct: number | null;
+    spotRadiusPct: number;
+    points: GridPoint[];
+  } | null;
+  uniformity: UniformityFigures | null;
+  mura: MuraResult | null;
+  blobs: Blob[];
+  warnings: string[];
+}
+
+export type Verdict = 'pass' | 'fail' | 'error';
+
+export interface Reason {
+  pattern: Pattern | null;
+  figure: string;
+  value: number | null;
+  limit: number | null;
+  /** signed: positive = inside the limit by this much */
+  margin: number | null;
+  text: string;
+  severity: 'fail' | 'error' | 'note';
+}
+
+export interface PanelResult {
+  panel: string;
+  verdict: Verdict;
+  reasons: string[];
+  reasonDetails: Reason[];
+  photos: PhotoResult[];
+}
