@@ -1,0 +1,421 @@
+// One photo, end to end: decode → linear light → falloff → panel → rectify → grid → mura.
+// Plain data in, plain data out; the only file it reads is the photo itself.
+
+import { decodePhoto } from '../io/index.js';
+import type { DecodedPhoto } from '../io/index.js';
+import { SRGB_TO_XYZ, luminancePlane, srgbEncode } from '../photometry/index.js';
+import { findPanel, rectifyRgb, estimatePose } from '../geometry/index.js';
+import { applyTransmission, profileMismatch, transmissionFromProfile, cos4Transmission } from '../falloff/index.js';
+import type { FalloffProfile } from '../falloff/index.js';
+import { analyseMura } from '../mura/index.js';
+import type { MuraOptions } from '../mura/index.js';
+import { measureGrid, uniformityFigures } from '../measure/index.js';
+import type { GridOptions } from '../measure/index.js';
+import { EvenfieldError, isEvenfieldError } from '../errors.js';
+import type {
+  Corners,
+  FalloffRecord,
+  GeometryRecord,
+  PanelMap,
+  Pattern,
+  PhotoResult,
+  Plane,
+  Point,
+  RgbImage,
+} from '../types.js';
+import { checkPanelQuality, nearWhiteMask, type QualityLimits, DEFAULT_QUALITY_LIMITS } from './quality.js';
+
+export type FalloffChoice =
+  | { kind: 'none' }
+  | { kind: 'profile'; profile: FalloffProfile; source: string }
+  | { kind: 'cos4'; focal35mm: number | null };
+
+export interface SharedGeometry {
+  corners: Corners; // full-resolution pixels
+  file: string;
+  strength: number;
+  imageWidth: number;
+  imageHeight: number;
+}
+
+export interface MeasureOptions {
+  pattern: Pattern;
+  patternLevel: number | null;
+  /** active-area size in mm; null = unknown (areas and SEMU then nominal, said in warnings) */
+  panelSizeMm: { width: number; height: number } | null;
+  grid: GridOptions;
+  /** manual corners in full-resolution image pixels */
+  corners: Corners | null;
+  /** corners found on a brighter photo of the same panel */
+  shared: SharedGeometry | null;
+  falloff: FalloffChoice;
+  transfer: 'auto' | 'srgb' | 'linear';
+  /** decode so that the long side is at least this many pixels (power-of-two reduction) */
+  workLongSide: number;
+  /** rectified map resolution, pixels per mm (upper bound; reduced where the camera resolves less) */
+  mapPxPerMm: number;
+  mura: boolean;
+  muraOptions: Partial<MuraOptions>;
+  maxPixels: number;
+  quality: QualityLimits;
+  /** keep thumbnails and maps for the report */
+  artifacts: boolean;
+}
+
+export const DEFAULT_MEASURE_OPTIONS: Omit<MeasureOptions, 'pattern' | 'patternLevel' | 'grid'> = {
+  panelSizeMm: null,
+  corners: null,
+  shared: null,
+  falloff: { kind: 'none' },
+  transfer: 'auto',
+  workLongSide: 1800,
+  mapPxPerMm: 2,
+  mura: true,
+  muraOptions: {},
+  maxPixels: 100e6,
+  quality: DEFAULT_QUALITY_LIMITS,
+  artifacts: true,
+};
+
+/** Images kept for the report (not written to results.json). */
+export interface PhotoArtifacts {
+  thumbnail: { width: number; height: number; rgb: Uint8Array; scaleToFull: number };
+  relMap: Plane; // relative luminance (centre spot = 1)
+  contrastMap: Plane | null; // mura contrast in %
+}
+
+export interface PhotoMeasurement {
+  result: PhotoResult;
+  artifacts: PhotoArtifacts | null;
+  /** corner-finding strength, 0..1 (0 when corners were not found automatically) */
+  cornerStrength: number;
+}
+
+function emptyResult(file: string, pattern: Pattern, patternLevel: number | null): PhotoResult {
+  return {
+    file,
+    sha256: '',
+    pattern,
+    patternLevel,
+    status: 'ok',
+    error: null,
+    errorCode: null,
+    decode: null,
+    exposure: null,
+    exposureStats: null,
+    corners: null,
+    geometry: null,
+    falloff: null,
+    grid: null,
+    uniformity: null,
+    mura: null,
+    blobs: [],
+    warnings: [],
+  };
+}
+
+export function chooseScale(width: number, height: number, workLongSide: number): number {
+  const long = Math.max(width, height);
+  let s = 1;
+  while (s < 8 && long / (s * 2) >= workLongSide) s *= 2;
+  return s;
+}
+
+const toWork = (p: Point, s: number): Point => [(p[0] + 0.5) / s - 0.5, (p[1] + 0.5) / s - 0.5];
+const toFull = (p: Point, s: number): Point => [(p[0] + 0.5) * s - 0.5, (p[1] + 0.5) * s - 0.5];
+
+/** Mean side lengths of the quadrilateral: a rough aspect when the panel size is unknown. */
+function quadAspect(c: Corners): number {
+  const d = (a: Point, b: Point) => Math.hypot(a[0] - b[0], a[1] - b[1]);
+  const w = (d(c[0], c[1]) + d(c[3], c[2])) / 2;
+  const h = (d(c[0], c[3]) + d(c[1], c[2])) / 2;
+  return w / h;
+}
+
+function quadWidthPx(c: Corners): number {
+  const d = (a: Point, b: Point) => Math.hypot(a[0] - b[0], a[1] - b[1]);
+  return Math.max(d(c[0], c[1]), d(c[3], c[2]));
+}
+
+function focalPxOf(decoded: DecodedPhoto, scale: number, fallback35: number | null): number | null {
+  const f35 = decoded.exposure.focalLength35mm ?? fallback35;
+  if (!f35) return null;
+  const diag = Math.hypot(decoded.info.width, decoded.info.height);
+  return ((f35 / 43.267) * diag) / scale;
+}
+
+function rgbToXyzMap(rgb: RgbImage, valid: Uint8Array, widthMm: number, heightMm: number, pxPerMm: number, mmKnown: boolean): PanelMap {
+  const n = rgb.width * rgb.height;
+  const X = new Float32Array(n);
+  const Y = new Float32Array(n);
+  const Z = new Float32Array(n);
+  const M = SRGB_TO_XYZ;
+  const d = rgb.data;
+  for (let i = 0, k = 0; i < n; i++, k += 3) {
+    const r = d[k];
+    const g = d[k + 1];
+    const b = d[k + 2];
+    X[i] = M[0] * r + M[1] * g + M[2] * b;
+    Y[i] = M[3] * r + M[4] * g + M[5] * b;
+    Z[i] = M[6] * r + M[7] * g + M[8] * b;
+  }
+  return { width: rgb.width, height: rgb.height, pxPerMm, widthMm, heightMm, mmKnown, X, Y, Z, valid };
+}
+
+function thumbnailOf(img: RgbImage, scale: number, maxSide: number): PhotoArtifacts['thumbnail'] {
+  const f = Math.max(1, Math.ceil(Math.max(img.width, img.height) / maxSide));
+  const w = Math.floor(img.width / f);
+  const h = Math.floor(img.height / f);
+  const out = new Uint8Array(w * h * 3);
+  const src = img.data;
+  const inv = 1 / (f * f);
+  for (let y = 0; y < h; y++) {
+    for (let x = 0; x < w; x++) {
+      let r = 0;
+      let g = 0;
+      let b = 0;
+      for (let j = 0; j < f; j++) {
+        let k = ((y * f + j) * img.width + x * f) * 3;
+        for (let i = 0; i < f; i++, k += 3) {
+          r += src[k];
+          g += src[k + 1];
+          b += src[k + 2];
+        }
+      }
+      const o = (y * w + x) * 3;
+      out[o] = Math.round(255 * srgbEncode(Math.min(1, Math.max(0, r * inv))));
+      out[o + 1] = Math.round(255 * srgbEncode(Math.min(1, Math.max(0, g * inv))));
+      out[o + 2] = Math.round(255 * srgbEncode(Math.min(1, Math.max(0, b * inv))));
+    }
+  }
+  return { width: w, height: h, rgb: out, scaleToFull: f * scale };
+}
+
+function relativeMapOf(map: PanelMap, centreY: number, maxWidth: number): Plane {
+  const f = Math.max(1, Math.ceil(map.width / maxWidth));
+  const w = Math.floor(map.width / f);
+  const h = Math.floor(map.height / f);
+  const out = new Float32Array(w * h);
+  for (let y = 0; y < h; y++)
+    for (let x = 0; x < w; x++) {
+      let s = 0;
+      let n = 0;
+      for (let j = 0; j < f; j++)
+        for (let i = 0; i < f; i++) {
+          const k = (y * f + j) * map.width + x * f + i;
+          if (map.valid[k]) {
+            s += map.Y[k];
+            n++;
+          }
+        }
+      out[y * w + x] = n > 0 ? s / n / centreY : NaN;
+    }
+  return { width: w, height: h, data: out };
+}
+
+/** Measure one photo. Never throws for a problem with the photo: it comes back as status 'error'. */
+export async function measurePhoto(file: string, opts: MeasureOptions): Promise<PhotoMeasurement> {
+  const result = emptyResult(file, opts.pattern, opts.patternLevel);
+  try {
+    return await measureInner(file, opts, result);
+  } catch (e) {
+    result.status = 'error';
+    if (isEvenfieldError(e)) {
+      result.error = e.message;
+      result.errorCode = e.code;
+    } else {
+      const msg = e instanceof Error ? e.message : String(e);
+      result.error = `${file}: ${msg}`;
+      result.errorCode = 'internal';
+    }
+    result.grid = null;
+    result.uniformity = null;
+    return { result, artifacts: null, cornerStrength: 0 };
+  }
+}
+
+async function measureInner(file: string, opts: MeasureOptions, result: PhotoResult): Promise<PhotoMeasurement> {
+  // 1. decode to linear light at working scale
+  const decoded = await decodePhoto(file, {
+    transfer: opts.transfer,
+    maxPixels: opts.maxPixels,
+    workLongSide: opts.workLongSide,
+  });
+  const scale = decoded.info.scale;
+  result.sha256 = decoded.sha256;
+  result.decode = decoded.info;
+  result.exposure = decoded.exposure;
+  result.exposureStats = decoded.stats;
+  const img = decoded.image;
+  // camera levels before any correction, for the exposure gates
+  const rawLum = luminancePlane(img);
+  const clipMask = nearWhiteMask(img, opts.quality.clipLinear);
+
+  // 2. lens falloff, in camera coordinates, before anything geometric
+  const falloff: FalloffRecord = { applied: false, method: 'none', source: null, cornerFalloff: null, warnings: [] };
+  let transmission: Plane | null = null;
+  if (opts.falloff.kind === 'profile') {
+    const mism = profileMismatch(opts.falloff.profile, decoded.exposure, decoded.info.width, decoded.info.height);
+    for (const m of mism) {
+      if (m.severity === 'error') throw new EvenfieldError('falloff', `falloff profile ${opts.falloff.source} does not fit this photo: ${m.message}`, file);
+      falloff.warnings.push(m.message);
+    }
+    transmission = transmissionFromProfile(opts.falloff.profile, img.width, img.height, scale);
+    falloff.method = 'profile';
+    falloff.source = opts.falloff.source;
+  } else if (opts.falloff.kind === 'cos4') {
+    const fpx = focalPxOf(decoded, scale, opts.falloff.focal35mm);
+    if (fpx === null) {
+      throw new EvenfieldError('falloff', 'the cos⁴ falloff model needs the 35 mm-equivalent focal length (not in EXIF; give --focal-35mm)', file);
+    }
+    transmission = cos4Transmission(img.width, img.height, { focalPx: fpx });
+    falloff.method = 'cos4-model';
+    falloff.source = `cos⁴ law, ${((fpx * scale * 43.267) / Math.hypot(decoded.info.width, decoded.info.height)).toFixed(1)} mm equivalent focal length`;
+  }
+  if (transmission) {
+    applyTransmission(img, transmission);
+    falloff.applied = true;
+    let tmin = Infinity;
+    const t = transmission.data;
+    // corner value relative to the centre: the four corner pixels
+    const w = transmission.width;
+    const h = transmission.height;
+    for (const k of [0, w - 1, (h - 1) * w, h * w - 1]) tmin = Math.min(tmin, t[k]);
+    falloff.cornerFalloff = tmin;
+  }
+  result.falloff = falloff;
+  if (!falloff.applied) {
+    result.warnings.push('no lens falloff correction was applied: corner luminance includes the lens falloff');
+  }
+
+  // 3. panel location
+  const lum = transmission ? luminancePlane(img) : rawLum;
+  let cornersWork: Corners;
+  let cornerStrength = 0;
+  let geometrySource: GeometryRecord['cornersSource'];
+  let edgeResidual: number | null = null;
+  let edgeWidthPx: number | null = null;
+  if (opts.corners) {
+    cornersWork = opts.corners.map((p) => toWork(p, scale)) as Corners;
+    geometrySource = 'manual';
+  } else {
+    let found: ReturnType<typeof findPanel> | null = null;
+    let findError: unknown = null;
+    try {
+      found = findPanel(lum, { pattern: opts.pattern });
+    } catch (e) {
+      findError = e;
+    }
+    const shared = opts.shared;
+    const sharedFits = shared !== null && shared.imageWidth === decoded.info.width && shared.imageHeight === decoded.info.height;
+    if (found && (!sharedFits || found.strength >= shared!.strength * 0.8)) {
+      cornersWork = found.corners;
+      cornerStrength = found.strength;
+      geometrySource = 'auto';
+      edgeResidual = found.edgeResidualPx * scale;
+      edgeWidthPx = found.edgeWidthPx * scale;
+    } else if (sharedFits) {
+      cornersWork = shared!.corners.map((p) => toWork(p, scale)) as Corners;
+      geometrySource = 'shared';
+      result.warnings.push(
+        `corners taken from ${shared!.file} (its outline is clearer than this photo's own); this assumes both were taken from the same camera position`,
+      );
+      if (found) {
+        const moved = Math.max(...found.corners.map((p, i) => Math.hypot(p[0] - cornersWork[i][0], p[1] - cornersWork[i][1]))) * scale;
+        if (moved > 0.01 * Math.hypot(decoded.info.width, decoded.info.height)) {
+          result.warnings.push(`this photo's own outline differs from the shared one by ${moved.toFixed(0)} px: the camera may have moved`);
+        }
+      }
+    } else {
+      throw findError ?? new EvenfieldError('no-panel', 'no panel outline found', file);
+    }
+  }
+  const cornersFull = cornersWork.map((p) => toFull(p, scale)) as Corners;
+  result.corners = cornersFull.map((p) => [round3(p[0]), round3(p[1])]) as Corners;
+
+  // 4. quality gates that need the outline
+  const quality = checkPanelQuality(file, { rawLum, clipMask, corners: cornersWork, edgeWidthPx, scale }, opts.quality);
+  result.warnings.push(...quality.warnings);
+
+  // 5. rectify
+  const known = opts.panelSizeMm !== null;
+  let widthMm: number;
+  let heightMm: number;
+  const fpx = focalPxOf(decoded, scale, null);
+  let tiltDeg: number | null = null;
+  let poseAspect: number | null = null;
+  if (fpx !== null) {
+    try {
+      const pose = estimatePose(cornersWork, fpx, (img.width - 1) / 2, (img.height - 1) / 2);
+      tiltDeg = pose.tiltDeg;
+      poseAspect = pose.aspect;
+    } catch {
+      tiltDeg = null;
+    }
+  }
+  if (opts.panelSizeMm) {
+    widthMm = opts.panelSizeMm.width;
+    heightMm = opts.panelSizeMm.height;
+  } else {
+    const aspect = poseAspect ?? quadAspect(cornersWork);
+    widthMm = 1000;
+    heightMm = 1000 / aspect;
+    result.warnings.push(
+      `panel size not given: sizes are in nominal units of a 1000-unit-wide panel (aspect ${aspect.toFixed(3)} estimated from the outline); give --panel-size for areas in mm and SEMU`,
+    );
+  }
+  const camPxPerMm = quadWidthPx(cornersWork) / widthMm;
+  const pxPerMm = Math.min(opts.mapPxPerMm, camPxPerMm);
+  const mapW = Math.max(8, Math.round(widthMm * pxPerMm));
+  const mapH = Math.max(8, Math.round(heightMm * pxPerMm));
+  const rect = rectifyRgb(img, cornersWork, mapW, mapH);
+  const map = rgbToXyzMap(rect.rgb, rect.valid, widthMm, heightMm, mapW / widthMm, known);
+  const geometry: GeometryRecord = {
+    cornersSource: geometrySource,
+    edgeResidualPx: edgeResidual,
+    tiltDeg,
+    mapWidth: mapW,
+    mapHeight: mapH,
+    pxPerMm: map.pxPerMm,
+    cameraPxPerMapPx: rect.cameraPxPerMapPx * scale,
+  };
+  result.geometry = geometry;
+
+  // 6. grid
+  let points;
+  try {
+    points = measureGrid(map, opts.grid);
+  } catch (e) {
+    throw new EvenfieldError('partly-outside', (e as Error).message, file);
+  }
+  result.grid = {
+    layout: opts.grid.layout,
+    placement: opts.grid.placement,
+    insetPct: opts.grid.placement === 'inset' ? opts.grid.insetFraction * 100 : null,
+    spotRadiusPct: opts.grid.spotRadiusPct,
+    points,
+  };
+  result.uniformity = uniformityFigures(points);
+
+  // 7. mura
+  let contrastMap: Plane | null = null;
+  if (opts.mura) {
+    const mura = analyseMura(map, { ...opts.muraOptions, pattern: opts.pattern });
+    const { contrast, background, ...rest } = mura;
+    void background;
+    result.mura = rest;
+    result.blobs = rest.blobs;
+    contrastMap = contrast;
+    if (!known) result.warnings.push('mura areas and SEMU use the nominal panel size: give --panel-size for figures in mm² and true SEMU');
+  }
+
+  const centreY = points.find((p) => p.u === 0.5 && p.v === 0.5)?.Y ?? points[0].Y;
+  const artifacts: PhotoArtifacts | null = opts.artifacts
+    ? { thumbnail: thumbnailOf(img, scale, 900), relMap: relativeMapOf(map, centreY, 600), contrastMap }
+    : null;
+  return { result, artifacts, cornerStrength };
+}
+
+function round3(x: number): number {
+  return Math.round(x * 1000) / 1000;
+}
