@@ -1,0 +1,37 @@
+// Acceptance criteria, verdicts and reasons.
+export {
+  CriteriaSchema,
+  PATTERNS,
+  BLOB_KINDS,
+  GLOW_KINDS,
+  LIMIT_KEYS,
+  DEFAULT_GRID,
+  DEFAULT_UNCERTAINTY,
+  DEFAULT_MURA,
+  allowedKeysAt,
+} from './schema.js';
+export type {
+  Criteria,
+  CriteriaInput,
+  PatternCriteria,
+  BlackPatternCriteria,
+  BlobLimits,
+  GlowLimits,
+  LuminanceWindow,
+  Uncertainty,
+  LimitKey,
+} from './schema.js';
+export {
+  loadCriteria,
+  parseCriteria,
+  effectiveCriteriaYaml,
+  criteriaHash,
+  canonicalJson,
+  defaultCriteriaPath,
+  formatProblem,
+  CriteriaError,
+} from './load.js';
+export type { LoadedCriteria, CriteriaProblem } from './load.js';
+export { judgePanel, worstMargin, patternLabel } from './judge.js';
+export { criteriaSummaryLines } from './summary.js';
+export type { JudgeablePhoto, JudgedReason, PanelJudgement } from './judge.js';
