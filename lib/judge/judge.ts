@@ -483,13 +483,16 @@ function photoError(p: PhotoResult): string {
 /**
  * The judged figure closest to (or furthest past) its limit, comparing margins relative to their
  * limits (a margin over a limit of 0, as for blob counts, counts as is). Errors, notes without a
- * limit, report-only figures and borderline duplicates are left out. Null when nothing was judged.
+ * limit, report-only figures, borderline duplicates and blob counts of zero are left out. Null when
+ * nothing was judged.
  */
 export function worstMargin(reasons: readonly Reason[]): { reason: Reason; relative: number } | null {
   let best: { reason: Reason; relative: number } | null = null;
   for (const r of reasons) {
     const extra = r as Partial<JudgedReason>;
     if (r.severity === 'error' || r.margin === null || r.limit === null || extra.reportOnly || extra.borderline) continue;
+    // no blobs of a kind is never the worst case, even where none are allowed
+    if (r.figure.startsWith('blobCount.') && r.value === 0) continue;
     const relative = r.limit !== 0 ? r.margin / Math.abs(r.limit) : r.margin;
     if (best === null || relative < best.relative) best = { reason: r, relative };
   }

@@ -48,9 +48,9 @@ export interface LoadedCriteria {
 /**
  * Where the shipped default lives. Works from the sources (lib/judge/) and from the compiled
  * output (dist/lib/judge/ → the package's lib/judge/, since the YAML file is not compiled).
+ * @param here the folder of this module (a parameter only so tests can stand in for dist/).
  */
-export function defaultCriteriaPath(): string {
-  const here = dirname(fileURLToPath(import.meta.url));
+export function defaultCriteriaPath(here: string = dirname(fileURLToPath(import.meta.url))): string {
   const beside = join(here, 'default-criteria.yaml');
   if (existsSync(beside)) return beside;
   return resolve(here, '..', '..', '..', 'lib', 'judge', 'default-criteria.yaml');
