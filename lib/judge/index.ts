@@ -29,9 +29,11 @@ export {
   canonicalJson,
   defaultCriteriaPath,
   formatProblem,
+  commentsByKey,
   CriteriaError,
 } from './load.js';
-export type { LoadedCriteria, CriteriaProblem } from './load.js';
+export type { LoadedCriteria, CriteriaProblem, CarriedComments } from './load.js';
 export { judgePanel, worstMargin, patternLabel } from './judge.js';
-export { criteriaSummaryLines } from './summary.js';
+export { criteriaSummaryLines, criteriaSummary } from './summary.js';
+export type { CriteriaSummaryLine, CriteriaSummaryRecord } from './summary.js';
 export type { JudgeablePhoto, JudgedReason, PanelJudgement } from './judge.js';

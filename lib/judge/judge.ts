@@ -111,6 +111,10 @@ function marginOf(c: Check): number {
 }
 
 function judgeCheck(c: Check, out: JudgedReason[]): void {
+  if (!Number.isFinite(c.value)) {
+    out.push(errorReason(c.pattern, c.label, c.file, c.figure, `${c.countWords ?? c.name} could not be computed (${c.value}), so it cannot be judged`));
+    return;
+  }
   const margin = marginOf(c);
   const inside = margin >= 0;
   const small = c.unit === 'cdm2' && Math.abs(c.limit) < 10;
@@ -230,11 +234,11 @@ function judgePhoto(
   const ro = (k: LimitKey) => section.reportOnly.includes(k);
   const common = { pattern, label, file };
 
+  // A grid chosen on the command line over the criteria's: judged, but said plainly.
   if (photo.grid && photo.grid.layout !== criteria.grid.layout) {
     out.push(
-      errorReason(pattern, label, file, 'grid', `measured on a ${photo.grid.layout}-point grid, but the criteria ask for ${criteria.grid.layout} points`),
+      noteReason(pattern, label, file, 'grid', `measured on a ${photo.grid.layout}-point grid, but the criteria were written for ${criteria.grid.layout} points`),
     );
-    return;
   }
 
   // Sampled uniformity.

@@ -289,10 +289,29 @@ function helpFor(path: string[]): string | undefined {
   return undefined;
 }
 
-interface CarriedComments {
+export interface CarriedComments {
   keyBefore?: string;
   valueBefore?: string;
   value?: string;
+}
+
+/** The comments of a criteria text by dotted key path (unparseable text: none), and its header. */
+export function commentsByKey(text: string): { comments: Map<string, CarriedComments>; header: string | null } {
+  const comments = new Map<string, CarriedComments>();
+  const orig = parseDocument(text);
+  if (orig.errors.length > 0) return { comments, header: null };
+  visit(orig, {
+    Pair(_, pair, ancestors) {
+      const k = pair.key as { commentBefore?: string | null } | null;
+      const v = pair.value as { commentBefore?: string | null; comment?: string | null } | null;
+      comments.set(pairPath(pair, ancestors).join('.'), {
+        keyBefore: k?.commentBefore ?? undefined,
+        valueBefore: v?.commentBefore ?? undefined,
+        value: v?.comment ?? undefined,
+      });
+    },
+  });
+  return { comments, header: orig.commentBefore ?? null };
 }
 
 /** Key path of a pair from the ancestors `visit` hands over. */
@@ -313,25 +332,7 @@ function pairPath(pair: { key: unknown }, ancestors: readonly unknown[]): string
  * the same keys; keys without one get a line of help.
  */
 export function effectiveCriteriaYaml(criteria: Criteria, from: { source?: string; text?: string } = {}): string {
-  const carried = new Map<string, CarriedComments>();
-  let header: string | null = null;
-  if (from.text) {
-    const orig = parseDocument(from.text);
-    if (orig.errors.length === 0) {
-      header = orig.commentBefore ?? null;
-      visit(orig, {
-        Pair(_, pair, ancestors) {
-          const k = pair.key as { commentBefore?: string | null } | null;
-          const v = pair.value as { commentBefore?: string | null; comment?: string | null } | null;
-          carried.set(pairPath(pair, ancestors).join('.'), {
-            keyBefore: k?.commentBefore ?? undefined,
-            valueBefore: v?.commentBefore ?? undefined,
-            value: v?.comment ?? undefined,
-          });
-        },
-      });
-    }
-  }
+  const { comments: carried, header } = from.text ? commentsByKey(from.text) : { comments: new Map<string, CarriedComments>(), header: null };
 
   const doc = new Document(criteria);
   visit(doc, {

@@ -13,6 +13,7 @@ import {
   DEFAULT_MURA,
   DEFAULT_UNCERTAINTY,
   criteriaHash,
+  criteriaSummary,
   criteriaSummaryLines,
   defaultCriteriaPath,
   effectiveCriteriaYaml,
@@ -199,6 +200,20 @@ describe('the shipped default criteria', () => {
     expect(raw.grid).toEqual(DEFAULT_GRID);
     expect(raw.uncertainty).toEqual(DEFAULT_UNCERTAINTY);
     expect(raw.mura).toEqual(DEFAULT_MURA);
+  });
+
+  it('summary lines carry the source each value\'s comment gives', () => {
+    const sum = criteriaSummary(loaded);
+    expect(sum.name).toBe(c.name);
+    expect(sum.hash).toBe(loaded.hash);
+    const src = (text: string) => sum.lines.find((l) => l.text === text)?.source;
+    expect(src('white (required): uniformity (Lmin/Lmax) at least 75 %')).toBe('a 22-inch monitor service manual, §8.9-8.11');
+    expect(src("white (required): Δu'v' from the centre at most 0.01")).toBe("ISO 12646:2013; TCO'03 also uses 0.01");
+    expect(src('white (required): largest mura at most 1 SEMU')).toBe('SEMI D31-1102: 1 SEMU = one just-noticeable difference');
+    expect(sum.lines.every((l) => l.text.length > 0)).toBe(true);
+    // a file without comments states no sources
+    const bare = criteriaSummary({ criteria: parseCriteria(MINIMAL, 'x'), text: MINIMAL, hash: 'h', source: 'x' });
+    expect(bare.lines.find((l) => l.text.startsWith('white'))).toEqual({ text: 'white: uniformity (Lmin/Lmax) at least 75 %', source: null });
   });
 
   it('summary lines cover every limit', () => {

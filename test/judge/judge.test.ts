@@ -318,10 +318,18 @@ describe('judgePanel', () => {
     expect(noMura.reasons).toEqual(['white: mura was not measured, so its limits cannot be judged']);
   });
 
-  it('photos on a grid other than the criteria ask for are an error', () => {
-    const j = judgePanel([photo('white', { layout: 5 })], criteria);
+  it('a figure that came out as no number is an error, not a failure', () => {
+    const p = photo('white', { rel: withLow(0.8) });
+    p.uniformity!.maxOverMin = Number.POSITIVE_INFINITY; // a point at zero luminance
+    const j = judgePanel([p], parseCriteria('name: t\npatterns:\n  white:\n    minOverMaxPctMin: 75\n    maxOverMinMax: 1.33\n', 't'));
     expect(j.verdict).toBe('error');
-    expect(j.reasons).toEqual(['white: measured on a 5-point grid, but the criteria ask for 9 points']);
+    expect(j.reasons).toEqual(['white: max/min ratio could not be computed (Infinity), so it cannot be judged']);
+  });
+
+  it('photos on a grid other than the criteria name are judged, with a note saying so', () => {
+    const j = judgePanel([photo('white', { layout: 5 })], criteria);
+    expect(j.verdict).toBe('pass');
+    expect(texts(j.reasonDetails, 'note')[0]).toBe('white: measured on a 5-point grid, but the criteria were written for 9 points');
   });
 
   it('patterns without limits are noted, and a panel with nothing judged is an error', () => {
