@@ -15,7 +15,8 @@ export interface GridOptions {
 
 /** Default spot radius, % of the panel diagonal: a disc of 4 % of the diagonal across fits inside
  *  the largest measurement field FPDM 2.0 §301-2H allows (a rectangle of 10 % of the screen width and
- *  height) on panels from 4:3 to 21:9. */
+ *  height) on panels from 4:3 up to an aspect of about 2.29:1
+ *  (0.04·√(a² + 1) ≤ 0.1), which covers 16:9 and 16:10 but not quite 21:9. */
 export const DEFAULT_SPOT_RADIUS_PCT = 2.0;
 
 /** Coverage sub-samples per axis for pixels cut by the disc edge. */
