@@ -1,0 +1,19 @@
+// lib/io: the only part of evenfield that reads photos. Decoding to linear light (sharp), EXIF
+// (exifr), hashing and atomic writes.
+
+export {
+  DEFAULT_MAX_PIXELS,
+  decodePhoto,
+  decodePhotoBuffer,
+  reduceLinearBox,
+  toFullSize,
+  toScaled,
+  type DecodeOptions,
+  type DecodedPhoto,
+  type ScaleMethod,
+} from './decode.js';
+export { EMPTY_EXPOSURE, exifDateToIso, exposureFromTags, readExif, type ExifResult } from './exif.js';
+export { readInputFile, sha256OfBuffer, writeFileAtomic } from './files.js';
+export { describeDecodeFailure, describeStart, sniffFormat, type SniffedFormat } from './sniff.js';
+export { kthSmallest, quantile } from './stats.js';
+export { readIccSummary, readPngColourChunks, srgbColorantsD50, type CurveKind, type IccSummary, type PngColourChunks } from './tags.js';
