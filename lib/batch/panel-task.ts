@@ -7,7 +7,7 @@ import type { MeasureOptions, PhotoArtifacts, SharedGeometry } from '../pipeline
 import { judgePanel } from '../judge/index.js';
 import type { Criteria } from '../judge/index.js';
 import { renderPanelPdf } from '../report/index.js';
-import type { PanelReportInput } from '../report/index.js';
+import type { CriteriaSummary, PanelReportInput } from '../report/index.js';
 import { writeFileAtomic } from '../io/index.js';
 import type { PanelResult, PhotoResult } from '../types.js';
 import type { PanelGroup } from './grouping.js';
@@ -18,7 +18,7 @@ export interface RunContext {
   criteria: Criteria;
   criteriaHash: string;
   criteriaSource: string;
-  criteriaLines: string[];
+  criteriaSummary: CriteriaSummary;
   outDir: string;
   pdf: boolean;
   toolVersion: string;
@@ -98,12 +98,10 @@ export async function runPanel(task: PanelTask): Promise<PanelOutcome> {
     const input: PanelReportInput = {
       panel: result,
       artifacts: artifacts.map((a) => a ?? null),
-      criteriaLines: ctx.criteriaLines,
-      criteriaHash: ctx.criteriaHash,
-      criteriaSource: ctx.criteriaSource,
+      criteria: ctx.criteriaSummary,
       toolVersion: ctx.toolVersion,
-      date: ctx.date,
-      lot: ctx.lot,
+      generated: ctx.date,
+      lot: { lot: ctx.lot.id, date: ctx.date.slice(0, 10), station: ctx.lot.station, operator: ctx.lot.operator },
     };
     const bytes = await renderPanelPdf(input);
     pdfFile = join(ctx.outDir, pdfNameFor(group.panel));

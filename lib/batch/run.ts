@@ -190,13 +190,10 @@ export async function runBatch(opts: BatchOptions): Promise<BatchOutcome> {
   if (ctx.pdf) {
     const bytes = await renderLotPdf({
       panels,
-      summary: doc.summary,
-      lot: ctx.lot,
-      date,
+      lot: { lot: ctx.lot.id, date: date.slice(0, 10), station: ctx.lot.station, operator: ctx.lot.operator },
+      criteria: ctx.criteriaSummary,
       toolVersion: ctx.toolVersion,
-      criteria: ctx.criteria,
-      criteriaHash: ctx.criteriaHash,
-      criteriaSource: ctx.criteriaSource,
+      generated: date,
       unassigned: opts.grouping.unassigned,
     });
     await writeFileAtomic(join(outDir, SUMMARY_PDF), bytes);

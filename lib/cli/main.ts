@@ -12,7 +12,7 @@ import type { RunContext } from '../batch/panel-task.js';
 import { DEFAULT_MEASURE_OPTIONS } from '../pipeline/index.js';
 import type { FalloffChoice } from '../pipeline/index.js';
 import { DEFAULT_SPOT_RADIUS_PCT } from '../measure/index.js';
-import { criteriaSummaryLines, effectiveCriteriaYaml, loadCriteria } from '../judge/index.js';
+import { criteriaSummary, effectiveCriteriaYaml, loadCriteria } from '../judge/index.js';
 import { calibrateCommand, loadFalloffProfile, flatFramesToProfile } from './falloff-commands.js';
 import type { GridLayout, GridPlacement } from '../types.js';
 
@@ -130,7 +130,7 @@ async function inspect(a: InspectArgs): Promise<number> {
     criteria: c,
     criteriaHash: crit.hash,
     criteriaSource: crit.source,
-    criteriaLines: criteriaSummaryLines(c),
+    criteriaSummary: criteriaSummary(crit),
     outDir: a.out,
     pdf: a.pdf,
     toolVersion: toolVersion(),
@@ -234,7 +234,7 @@ export async function main(argv: string[]): Promise<number> {
       (y) => y.option('criteria', { type: 'string', describe: 'criteria YAML to check and print' }),
       (a) => {
         const crit = loadCriteria(a.criteria ?? null);
-        process.stdout.write(effectiveCriteriaYaml(crit.criteria));
+        process.stdout.write(effectiveCriteriaYaml(crit.criteria, { source: crit.source, text: crit.text }));
         process.stderr.write(`# sha256 ${crit.hash} (${crit.source})\n`);
       },
     )

@@ -1,11 +1,13 @@
 // One photo, end to end: decode → linear light → falloff → panel → rectify → grid → mura.
 // Plain data in, plain data out; the only file it reads is the photo itself.
 
-import { decodePhoto } from '../io/index.js';
+import sharp from 'sharp';
+import { decodePhotoBuffer, readInputFile } from '../io/index.js';
 import type { DecodedPhoto } from '../io/index.js';
 import { SRGB_TO_XYZ, luminancePlane, srgbEncode } from '../photometry/index.js';
 import { findPanel, rectifyRgb, estimatePose } from '../geometry/index.js';
-import { applyTransmission, profileMismatch, transmissionFromProfile, cos4Transmission } from '../falloff/index.js';
+import { applyTransmission, channelTransmissionFromProfile, cornerTransmission, cos4Transmission, isChannelTransmission, profileMismatch } from '../falloff/index.js';
+import type { Transmission } from '../falloff/index.js';
 import type { FalloffProfile } from '../falloff/index.js';
 import { analyseMura } from '../mura/index.js';
 import type { MuraOptions } from '../mura/index.js';
@@ -23,6 +25,7 @@ import type {
   Point,
   RgbImage,
 } from '../types.js';
+import type { PhotoArtifacts as ReportArtifacts, ReportThumbnail } from '../report/types.js';
 import { checkPanelQuality, nearWhiteMask, type QualityLimits, DEFAULT_QUALITY_LIMITS } from './quality.js';
 
 export type FalloffChoice =
@@ -77,12 +80,8 @@ export const DEFAULT_MEASURE_OPTIONS: Omit<MeasureOptions, 'pattern' | 'patternL
   artifacts: true,
 };
 
-/** Images kept for the report (not written to results.json). */
-export interface PhotoArtifacts {
-  thumbnail: { width: number; height: number; rgb: Uint8Array; scaleToFull: number };
-  relMap: Plane; // relative luminance (centre spot = 1)
-  contrastMap: Plane | null; // mura contrast in %
-}
+/** Images kept for the report (not written to results.json); the report's own type. */
+export type PhotoArtifacts = ReportArtifacts;
 
 export interface PhotoMeasurement {
   result: PhotoResult;
@@ -162,7 +161,7 @@ function rgbToXyzMap(rgb: RgbImage, valid: Uint8Array, widthMm: number, heightMm
   return { width: rgb.width, height: rgb.height, pxPerMm, widthMm, heightMm, mmKnown, X, Y, Z, valid };
 }
 
-function thumbnailOf(img: RgbImage, scale: number, maxSide: number): PhotoArtifacts['thumbnail'] {
+function thumbnailOf(img: RgbImage, scale: number, maxSide: number): ReportThumbnail {
   const f = Math.max(1, Math.ceil(Math.max(img.width, img.height) / maxSide));
   const w = Math.floor(img.width / f);
   const h = Math.floor(img.height / f);
@@ -236,11 +235,15 @@ export async function measurePhoto(file: string, opts: MeasureOptions): Promise<
 
 async function measureInner(file: string, opts: MeasureOptions, result: PhotoResult): Promise<PhotoMeasurement> {
   // 1. decode to linear light at working scale
-  const decoded = await decodePhoto(file, {
-    transfer: opts.transfer,
-    maxPixels: opts.maxPixels,
-    workLongSide: opts.workLongSide,
-  });
+  const buf = await readInputFile(file);
+  let scale0: 1 | 2 | 4 | 8 = 1;
+  try {
+    const meta = await sharp(buf, { limitInputPixels: false }).metadata();
+    if (meta.width && meta.height) scale0 = chooseScale(meta.width, meta.height, opts.workLongSide) as 1 | 2 | 4 | 8;
+  } catch {
+    // not a readable image: the decoder below gives the precise message
+  }
+  const decoded = await decodePhotoBuffer(buf, file, { transfer: opts.transfer, maxPixels: opts.maxPixels, scale: scale0 });
   const scale = decoded.info.scale;
   result.sha256 = decoded.sha256;
   result.decode = decoded.info;
@@ -253,35 +256,35 @@ async function measureInner(file: string, opts: MeasureOptions, result: PhotoRes
 
   // 2. lens falloff, in camera coordinates, before anything geometric
   const falloff: FalloffRecord = { applied: false, method: 'none', source: null, cornerFalloff: null, warnings: [] };
-  let transmission: Plane | null = null;
+  let transmission: Transmission | null = null;
   if (opts.falloff.kind === 'profile') {
-    const mism = profileMismatch(opts.falloff.profile, decoded.exposure, decoded.info.width, decoded.info.height);
-    for (const m of mism) {
-      if (m.severity === 'error') throw new EvenfieldError('falloff', `falloff profile ${opts.falloff.source} does not fit this photo: ${m.message}`, file);
-      falloff.warnings.push(m.message);
+    const match = profileMismatch(opts.falloff.profile, decoded.exposure, decoded.info.width, decoded.info.height);
+    if (match.severity === 'error') {
+      throw new EvenfieldError('falloff', `falloff profile ${opts.falloff.source} does not fit this photo: ${match.errors.join('; ')}`, file);
     }
-    transmission = transmissionFromProfile(opts.falloff.profile, img.width, img.height, scale);
+    falloff.warnings.push(...match.warnings);
+    transmission = channelTransmissionFromProfile(opts.falloff.profile, img.width, img.height, scale, {
+      width: decoded.info.width,
+      height: decoded.info.height,
+    });
     falloff.method = 'profile';
     falloff.source = opts.falloff.source;
   } else if (opts.falloff.kind === 'cos4') {
-    const fpx = focalPxOf(decoded, scale, opts.falloff.focal35mm);
-    if (fpx === null) {
+    const f35 = decoded.exposure.focalLength35mm ?? opts.falloff.focal35mm;
+    if (!f35) {
       throw new EvenfieldError('falloff', 'the cos⁴ falloff model needs the 35 mm-equivalent focal length (not in EXIF; give --focal-35mm)', file);
     }
-    transmission = cos4Transmission(img.width, img.height, { focalPx: fpx });
+    if (decoded.info.transfer !== 'linear') {
+      falloff.warnings.push('cos⁴ model applied to sRGB-encoded input: cameras often correct part of the falloff in their JPEGs, so this may over-correct');
+    }
+    transmission = cos4Transmission(img.width, img.height, { focal35mm: f35, fullWidth: decoded.info.width, fullHeight: decoded.info.height }, scale);
     falloff.method = 'cos4-model';
-    falloff.source = `cos⁴ law, ${((fpx * scale * 43.267) / Math.hypot(decoded.info.width, decoded.info.height)).toFixed(1)} mm equivalent focal length`;
+    falloff.source = `cos⁴ law, ${f35} mm equivalent focal length`;
   }
   if (transmission) {
     applyTransmission(img, transmission);
     falloff.applied = true;
-    let tmin = Infinity;
-    const t = transmission.data;
-    // corner value relative to the centre: the four corner pixels
-    const w = transmission.width;
-    const h = transmission.height;
-    for (const k of [0, w - 1, (h - 1) * w, h * w - 1]) tmin = Math.min(tmin, t[k]);
-    falloff.cornerFalloff = tmin;
+    falloff.cornerFalloff = cornerTransmission(isChannelTransmission(transmission) ? transmission.g : transmission);
   }
   result.falloff = falloff;
   if (!falloff.applied) {
@@ -411,9 +414,37 @@ async function measureInner(file: string, opts: MeasureOptions, result: PhotoRes
 
   const centreY = points.find((p) => p.u === 0.5 && p.v === 0.5)?.Y ?? points[0].Y;
   const artifacts: PhotoArtifacts | null = opts.artifacts
-    ? { thumbnail: thumbnailOf(img, scale, 900), relMap: relativeMapOf(map, centreY, 600), contrastMap }
+    ? {
+        thumbnail: thumbnailOf(img, scale, 900),
+        relMap: relativeMapOf(map, centreY, 600),
+        contrastMap: contrastMap ? downsamplePlane(contrastMap, 600) : null,
+        panelSizeMm: { width: widthMm, height: heightMm, known },
+      }
     : null;
   return { result, artifacts, cornerStrength };
+}
+
+function downsamplePlane(p: Plane, maxWidth: number): Plane {
+  const f = Math.max(1, Math.ceil(p.width / maxWidth));
+  if (f === 1) return p;
+  const w = Math.floor(p.width / f);
+  const h = Math.floor(p.height / f);
+  const out = new Float32Array(w * h);
+  for (let y = 0; y < h; y++)
+    for (let x = 0; x < w; x++) {
+      let s = 0;
+      let n = 0;
+      for (let j = 0; j < f; j++)
+        for (let i = 0; i < f; i++) {
+          const v = p.data[(y * f + j) * p.width + x * f + i];
+          if (Number.isFinite(v)) {
+            s += v;
+            n++;
+          }
+        }
+      out[y * w + x] = n > 0 ? s / n : NaN;
+    }
+  return { width: w, height: h, data: out };
 }
 
 function round3(x: number): number {
