@@ -506,8 +506,9 @@ describe('reduced scale', () => {
     const f2 = (f(mu + h2) - 2 * f(mu) + f(mu - h2)) / (h2 * h2);
     const predicted = (-0.5 * f2 * 24 * 24) / f(mu);
     expect(bias).toBeLessThan(0);
-    // JPEG coding at quality 100 and sharp's 2× linear kernel keep most but not all of the noise
-    // variance, so the measured bias is a fraction of the prediction; 0.5–1.1× brackets it.
+    // JPEG coding at quality 100 and sharp's final 2× lanczos3 step keep most but not all of the
+    // noise variance inside the averaging window, so the measured bias is a little under the
+    // prediction (measured 0.92×); 0.5–1.1× brackets it.
     expect(bias / predicted).toBeGreaterThan(0.5);
     expect(bias / predicted).toBeLessThan(1.1);
     console.log(`jpeg-shrink bias on a σ=24-code flat field at code 128: ${(bias * 100).toFixed(3)} % (delta method ${(predicted * 100).toFixed(3)} %)`);

@@ -2,7 +2,7 @@ import { afterAll, describe, expect, it } from 'vitest';
 import { mkdirSync, readFileSync, readdirSync, writeFileSync } from 'node:fs';
 import { quantile as ssQuantile, median as ssMedian } from 'simple-statistics';
 import { EvenfieldError } from '../../lib/errors.js';
-import { kthSmallest, quantile, readInputFile, sha256OfBuffer, writeFileAtomic } from '../../lib/io/index.js';
+import { kthSmallest, orderStatistics, quantile, quantiles, readInputFile, sha256OfBuffer, writeFileAtomic } from '../../lib/io/index.js';
 import { gauss, lcg, tempDir } from './helpers.js';
 
 const tmp = tempDir();
@@ -108,6 +108,19 @@ describe('quantiles without sorting', () => {
     for (let i = 0; i < 50; i++) data[i * 997] = 1;
     for (let i = 0; i < 1000; i++) data[i * 211 + 5] = 1e-6 * (i + 1);
     for (const p of [0.5, 0.99, 0.999, 0.9999, 0.99995]) expect(quantile(data, p)).toBe(q7(data, p));
+  });
+
+  it('several ranks at once match a sort, including a bin too full to collect (1.5 M ties)', () => {
+    const rnd = lcg(12);
+    const data = new Float32Array(50_000).map(() => rnd() ** 3);
+    const sorted = Array.from(data).sort((a, b) => a - b);
+    const ranks = [0, 1, 17, 25_000, 49_950, 49_999, 25_000];
+    expect(orderStatistics(data, ranks)).toEqual(ranks.map((k) => sorted[k]));
+    expect(quantiles(data, [0.5, 0.999])).toEqual([quantile(data, 0.5), quantile(data, 0.999)]);
+    const ties = new Float32Array(1_500_000);
+    for (let i = 0; i < 300; i++) ties[i * 4999] = 1e-7 * (i + 1);
+    ties[7] = 1;
+    for (const p of [0.5, 0.9999, 0.99995, 0.999999]) expect(quantile(ties, p)).toBe(q7(ties, p));
   });
 
   it('rejects bad arguments', () => {
