@@ -70,6 +70,17 @@ export function legendreInto(x: number, order: number, out: Float64Array): Float
   return out;
 }
 
+/**
+ * Derivatives P_0'..P_order' at x given P_0..P_order in p: P'_{n+1} = P'_{n-1} + (2n + 1) P_n
+ * [Abramowitz & Stegun 22.8, the derivative recurrence].
+ */
+export function legendreDerivInto(p: Float64Array, order: number, out: Float64Array): Float64Array {
+  out[0] = 0;
+  if (order >= 1) out[1] = 1;
+  for (let n = 1; n < order; n++) out[n + 1] = out[n - 1] + (2 * n + 1) * p[n];
+  return out;
+}
+
 /** (i, j) exponent pairs of the 2-D Legendre surface with minOrder <= i + j <= maxOrder, in a fixed order. */
 export function surfaceTerms(minOrder: number, maxOrder: number): [number, number][] {
   const out: [number, number][] = [];

@@ -36,7 +36,7 @@ import {
   normV,
   surfaceTerms,
 } from './basis.js';
-import { inverseSymmetric, logRadialToPolynomial, median, robustSigma, solveSymmetric } from './lsq.js';
+import { inverseColumns, logRadialToPolynomial, median, robustSigma, solveSymmetric } from './lsq.js';
 import {
   type FalloffModel,
   type FalloffProfile,
@@ -444,8 +444,8 @@ function fitLuminance(bl: Blocks, y: Float64Array, setup: FitSetup): LumFit {
         dc1 *= 0.05 / step;
       }
       centre = [centre[0] + dc0, centre[1] + dc1];
-      const inv = inverseSymmetric(N, m);
-      centreSe = [Math.sqrt(sigma0sq * inv.get(iCen, iCen)), Math.sqrt(sigma0sq * inv.get(iCen + 1, iCen + 1))];
+      const inv = inverseColumns(N, m, [iCen, iCen + 1]);
+      centreSe = [Math.sqrt(sigma0sq * inv.get(iCen, 0)), Math.sqrt(sigma0sq * inv.get(iCen + 1, 1))];
       if (Math.abs(centre[0]) > 0.5 || Math.abs(centre[1]) > 0.5) {
         notes.push('fitted optical centre ran far from the image centre; fell back to the image centre');
         centre = [...st.centre0];

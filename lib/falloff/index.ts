@@ -43,3 +43,5 @@ export { calibrateFromFlats } from './flats.js';
 export type { FlatCalibration, FlatMeta, FlatOptions } from './flats.js';
 export { legendreInto, normU, normV, radialPolynomial } from './basis.js';
 export type { FrameGeometry, SurfaceTerm } from './basis.js';
+export { calibrateFromShifted } from './shifted.js';
+export type { ShiftedCalibration, ShiftedFrame, ShiftedMeta, ShiftedOptions } from './shifted.js';

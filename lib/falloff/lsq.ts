@@ -4,10 +4,18 @@
 import { CholeskyDecomposition, EigenvalueDecomposition, Matrix, SingularValueDecomposition } from 'ml-matrix';
 import { radialPolynomial } from './basis.js';
 
-/** Dense symmetric n x n matrix (row-major Float64Array) to an ml-matrix Matrix. */
+/** Dense symmetric n x n matrix (row-major Float64Array) to an ml-matrix Matrix, made exactly
+ *  symmetric (rounding in the accumulation can leave the two triangles a few ulps apart). */
 export function toMatrix(N: Float64Array, n: number): Matrix {
   const M = new Matrix(n, n);
-  for (let i = 0; i < n; i++) for (let j = 0; j < n; j++) M.set(i, j, N[i * n + j]);
+  for (let i = 0; i < n; i++) {
+    M.set(i, i, N[i * n + i]);
+    for (let j = 0; j < i; j++) {
+      const v = 0.5 * (N[i * n + j] + N[j * n + i]);
+      M.set(i, j, v);
+      M.set(j, i, v);
+    }
+  }
   return M;
 }
 
@@ -25,6 +33,19 @@ export function solveSymmetric(N: Float64Array, b: Float64Array, n: number): Flo
   const out = new Float64Array(n);
   for (let i = 0; i < n; i++) out[i] = X.get(i, 0);
   return out;
+}
+
+/**
+ * Selected columns of the inverse of a symmetric positive definite matrix (Cholesky solves against
+ * unit vectors; SVD pseudo-inverse when N is not positive definite). Returns cols.length columns.
+ */
+export function inverseColumns(N: Float64Array, n: number, cols: readonly number[]): Matrix {
+  const M = toMatrix(N, n);
+  const E = Matrix.zeros(n, cols.length);
+  cols.forEach((c, j) => E.set(c, j, 1));
+  const chol = new CholeskyDecomposition(M);
+  if (chol.isPositiveDefinite()) return chol.solve(E);
+  return new SingularValueDecomposition(M).inverse().mmul(E);
 }
 
 /** Inverse of a symmetric positive definite matrix (SVD pseudo-inverse when it is not). */
@@ -70,6 +91,18 @@ export interface RadialConversion {
  * 1 + k1 t + ... + kn t^n by least squares on 0 <= r <= 1.
  */
 export function logRadialToPolynomial(g: readonly number[], terms: number): RadialConversion {
+  return logCurveToPolynomial((t) => {
+    let G = 0;
+    for (let i = g.length - 1; i >= 0; i--) G = (G + g[i]) * t;
+    return G;
+  }, terms);
+}
+
+/**
+ * Converts any log-domain radial curve G(t) (G(0) = 0, t = r^2) into 1 + k1 t + ... + kn t^n, least
+ * squares in relative error on 0 <= r <= 1.
+ */
+export function logCurveToPolynomial(G: (t: number) => number, terms: number): RadialConversion {
   const samples = 401;
   const A = new Matrix(samples, terms);
   const y = new Matrix(samples, 1);
@@ -79,9 +112,7 @@ export function logRadialToPolynomial(g: readonly number[], terms: number): Radi
     const r = s / (samples - 1);
     const t = r * r;
     ts[s] = t;
-    let G = 0;
-    for (let i = g.length - 1; i >= 0; i--) G = (G + g[i]) * t;
-    const T = Math.exp(G);
+    const T = Math.exp(G(t));
     target[s] = T;
     // relative weighting: divide each row by T so the fit minimises the relative error
     let p = t;
