@@ -112,7 +112,12 @@ async function readHeader(buf: Buffer, name: string, maxPixels: number): Promise
   try {
     meta = await sharp(buf, { limitInputPixels: false }).metadata();
   } catch (e) {
-    throw new EvenfieldError('unreadable', `damaged ${formatName(sniffed)} header: ${describeDecodeFailure(sniffed, (e as Error).message)}`, name);
+    const msg = (e as Error).message;
+    if (/unsupported|not built|no decoder|compression format|not (been )?enabled/i.test(msg)) {
+      const first = (msg.split('\n')[0] ?? '').trim();
+      throw new EvenfieldError('unreadable', `${formatName(sniffed)} variant not supported by the decoder (${first})`, name);
+    }
+    throw new EvenfieldError('unreadable', `damaged ${formatName(sniffed)} header: ${describeDecodeFailure(sniffed, msg)}`, name);
   }
   const format = String(meta.format);
   if (!ACCEPTED_FORMATS.has(format)) {

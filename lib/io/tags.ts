@@ -159,7 +159,10 @@ function classifyCurve(fn: (x: number) => number): CurveKind {
 }
 
 // Bradford cone-response matrix and the ICC PCS white (D50 as encoded in ICC.1:2010, 0.9642, 1, 0.8249),
-// used to adapt the sRGB primaries to D50 for comparison with a profile's colorant tags.
+// used to adapt the sRGB primaries to D50 for comparison with a profile's colorant tags. Values from
+// memory (not re-read from the ICC specification); they only feed a 0.01 xy tolerance check that
+// decides whether to warn, and the test compares the result with the colorants of sRGB profiles.
+// Profiles adapted to D50 by another method than Bradford differ slightly; not measured here.
 const BRADFORD = [0.8951, 0.2664, -0.1614, -0.7502, 1.7135, 0.0367, 0.0389, -0.0685, 1.0296];
 const PCS_D50 = [0.9642, 1, 0.8249];
 
