@@ -28,6 +28,9 @@ import type {
 import type { PhotoArtifacts as ReportArtifacts, ReportThumbnail } from '../report/types.js';
 import { checkPanelQuality, nearWhiteMask, type QualityLimits, DEFAULT_QUALITY_LIMITS } from './quality.js';
 
+/** default smallest mura feature, mm (the mura analysis's own default; see lib/mura/options.ts) */
+const DEFAULT_MIN_FEATURE_MM = 3;
+
 export type FalloffChoice =
   | { kind: 'none' }
   | { kind: 'profile'; profile: FalloffProfile; source: string }
@@ -220,7 +223,8 @@ export async function measurePhoto(file: string, opts: MeasureOptions): Promise<
   } catch (e) {
     result.status = 'error';
     if (isEvenfieldError(e)) {
-      result.error = e.message;
+      // stages below the pipeline (geometry, measure) raise errors without the file: name it here
+      result.error = e.file ? e.message : `${file}: ${e.message}`;
       result.errorCode = e.code;
     } else {
       const msg = e instanceof Error ? e.message : String(e);
@@ -249,6 +253,11 @@ async function measureInner(file: string, opts: MeasureOptions, result: PhotoRes
   result.decode = decoded.info;
   result.exposure = decoded.exposure;
   result.exposureStats = decoded.stats;
+  result.warnings.push(...decoded.warnings);
+  const orientation = decoded.orientation ?? 1;
+  if (orientation === 2 || orientation === 4 || orientation === 5 || orientation === 7) {
+    result.warnings.push(`EXIF orientation ${orientation} is a mirrored view: corners are ordered as the stored pixels show the panel`);
+  }
   const img = decoded.image;
   // camera levels before any correction, for the exposure gates
   const rawLum = luminancePlane(img);
@@ -297,7 +306,6 @@ async function measureInner(file: string, opts: MeasureOptions, result: PhotoRes
   let cornerStrength = 0;
   let geometrySource: GeometryRecord['cornersSource'];
   let edgeResidual: number | null = null;
-  let edgeWidthPx: number | null = null;
   if (opts.corners) {
     cornersWork = opts.corners.map((p) => toWork(p, scale)) as Corners;
     geometrySource = 'manual';
@@ -312,11 +320,10 @@ async function measureInner(file: string, opts: MeasureOptions, result: PhotoRes
     const shared = opts.shared;
     const sharedFits = shared !== null && shared.imageWidth === decoded.info.width && shared.imageHeight === decoded.info.height;
     if (found && (!sharedFits || found.strength >= shared!.strength * 0.8)) {
-      cornersWork = found.corners;
+      cornersWork = orientCorners(found.corners, orientation);
       cornerStrength = found.strength;
       geometrySource = 'auto';
       edgeResidual = found.edgeResidualPx * scale;
-      edgeWidthPx = found.edgeWidthPx * scale;
     } else if (sharedFits) {
       cornersWork = shared!.corners.map((p) => toWork(p, scale)) as Corners;
       geometrySource = 'shared';
@@ -336,21 +343,19 @@ async function measureInner(file: string, opts: MeasureOptions, result: PhotoRes
   const cornersFull = cornersWork.map((p) => toFull(p, scale)) as Corners;
   result.corners = cornersFull.map((p) => [round3(p[0]), round3(p[1])]) as Corners;
 
-  // 4. quality gates that need the outline
-  const quality = checkPanelQuality(file, { rawLum, clipMask, corners: cornersWork, edgeWidthPx, scale }, opts.quality);
-  result.warnings.push(...quality.warnings);
-
-  // 5. rectify
+  // 4. pose and size (the quality gates need the viewing angle and the panel's size)
   const known = opts.panelSizeMm !== null;
   let widthMm: number;
   let heightMm: number;
   const fpx = focalPxOf(decoded, scale, null);
   let tiltDeg: number | null = null;
+  let viewAngleMaxDeg: number | null = null;
   let poseAspect: number | null = null;
   if (fpx !== null) {
     try {
       const pose = estimatePose(cornersWork, fpx, (img.width - 1) / 2, (img.height - 1) / 2);
       tiltDeg = pose.tiltDeg;
+      viewAngleMaxDeg = pose.viewAngleMaxDeg;
       poseAspect = pose.aspect;
     } catch {
       tiltDeg = null;
@@ -371,6 +376,27 @@ async function measureInner(file: string, opts: MeasureOptions, result: PhotoRes
   const pxPerMm = Math.min(opts.mapPxPerMm, camPxPerMm);
   const mapW = Math.max(8, Math.round(widthMm * pxPerMm));
   const mapH = Math.max(8, Math.round(heightMm * pxPerMm));
+
+  // 5. quality gates that need the outline, the pose and the map's resolution
+  const quality = checkPanelQuality(
+    file,
+    {
+      rawLum,
+      clipMask,
+      image: img,
+      corners: cornersWork,
+      scale,
+      pattern: opts.pattern,
+      panelSizeMm: { width: widthMm, height: heightMm },
+      minFeatureMm: opts.muraOptions.minFeatureMm ?? DEFAULT_MIN_FEATURE_MM,
+      mapFootprintPx: quadWidthPx(cornersWork) / mapW,
+      viewAngleMaxDeg,
+    },
+    opts.quality,
+  );
+  result.warnings.push(...quality.warnings);
+
+  // 6. rectify
   const rect = rectifyRgb(img, cornersWork, mapW, mapH);
   const map = rgbToXyzMap(rect.rgb, rect.valid, widthMm, heightMm, mapW / widthMm, known);
   const geometry: GeometryRecord = {
@@ -384,7 +410,7 @@ async function measureInner(file: string, opts: MeasureOptions, result: PhotoRes
   };
   result.geometry = geometry;
 
-  // 6. grid
+  // 7. grid
   let points;
   try {
     points = measureGrid(map, opts.grid);
@@ -400,7 +426,7 @@ async function measureInner(file: string, opts: MeasureOptions, result: PhotoRes
   };
   result.uniformity = uniformityFigures(points);
 
-  // 7. mura
+  // 8. mura
   let contrastMap: Plane | null = null;
   if (opts.mura) {
     const mura = analyseMura(map, { ...opts.muraOptions, pattern: opts.pattern });
@@ -445,6 +471,16 @@ function downsamplePlane(p: Plane, maxWidth: number): Plane {
       out[y * w + x] = n > 0 ? s / n : NaN;
     }
   return { width: w, height: h, data: out };
+}
+
+/**
+ * Pixels stay in sensor orientation (the falloff belongs to the sensor), but the panel's top-left is
+ * the viewer's: re-order auto-found corners by the EXIF orientation (1 none, 3 rotate 180°, 6 rotate
+ * 90° clockwise to display, 8 rotate 90° counter-clockwise to display).
+ */
+export function orientCorners(c: Corners, orientation: number): Corners {
+  const shift = orientation === 6 ? 3 : orientation === 8 ? 1 : orientation === 3 ? 2 : 0;
+  return [0, 1, 2, 3].map((i) => c[(i + shift) % 4]) as Corners;
 }
 
 function round3(x: number): number {
