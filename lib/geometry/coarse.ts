@@ -324,21 +324,26 @@ function outlineContrast(mask: Uint8Array, img: CoarseImage, bbox: [number, numb
   for (let by = 0; by < bh; by++) {
     for (let bx = 0; bx < bw; bx++) kind[by * bw + bx] = mask[(by + y0) * w + (bx + x0)];
   }
-  const relax = (k: number, me: number, xx: number, yy: number, d: number): number => {
-    if (xx < 0 || yy < 0 || xx >= bw || yy >= bh) return d;
-    const kk = yy * bw + xx;
-    const dn = kind[kk] !== me ? 1 : dist[kk] + 1;
-    return dn < d ? dn : d;
-  };
   for (let by = 0; by < bh; by++) {
     for (let bx = 0; bx < bw; bx++) {
       const k = by * bw + bx;
       const me = kind[k];
       let d = cap;
-      d = relax(k, me, bx - 1, by, d);
-      d = relax(k, me, bx - 1, by - 1, d);
-      d = relax(k, me, bx, by - 1, d);
-      d = relax(k, me, bx + 1, by - 1, d);
+      // neighbours already visited: left, up-left, up, up-right
+      if (bx > 0) {
+        const kk = k - 1;
+        const dn = kind[kk] !== me ? 1 : dist[kk] + 1;
+        if (dn < d) d = dn;
+      }
+      if (by > 0) {
+        for (let dx = -1; dx <= 1; dx++) {
+          const xx = bx + dx;
+          if (xx < 0 || xx >= bw) continue;
+          const kk = k - bw + dx;
+          const dn = kind[kk] !== me ? 1 : dist[kk] + 1;
+          if (dn < d) d = dn;
+        }
+      }
       dist[k] = d;
     }
   }
@@ -347,10 +352,21 @@ function outlineContrast(mask: Uint8Array, img: CoarseImage, bbox: [number, numb
       const k = by * bw + bx;
       const me = kind[k];
       let d = dist[k];
-      d = relax(k, me, bx + 1, by, d);
-      d = relax(k, me, bx + 1, by + 1, d);
-      d = relax(k, me, bx, by + 1, d);
-      d = relax(k, me, bx - 1, by + 1, d);
+      // neighbours visited in this pass: right, down-right, down, down-left
+      if (bx < bw - 1) {
+        const kk = k + 1;
+        const dn = kind[kk] !== me ? 1 : dist[kk] + 1;
+        if (dn < d) d = dn;
+      }
+      if (by < bh - 1) {
+        for (let dx = -1; dx <= 1; dx++) {
+          const xx = bx + dx;
+          if (xx < 0 || xx >= bw) continue;
+          const kk = k + bw + dx;
+          const dn = kind[kk] !== me ? 1 : dist[kk] + 1;
+          if (dn < d) d = dn;
+        }
+      }
       dist[k] = d;
     }
   }
@@ -439,8 +455,8 @@ function median(v: Float64Array): number {
  * max(1, 3 * 1.4826 * MAD) of it.
  */
 function robustAxisLine(s: number[], t: number[]): { a: number; b: number } {
-  // Thin to at most 240 points: the repeated median is O(n^2).
-  const step = Math.max(1, Math.ceil(s.length / 240));
+  // Thin to at most 160 points: the repeated median is O(n^2).
+  const step = Math.max(1, Math.ceil(s.length / 160));
   const ss: number[] = [];
   const tt: number[] = [];
   for (let i = 0; i < s.length; i += step) {

@@ -25,6 +25,8 @@ export interface EdgeOptions {
   minStepSnr: number;
   /** A profile is dropped if its log contrast is below this fraction of the edge's median log contrast. */
   glareContrastFraction: number;
+  /** Largest level gradient across an edge, as a fraction of the level per pixel (steeper is clamped). */
+  maxLevelSlope: number;
 }
 
 export interface ProfileResult {
@@ -38,6 +40,8 @@ export interface ProfileResult {
   /** rms residual of the level fits (noise of one averaged sample) */
   noise: number;
   ok: boolean;
+  /** the profile ran off the image */
+  offFrame: boolean;
 }
 
 export interface EdgeFit {
@@ -48,7 +52,7 @@ export interface EdgeFit {
   profiles: ProfileResult[];
   /** IRLS weights of the profiles (0 = rejected) */
   weights: Float64Array;
-  /** rms perpendicular distance of the weighted-in edge points to the line */
+  /** rms perpendicular distance of the edge points kept in the fit (non-zero weight) to the line */
   residualRms: number;
   /** number of points with non-zero weight */
   inliers: number;
@@ -56,6 +60,8 @@ export interface EdgeFit {
   contrastRatio: number;
   /** median step / noise over the inliers */
   snr: number;
+  /** number of profiles that ran off the image */
+  offFrame: number;
 }
 
 /** Bilinear sample; NaN outside the span of pixel centres. */
@@ -78,8 +84,14 @@ function bilinear(p: Plane, x: number, y: number): number {
   return (a * (1 - fx) + b * fx) * (1 - fy) + (c * (1 - fx) + d * fx) * fy;
 }
 
-/** Least-squares straight line through (d[i], v[i]) for i in [i0, i1); returns [value at 0, slope, rms]. */
-function fitLevel(d: Float64Array, v: Float64Array, i0: number, i1: number): [number, number, number] {
+function windowMean(v: Float64Array, i0: number, i1: number): number {
+  let s = 0;
+  for (let i = i0; i < i1; i++) s += v[i];
+  return s / (i1 - i0);
+}
+
+/** Least-squares slope of v against d over samples [i0, i1). */
+function windowSlope(d: Float64Array, v: Float64Array, i0: number, i1: number): number {
   const n = i1 - i0;
   let sd = 0;
   let sv = 0;
@@ -95,86 +107,128 @@ function fitLevel(d: Float64Array, v: Float64Array, i0: number, i1: number): [nu
     sdd += (d[i] - md) * (d[i] - md);
     sdv += (d[i] - md) * (v[i] - mv);
   }
-  const slope = sdd > 0 ? sdv / sdd : 0;
-  const a = mv - slope * md;
+  return sdd > 0 ? sdv / sdd : 0;
+}
+
+/**
+ * Level line with a given slope through samples [i0, i1): the intercept (value at d = 0) is the
+ * interquartile mean of v - slope d, which shrugs off a stray structure (the far edge of a narrow
+ * bezel, a speck) covering under a quarter of the window. Returns [intercept, rms residual].
+ */
+function levelWithSlope(
+  d: Float64Array,
+  v: Float64Array,
+  i0: number,
+  i1: number,
+  slope: number,
+  tmp: Float64Array,
+): [number, number] {
+  const n = i1 - i0;
+  for (let i = 0; i < n; i++) tmp[i] = v[i0 + i] - slope * d[i0 + i];
+  const sorted = tmp.subarray(0, n).sort();
+  const lo = Math.floor(n / 4);
+  const hi = n - lo;
+  let s = 0;
+  for (let i = lo; i < hi; i++) s += sorted[i];
+  const a = s / (hi - lo);
   let ss = 0;
-  for (let i = i0; i < i1; i++) {
-    const r = v[i] - a - slope * d[i];
-    ss += r * r;
-  }
-  return [a, slope, Math.sqrt(ss / Math.max(1, n - 2))];
+  for (let i = 0; i < n; i++) ss += (sorted[i] - a) * (sorted[i] - a);
+  return [a, Math.sqrt(ss / Math.max(1, n - 1))];
 }
 
 /** Scratch buffers reused across profiles (no per-sample allocation). */
 export class ProfileScratch {
   d: Float64Array;
   v: Float64Array;
+  tmp: Float64Array;
   constructor(n: number) {
     this.d = new Float64Array(n);
     this.v = new Float64Array(n);
+    this.tmp = new Float64Array(n);
   }
   ensure(n: number): void {
     if (this.d.length < n) {
       this.d = new Float64Array(n);
       this.v = new Float64Array(n);
+      this.tmp = new Float64Array(n);
     }
   }
 }
 
 const STEP = 0.5; // sample spacing along the normal, pixels
 
+interface ProfileGeometry {
+  nHalf: number;
+  gi: number;
+  n: number;
+  inEnd: number;
+  outStart: number;
+}
+
+function profileGeometry(g: number, R: number): ProfileGeometry {
+  const nHalf = Math.round(R / STEP);
+  const gi = Math.min(nHalf - 3, Math.round(g / STEP));
+  const n = 2 * nHalf + 1;
+  return { nHalf, gi, n, inEnd: nHalf - gi + 1, outStart: nHalf + gi };
+}
+
 /**
- * Measure one profile. g: half-width of the central (integration) window; R: half-length of the whole
- * profile (R > g); the level windows are [-R, -g] and [g, R].
+ * Sample one profile into out[0..n): the mean of (2 taps + 1) bilinear samples along the edge at each
+ * normal offset. Returns false if any sample falls outside the image.
  */
-export function measureProfile(
+function sampleProfile(
   lum: Plane,
   base: Point,
   normal: Point,
   dir: Point,
-  g: number,
-  R: number,
-  opts: EdgeOptions,
-  scratch: ProfileScratch,
-): ProfileResult {
-  const nHalf = Math.round(R / STEP);
-  const gi = Math.round(g / STEP);
-  const n = 2 * nHalf + 1;
-  scratch.ensure(n);
-  const { d, v } = scratch;
-  const taps = Math.max(0, Math.round(opts.profileHalfWidthPx));
-  const bad: ProfileResult = { base, offset: 0, inside: 0, outside: 0, noise: 0, ok: false };
-  for (let i = 0; i < n; i++) {
-    const di = (i - nHalf) * STEP;
-    d[i] = di;
+  geo: ProfileGeometry,
+  taps: number,
+  out: Float64Array,
+  offset: number,
+): boolean {
+  for (let i = 0; i < geo.n; i++) {
+    const di = (i - geo.nHalf) * STEP;
     const px = base[0] + di * normal[0];
     const py = base[1] + di * normal[1];
     let s = 0;
     for (let t = -taps; t <= taps; t++) {
       const val = bilinear(lum, px + t * dir[0], py + t * dir[1]);
-      if (Number.isNaN(val)) return bad;
+      if (Number.isNaN(val)) return false;
       s += val;
     }
-    v[i] = s / (2 * taps + 1);
+    out[offset + i] = s / (2 * taps + 1);
   }
-  const inEnd = nHalf - gi + 1; // samples [0, inEnd) have d <= -g
-  const outStart = nHalf + gi; // samples [outStart, n) have d >= g
-  if (inEnd < 3 || n - outStart < 3) return bad;
-  const [ai, bi, ri] = fitLevel(d, v, 0, inEnd);
-  const [ao, bo, ro] = fitLevel(d, v, outStart, n);
+  return true;
+}
+
+/**
+ * Edge position of one sampled profile (values v at offsets d), given the slopes of the inside and
+ * outside levels. Fills in a ProfileResult.
+ */
+function locateEdge(
+  base: Point,
+  d: Float64Array,
+  v: Float64Array,
+  geo: ProfileGeometry,
+  slopeIn: number,
+  slopeOut: number,
+  opts: EdgeOptions,
+  tmp: Float64Array,
+): ProfileResult {
+  const { n, inEnd, outStart, gi } = geo;
+  const [ai, ri] = levelWithSlope(d, v, 0, inEnd, slopeIn, tmp);
+  const [ao, ro] = levelWithSlope(d, v, outStart, n, slopeOut, tmp);
   const noise = Math.sqrt(0.5 * (ri * ri + ro * ro));
-  const inside = ai;
-  const outside = ao;
-  const step = inside - outside;
-  const result: ProfileResult = { base, offset: 0, inside, outside, noise, ok: false };
+  const result: ProfileResult = { base, offset: 0, inside: ai, outside: ao, noise, ok: false, offFrame: false };
+  const step = ai - ao;
   if (!(step > 0)) return result;
-  if (outside > 0 && inside < opts.minEdgeRatio * outside) return result;
+  if (ao > 0 && ai < opts.minEdgeRatio * ao) return result;
   if (step < opts.minStepSnr * noise) return result;
   // Area method over [-g, g] (trapezoid rule on the normalised profile).
   let area = 0;
   for (let i = inEnd - 1; i <= outStart; i++) {
-    const li = ai + bi * d[i];
-    const lo = ao + bo * d[i];
+    const li = ai + slopeIn * d[i];
+    const lo = ao + slopeOut * d[i];
     const den = li - lo;
     if (!(den > 0)) return result;
     const q = (v[i] - lo) / den;
@@ -186,6 +240,75 @@ export function measureProfile(
   result.offset = offset;
   result.ok = true;
   return result;
+}
+
+/**
+ * Robust quadratic fit y ≈ c0 + c1 t + c2 t^2 over the points with use[k] set (least squares, then again
+ * without points beyond 3 robust sigmas), evaluated at every t. Falls back to the median with < 6 points.
+ */
+function smoothAlongEdge(t: Float64Array, y: Float64Array, use: Uint8Array): Float64Array {
+  const n = t.length;
+  const out = new Float64Array(n);
+  const idx: number[] = [];
+  for (let k = 0; k < n; k++) if (use[k]) idx.push(k);
+  if (idx.length === 0) return out;
+  if (idx.length < 6) {
+    out.fill(medianOf(idx.map((k) => y[k])));
+    return out;
+  }
+  let keep = idx;
+  let coef = [0, 0, 0];
+  for (let round = 0; round < 2; round++) {
+    // normal equations for 3 unknowns (t in 0..1, well conditioned)
+    const M = [0, 0, 0, 0, 0, 0, 0, 0, 0];
+    const b = [0, 0, 0];
+    for (const k of keep) {
+      const p = [1, t[k], t[k] * t[k]];
+      for (let i = 0; i < 3; i++) {
+        b[i] += p[i] * y[k];
+        for (let j = 0; j < 3; j++) M[i * 3 + j] += p[i] * p[j];
+      }
+    }
+    const sol = solve3(M, b);
+    if (!sol) {
+      out.fill(medianOf(keep.map((k) => y[k])));
+      return out;
+    }
+    coef = sol;
+    const res = idx.map((k) => Math.abs(y[k] - coef[0] - coef[1] * t[k] - coef[2] * t[k] * t[k]));
+    const tol = 3 * 1.4826 * medianOf(res);
+    const next = idx.filter((_, i) => res[i] <= tol);
+    if (next.length < 6) break;
+    keep = next;
+  }
+  for (let k = 0; k < n; k++) out[k] = coef[0] + coef[1] * t[k] + coef[2] * t[k] * t[k];
+  // Shrink toward zero when the fitted curve is not clearly above its own noise (James-Stein style):
+  // on a dim, noisy edge an unneeded slope only adds error, on a bright edge the slope is kept.
+  const res = keep.map((k) => y[k] - out[k]);
+  let ss = 0;
+  for (const r of res) ss += r * r;
+  const se2 = ((ss / Math.max(1, keep.length - 3)) * 3) / keep.length;
+  let m2 = 0;
+  for (const k of keep) m2 += out[k] * out[k];
+  m2 /= keep.length;
+  const shrink = m2 > 0 ? m2 / (m2 + se2) : 0;
+  for (let k = 0; k < n; k++) out[k] *= shrink;
+  return out;
+}
+
+/** Solve a 3x3 system (row-major) by Cramer's rule; null if singular. */
+function solve3(M: number[], b: number[]): number[] | null {
+  const det = (m: number[]) =>
+    m[0] * (m[4] * m[8] - m[5] * m[7]) - m[1] * (m[3] * m[8] - m[5] * m[6]) + m[2] * (m[3] * m[7] - m[4] * m[6]);
+  const D = det(M);
+  if (!(Math.abs(D) > 1e-300)) return null;
+  const out: number[] = [];
+  for (let c = 0; c < 3; c++) {
+    const m = [...M];
+    for (let r = 0; r < 3; r++) m[r * 3 + c] = b[r];
+    out.push(det(m) / D);
+  }
+  return out;
 }
 
 function medianOf(values: number[]): number {
@@ -249,11 +372,48 @@ export function fitEdge(
   // Profiles at least (2 taps + 1) apart so their along-edge averages do not overlap.
   const minSpacing = 2 * Math.max(0, Math.round(opts.profileHalfWidthPx)) + 1;
   const count = Math.max(8, Math.min(opts.maxProfilesPerEdge, Math.floor(usable / minSpacing)));
-  const profiles: ProfileResult[] = [];
+  const geo = profileGeometry(g, R);
+  const taps = Math.max(0, Math.round(opts.profileHalfWidthPx));
+  scratch.ensure(geo.n);
+  const { d, tmp } = scratch;
+  for (let i = 0; i < geo.n; i++) d[i] = (i - geo.nHalf) * STEP;
+  const values = new Float64Array(count * geo.n);
+  const bases: Point[] = [];
+  const inFrame = new Uint8Array(count);
+  const rawIn = new Float64Array(count);
+  const rawOut = new Float64Array(count);
   for (let k = 0; k < count; k++) {
     const t = opts.cornerMargin + ((1 - 2 * opts.cornerMargin) * (k + 0.5)) / count;
     const base: Point = [a[0] + t * dx, a[1] + t * dy];
-    profiles.push(measureProfile(lum, base, normal, dir, g, R, opts, scratch));
+    bases.push(base);
+    if (!sampleProfile(lum, base, normal, dir, geo, taps, values, k * geo.n)) continue;
+    inFrame[k] = 1;
+    const v = values.subarray(k * geo.n, (k + 1) * geo.n);
+    // Clamp each slope to a plausible relative gradient: anything steeper is not falloff or veiling
+    // glare but structure in the window (the far edge of a narrow bezel, a bright background).
+    const capIn = opts.maxLevelSlope * Math.abs(windowMean(v, 0, geo.inEnd));
+    const capOut = opts.maxLevelSlope * Math.abs(windowMean(v, geo.outStart, geo.n));
+    rawIn[k] = Math.max(-capIn, Math.min(capIn, windowSlope(d, v, 0, geo.inEnd)));
+    rawOut[k] = Math.max(-capOut, Math.min(capOut, windowSlope(d, v, geo.outStart, geo.n)));
+  }
+  // Level slopes across the edge (falloff, smooth glare) change slowly along it - for a radial quadratic
+  // falloff they are constant along a straight edge - while one profile's slope, extrapolated from its
+  // short window to the edge, is noisy and would add its noise to every edge point. So model each
+  // slope as a robust quadratic in the position t along the edge.
+  const ts = new Float64Array(count);
+  for (let k = 0; k < count; k++) ts[k] = (k + 0.5) / count;
+  const slopeIn = smoothAlongEdge(ts, rawIn, inFrame);
+  const slopeOut = smoothAlongEdge(ts, rawOut, inFrame);
+  const profiles: ProfileResult[] = [];
+  let offFrame = 0;
+  for (let k = 0; k < count; k++) {
+    if (!inFrame[k]) {
+      offFrame++;
+      profiles.push({ base: bases[k], offset: 0, inside: 0, outside: 0, noise: 0, ok: false, offFrame: true });
+      continue;
+    }
+    const v = values.subarray(k * geo.n, (k + 1) * geo.n);
+    profiles.push(locateEdge(bases[k], d, v, geo, slopeIn[k], slopeOut[k], opts, tmp));
   }
   // Glare and reflections lower the local contrast ratio (they add light to both sides): drop profiles
   // whose log contrast falls well below the edge's median.
@@ -283,25 +443,44 @@ export function fitEdge(
   for (let k = 0; k < n; k++) if (w[k] > 0 && Math.abs(profiles[k].offset - medOff) > startTol) w[k] = 0;
   const ok = new Uint8Array(n);
   for (let k = 0; k < n; k++) ok[k] = w[k] > 0 ? 1 : 0;
+  // Precision weights: an edge point's scatter grows as noise / step (falloff dims the corners, glare
+  // lowers the step), so weight by (step / noise)^2, capped at 25x the median so clean synthetic
+  // profiles cannot take over.
+  const prec = new Float64Array(n);
+  const precList: number[] = [];
+  for (let k = 0; k < n; k++) {
+    if (!ok[k]) continue;
+    const p = profiles[k];
+    const snr = (p.inside - p.outside) / Math.max(p.noise, 1e-9 * Math.abs(p.inside));
+    prec[k] = snr * snr;
+    precList.push(prec[k]);
+  }
+  const precMed = medianOf(precList);
+  const precCap = 25 * precMed;
+  for (let k = 0; k < n; k++) prec[k] = Math.min(prec[k], precCap);
+  for (let k = 0; k < n; k++) w[k] = ok[k] ? prec[k] : 0;
   let line = tlsLine(px, py, w);
   if (!line) return null;
   const res = new Float64Array(n);
+  const z = new Float64Array(n);
   for (let iter = 0; iter < 12; iter++) {
-    const absRes: number[] = [];
+    // residuals standardised to the median profile's precision
+    const absZ: number[] = [];
     for (let k = 0; k < n; k++) {
       res[k] = line.nx * px[k] + line.ny * py[k] - line.c;
-      if (ok[k]) absRes.push(Math.abs(res[k]));
+      z[k] = res[k] * Math.sqrt(prec[k] / precMed);
+      if (ok[k]) absZ.push(Math.abs(z[k]));
     }
     // Scale floor 0.02 px keeps noiseless synthetic data from collapsing the weights.
-    const scale = Math.max(0.02, 1.4826 * medianOf(absRes));
+    const scale = Math.max(0.02, 1.4826 * medianOf(absZ));
     const c = 4.685 * scale;
     for (let k = 0; k < n; k++) {
       if (!ok[k]) {
         w[k] = 0;
         continue;
       }
-      const u = res[k] / c;
-      w[k] = Math.abs(u) < 1 ? (1 - u * u) * (1 - u * u) : 0;
+      const u = z[k] / c;
+      w[k] = Math.abs(u) < 1 ? prec[k] * (1 - u * u) * (1 - u * u) : 0;
     }
     const next = tlsLine(px, py, w);
     if (!next) return null;
@@ -310,15 +489,13 @@ export function fitEdge(
   // Orient the line normal outward.
   if (line.nx * normal[0] + line.ny * normal[1] < 0) line = { nx: -line.nx, ny: -line.ny, c: -line.c };
   let ss = 0;
-  let sw = 0;
   let inliers = 0;
   const ratios: number[] = [];
   const snrs: number[] = [];
   for (let k = 0; k < n; k++) {
     if (w[k] <= 0) continue;
     const r = line.nx * px[k] + line.ny * py[k] - line.c;
-    ss += w[k] * r * r;
-    sw += w[k];
+    ss += r * r;
     inliers++;
     const p = profiles[k];
     ratios.push(p.inside / Math.max(p.outside, p.inside * 1e-4));
@@ -331,10 +508,11 @@ export function fitEdge(
     direction: [-line.ny, line.nx],
     profiles,
     weights: w,
-    residualRms: Math.sqrt(ss / sw),
+    residualRms: Math.sqrt(ss / inliers),
     inliers,
     contrastRatio: medianOf(ratios),
     snr: medianOf(snrs),
+    offFrame,
   };
 }
 

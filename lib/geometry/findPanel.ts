@@ -34,6 +34,12 @@ export interface FindPanelOptions {
   minStepSnr?: number;
   /** Drop profiles whose log contrast is below this fraction of the edge's median (glare). Default 0.5. */
   glareContrastFraction?: number;
+  /**
+   * Largest level gradient across an edge that is modelled (falloff, veiling glare), as a fraction of the
+   * level per pixel of the input plane. Steeper gradients are structure, not shading. Default 0.01
+   * (a 60 % corner falloff on a 400-pixel-wide image stays under about 0.006).
+   */
+  maxLevelSlope?: number;
   /** Each edge needs at least this fraction of its profiles in the final fit. Default 0.25. */
   minInlierFraction?: number;
   /** Edge signal-to-noise at which an edge's contribution to `strength` is one half. Default 20. */
@@ -79,6 +85,7 @@ function resolve(o: FindPanelOptions): Resolved {
     minEdgeRatio: o.minEdgeRatio ?? 1.3,
     minStepSnr: o.minStepSnr ?? 3,
     glareContrastFraction: o.glareContrastFraction ?? 0.5,
+    maxLevelSlope: o.maxLevelSlope ?? 0.01,
     minInlierFraction: o.minInlierFraction ?? 0.25,
     strengthHalfSnr: o.strengthHalfSnr ?? 20,
     minCornerAngleDeg: o.minCornerAngleDeg ?? 40,
@@ -129,8 +136,16 @@ function refineOnce(
       minEdgeRatio: o.minEdgeRatio,
       minStepSnr: o.minStepSnr,
       glareContrastFraction: o.glareContrastFraction,
+      maxLevelSlope: o.maxLevelSlope,
     };
     const fit = fitEdge(lum, a, b, g, R, eo, scratch);
+    if (!fit || fit.inliers / fit.profiles.length < o.minInlierFraction) {
+      // An edge whose profiles run off the image lies along or beyond the frame border.
+      const off = fit ? fit.offFrame / fit.profiles.length : offFrameFraction(lum, a, b, R);
+      if (off > 0.3) {
+        throw new EvenfieldError('partly-outside', `the panel's ${EDGE_NAMES[e]} edge runs off the frame`);
+      }
+    }
     if (!fit) throw new EvenfieldError('no-panel', `the panel's ${EDGE_NAMES[e]} edge could not be traced`);
     const frac = fit.inliers / fit.profiles.length;
     if (frac < o.minInlierFraction) {
@@ -142,6 +157,32 @@ function refineOnce(
     fits.push(fit);
   }
   return fits;
+}
+
+/** Fraction of the side a-b (inside the corner margins) whose profiles of half-length R leave the image. */
+function offFrameFraction(lum: Plane, a: Point, b: Point, R: number): number {
+  const dx = b[0] - a[0];
+  const dy = b[1] - a[1];
+  const len = Math.hypot(dx, dy);
+  if (!(len > 0)) return 1;
+  const nx = dy / len;
+  const ny = -dx / len;
+  let off = 0;
+  const N = 32;
+  for (let k = 0; k < N; k++) {
+    const t = (k + 0.5) / N;
+    const x = a[0] + t * dx;
+    const y = a[1] + t * dy;
+    for (const s of [-R, R]) {
+      const xx = x + s * nx;
+      const yy = y + s * ny;
+      if (xx < 0 || yy < 0 || xx > lum.width - 1 || yy > lum.height - 1) {
+        off++;
+        break;
+      }
+    }
+  }
+  return off / N;
 }
 
 function cornersFromFits(fits: EdgeFit[]): Corners {
@@ -158,18 +199,24 @@ function cornersFromFits(fits: EdgeFit[]): Corners {
 function refine(lum: Plane, start: Corners, f: number, o: Resolved): Refined {
   const scratch = new ProfileScratch(256);
   // Pass 1: windows wide enough to hold the edge wherever the coarse outline put it (a few coarse pixels).
-  let g = 2.5 * f + 4;
-  let R = g + f + 4;
+  let g = 1.5 * f + 4;
+  let R = g + Math.max(4, f);
   let q = start;
   let fits = refineOnce(lum, q, g, R, o, scratch, true);
   q = cornersFromFits(fits);
   let widths = fits.map((fit) => edgeSpreadWidth(lum, fit, R, 3));
-  // Passes 2 and 3: windows sized to the measured edge width, centred on the previous lines.
+  // Passes 2 and 3: windows sized to the measured edge width, centred on the previous lines. The
+  // integration window reaches just past the blur (the 10-90 % width spans about 0.8 of a Gaussian
+  // edge's 1-99 % range), the level windows just beyond it, so a narrow bezel matters as little as possible.
   for (let pass = 0; pass < 2; pass++) {
-    checkQuadrilateral(q, lum.width, lum.height, { minCornerAngleDeg: o.minCornerAngleDeg, maxCornerAngleDeg: o.maxCornerAngleDeg, minAreaFraction: o.minAreaFraction });
+    checkQuadrilateral(q, lum.width, lum.height, {
+      minCornerAngleDeg: o.minCornerAngleDeg,
+      maxCornerAngleDeg: o.maxCornerAngleDeg,
+      minAreaFraction: o.minAreaFraction,
+    });
     const w = median(widths);
-    g = Math.max(3, 1.5 * (Number.isFinite(w) ? w : 2) + 1);
-    R = g + Math.max(4, g);
+    g = Math.max(2.5, (Number.isFinite(w) ? w : 2) + 1.5);
+    R = g + Math.max(4, 0.75 * g);
     fits = refineOnce(lum, q, g, R, o, scratch, false);
     q = cornersFromFits(fits);
   }
@@ -192,24 +239,25 @@ export function findPanel(lum: Plane, opts: FindPanelOptions = {}): PanelFind {
     minAreaFraction: o.minAreaFraction,
     minSolidity: o.minSolidity,
   }).filter((c) => c.contrast >= o.minCoarseContrast);
-  const inside = cands.filter((c) => !c.touchesBorder).sort((a, b) => b.contrast - a.contrast);
-  const touching = cands.filter((c) => c.touchesBorder).sort((a, b) => b.contrast - a.contrast);
-  const outsideMsg = 'the panel runs off the edge of the frame';
-  if (inside.length === 0) {
-    if (touching.length > 0) throw new EvenfieldError('partly-outside', outsideMsg);
+  // Try the clearest candidates first. Candidates cut by the frame border are tried too: a glare patch
+  // reaching the border can join the panel's region, and the robust outline fit ignores it; a panel that
+  // really is cut by the frame fails with 'partly-outside' (a corner or an edge off the image).
+  const order = [...cands].sort((a, b) => b.contrast - a.contrast);
+  if (order.length === 0) {
     throw new EvenfieldError('no-panel', 'no bright, roughly quadrilateral region found' + darkHint(o.pattern));
   }
-  // A clearer region cut by the frame edge, larger than anything wholly inside, means the panel is cut off.
-  const t0 = touching[0];
-  if (t0 && t0.contrast >= 0.8 * inside[0].contrast && t0.area > inside[0].area) {
-    throw new EvenfieldError('partly-outside', outsideMsg);
-  }
-
   let firstError: unknown = null;
   const tried: CoarseCandidate[] = [];
-  for (const cand of inside.slice(0, 3)) {
+  for (const cand of order) {
+    if (tried.length >= 4) break;
     // The same region found at several thresholds: skip near-duplicates.
-    if (tried.some((t) => Math.abs(t.area - cand.area) < 0.02 * cand.area && t.bbox.every((v, i) => Math.abs(v - cand.bbox[i]) <= 2))) continue;
+    if (
+      tried.some(
+        (t) => Math.abs(t.area - cand.area) < 0.02 * cand.area && t.bbox.every((v, i) => Math.abs(v - cand.bbox[i]) <= 2),
+      )
+    ) {
+      continue;
+    }
     tried.push(cand);
     try {
       const start = coarseQuad(cand, coarse);
@@ -227,8 +275,12 @@ export function findPanel(lum: Plane, opts: FindPanelOptions = {}): PanelFind {
       });
       return summarise(r, o);
     } catch (e) {
-      if (e instanceof EvenfieldError && e.code === 'partly-outside') throw e;
-      if (firstError === null) firstError = e;
+      if (!(e instanceof EvenfieldError)) throw e;
+      // A panel cut by the frame: report it, unless a larger candidate is still to be tried.
+      if (e.code === 'partly-outside' && !order.some((c) => !tried.includes(c) && c.area > cand.area)) throw e;
+      if (firstError === null || (e.code === 'partly-outside' && !(firstError instanceof EvenfieldError && firstError.code === 'partly-outside'))) {
+        firstError = e;
+      }
     }
   }
   if (firstError instanceof EvenfieldError && firstError.code === 'no-panel') {
