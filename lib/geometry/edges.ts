@@ -444,14 +444,16 @@ export function fitEdge(
   const ok = new Uint8Array(n);
   for (let k = 0; k < n; k++) ok[k] = w[k] > 0 ? 1 : 0;
   // Precision weights: an edge point's scatter grows as noise / step (falloff dims the corners, glare
-  // lowers the step), so weight by (step / noise)^2, capped at 25x the median so clean synthetic
-  // profiles cannot take over.
+  // lowers the step), so weight by (step / noise)^2. The noise has a floor of 0.2 % of the step for what
+  // the model does not capture (interpolation, residual shading), so nearly noiseless profiles do not
+  // take over; weights are also capped at 25x the median.
   const prec = new Float64Array(n);
   const precList: number[] = [];
   for (let k = 0; k < n; k++) {
     if (!ok[k]) continue;
     const p = profiles[k];
-    const snr = (p.inside - p.outside) / Math.max(p.noise, 1e-9 * Math.abs(p.inside));
+    const step = p.inside - p.outside;
+    const snr = step / Math.hypot(p.noise, 0.002 * step);
     prec[k] = snr * snr;
     precList.push(prec[k]);
   }
