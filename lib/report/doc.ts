@@ -91,16 +91,17 @@ export function setStyle(doc: Doc, s: TextStyle): void {
 
 /** Height a text block will take at the given width and style. */
 export function measure(doc: Doc, text: string, width: number, s: TextStyle = {}): number {
+  if (text === '') return 0;
   setStyle(doc, s);
   return doc.heightOfString(text, { width, lineGap: s.lineGap ?? 1 });
 }
 
-/** Draw text at (x, y) wrapped to width; returns its height. */
+/** Draw text at (x, y) wrapped to width; returns its height (the same as measure() gives). */
 export function textAt(doc: Doc, text: string, x: number, y: number, width: number, s: TextStyle = {}): number {
-  const h = measure(doc, text, width, s);
+  if (text === '') return 0;
   setStyle(doc, s);
   doc.text(text, x, y, { width, align: s.align ?? 'left', lineGap: s.lineGap ?? 1 });
-  return h;
+  return doc.y - y;
 }
 
 /** One line, cut with an ellipsis to fit width. */

@@ -47,6 +47,12 @@ export function fmtNum(x: number | null | undefined): string {
   return x.toExponential(2);
 }
 
+/** At most `digits` decimals, trailing zeros dropped: trim(4, 2) = "4", trim(0.625, 2) = "0.63". */
+export function trim(x: number | null | undefined, digits: number): string {
+  if (x === null || x === undefined || !Number.isFinite(x)) return DASH;
+  return String(Number(x.toFixed(digits)));
+}
+
 /** A limit as written in criteria: up to 6 significant figures, no trailing zeros (25, 1.5, 0.004). */
 export function fmtLimit(x: number | null | undefined): string {
   if (x === null || x === undefined || !Number.isFinite(x)) return DASH;
@@ -55,10 +61,10 @@ export function fmtLimit(x: number | null | undefined): string {
 
 export function fmtExposureTime(t: number | null): string {
   if (t === null || !(t > 0)) return DASH;
-  if (t >= 0.5) return `${fmtNum(t)} s`;
+  if (t >= 0.5) return `${trim(t, 3)} s`;
   const inv = 1 / t;
   const r = Math.round(inv);
-  return Math.abs(inv - r) / inv < 0.02 ? `1/${r} s` : `${fmtNum(t)} s`;
+  return Math.abs(inv - r) / inv < 0.02 ? `1/${r} s` : `${trim(t, 4)} s`;
 }
 
 /** UTC date-time, minute resolution: 2025-03-14 09:05 UTC */

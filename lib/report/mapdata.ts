@@ -9,14 +9,15 @@ import { niceTicks } from './plots.js';
 export function planeQuantiles(plane: Plane, qs: number[]): number[] {
   const n = plane.data.length;
   const stride = Math.max(1, Math.floor(n / 40000));
-  const vals: number[] = [];
+  const buf = new Float64Array(Math.ceil(n / stride));
+  let m = 0;
   for (let i = 0; i < n; i += stride) {
     const v = plane.data[i]!;
-    if (Number.isFinite(v)) vals.push(v);
+    if (Number.isFinite(v)) buf[m++] = v;
   }
-  if (vals.length === 0) return qs.map(() => NaN);
-  vals.sort((a, b) => a - b);
-  return qs.map((q) => vals[Math.min(vals.length - 1, Math.max(0, Math.round(q * (vals.length - 1))))]!);
+  if (m === 0) return qs.map(() => NaN);
+  const vals = buf.subarray(0, m).sort();
+  return qs.map((q) => vals[Math.min(m - 1, Math.max(0, Math.round(q * (m - 1))))]!);
 }
 
 /**

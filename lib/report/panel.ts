@@ -7,6 +7,7 @@ import { worstMargin } from '../judge/index.js';
 import { COLOUR_MAPS, type ColourMap, falseColour } from './colourmaps.js';
 import {
   type Cell,
+  type Column,
   createDoc,
   type Doc,
   drawPageFurniture,
@@ -38,6 +39,7 @@ import {
   fmtSemu,
   fmtUv,
   patternName,
+  trim,
   placeWords,
   shortHash,
   verdictWord,
@@ -426,7 +428,7 @@ function drawPattern(ctx: Ctx, p: PreparedPhoto): void {
   const figW = PAGE.right - figX;
   const rowsOfFigures = keyFigures(ctx, p);
   let photoH = 0;
-  if (p.photoJpeg) photoH = Math.min(160, (photoW * p.photoJpeg.height) / p.photoJpeg.width);
+  if (p.photoJpeg) photoH = Math.min(150, (photoW * p.photoJpeg.height) / p.photoJpeg.width);
   const figH = rowsOfFigures.length * 12.5 + 18;
   flow.ensure(Math.max(photoH + 24, figH));
   const top = flow.y;
@@ -446,12 +448,12 @@ function drawPattern(ctx: Ctx, p: PreparedPhoto): void {
   fy += textAt(doc, 'Key figures', figX, fy, figW, { font: 'Sans-Bold', size: 9 }) + 3;
   for (const [label, value, judged] of rowsOfFigures) {
     const h = Math.max(
-      measure(doc, label, figW * 0.5, { size: 7.8 }),
-      measure(doc, value, figW * 0.22, { font: 'Sans-Bold', size: 7.8 }),
+      measure(doc, label, figW * 0.55, { size: 7.8 }),
+      measure(doc, value, figW * 0.17, { font: 'Sans-Bold', size: 7.8 }),
       measure(doc, judged, figW * 0.28 - 4, { size: 7 }),
     );
-    textAt(doc, label, figX, fy, figW * 0.5, { size: 7.8 });
-    textAt(doc, value, figX + figW * 0.5, fy, figW * 0.22, { font: 'Sans-Bold', size: 7.8, align: 'right' });
+    textAt(doc, label, figX, fy, figW * 0.55, { size: 7.8 });
+    textAt(doc, value, figX + figW * 0.55, fy, figW * 0.17, { font: 'Sans-Bold', size: 7.8, align: 'right' });
     textAt(doc, judged, figX + figW * 0.72 + 4, fy + 0.6, figW * 0.28 - 4, { size: 7, colour: MUTED });
     fy += h + 3;
     doc.moveTo(figX, fy - 1.5).lineTo(PAGE.right, fy - 1.5).lineWidth(0.3).strokeColor('#dddddd').stroke();
@@ -506,11 +508,11 @@ function keyFigures(ctx: Ctx, p: PreparedPhoto): Array<[string, string, string]>
     rows.push(
       ['Luminance non-uniformity', `${fmtPct(u.nonuniformityPct)} %`, judged('nonuniformityPct')],
       ['Uniformity Lmin/Lmax', `${fmtPct(u.minOverMaxPct)} %`, judged('minOverMaxPct')],
-      ['White variation \u03b4W = Lmax/Lmin', fmtNum(u.maxOverMin), judged('maxOverMin')],
+      [ph.pattern === 'white' ? 'White variation \u03b4W (Lmax/Lmin)' : 'Ratio Lmax/Lmin', fmtNum(u.maxOverMin), judged('maxOverMin')],
       ['Largest deviation from centre', `${fmtPct(u.maxDeviationFromCentrePct)} %`, judged('maxDeviationFromCentrePct')],
       ['Coefficient of variation', `${fmtPct(u.cvPct, 2)} %`, judged('cvPct')],
       ["Max \u0394u'v' from centre", fmtUv(u.maxDuvFromCentre), judged('maxDuvFromCentre')],
-      ["Max \u0394u'v' between any two points", fmtUv(u.maxDuvAnyPair), judged('maxDuvAnyPair')],
+      ["Max \u0394u'v' between points", fmtUv(u.maxDuvAnyPair), judged('maxDuvAnyPair')],
     );
   }
   if (ph.mura) {
@@ -703,21 +705,13 @@ function drawMura(ctx: Ctx, p: PreparedPhoto): void {
         range: p.contrast.range,
         bar: ctx.bars.con,
         barLabel: 'Contrast against the fitted background, %',
-        maxH: 230,
+        maxH: 200,
         overlay: (box) => drawBlobOutlines(doc, ph.blobs, p.art, box),
         caption:
           `Local contrast against the fitted background, in the ${ctx.conMap.name} colour scale: darker than the background is dark, brighter is bright. ` +
           `${p.contrast.clipped ? 'Contrast beyond the scale is shown at the end colours. ' : ''}White = no data. Dashed outlines: blobs listed in the table below.`,
       }
     : null;
-  const introH = measure(doc, intro, PAGE.contentWidth, { size: 8 }) + 6;
-  flow.heading('Mura', 2, introH + (block ? mapBlockHeight(doc, block) : 40));
-  flow.text(intro, { size: 8, after: 6 });
-  if (block) drawMapBlock(ctx, block);
-  if (ph.blobs.length === 0) {
-    flow.text('No mura was found above the detection threshold.', { size: 9, after: 6 });
-    return;
-  }
   const rows = ph.blobs.map((b) => [
     { text: `B${b.id}`, font: 'Sans-Bold' as const },
     blobKind(b),
@@ -727,20 +721,29 @@ function drawMura(ctx: Ctx, p: PreparedPhoto): void {
     fmtContrast(b.peakContrastPct),
     { text: fmtSemu(b.semu), font: 'Sans-Bold' as const },
   ]);
-  drawTable(
-    flow,
-    [
-      { header: 'Blob', width: 34 },
-      { header: 'Kind', width: 106 },
-      { header: 'Place (from top-left of active area)', width: 128 },
-      { header: 'Size: area; width \u00d7 height', width: 112 },
-      { header: 'Contrast %', width: 46, align: 'right' },
-      { header: 'Peak contrast %', width: 45, align: 'right' },
-      { header: 'SEMU', width: PAGE.contentWidth - 471, align: 'right' },
-    ],
-    rows,
-    { size: 7.6 },
-  );
+  const columns: Column[] = [
+    { header: 'Blob', width: 34 },
+    { header: 'Kind', width: 106 },
+    { header: 'Place (from top-left of active area)', width: 128 },
+    { header: 'Size: area; width \u00d7 height', width: 112 },
+    { header: 'Contrast %', width: 46, align: 'right' },
+    { header: 'Peak contrast %', width: 45, align: 'right' },
+    { header: 'SEMU', width: PAGE.contentWidth - 471, align: 'right' },
+  ];
+  const opts = { size: 7.6, keepRows: 3 };
+  // keep the heading, the map and the start of its table together when they fit on one page
+  const introH = measure(doc, intro, PAGE.contentWidth, { size: 8 }) + 6;
+  const mapH = block ? mapBlockHeight(doc, block) : 0;
+  const tableH = rows.length > 0 ? tableHeight(doc, columns, rows, opts) + 6 : 20;
+  const together = introH + mapH + tableH;
+  flow.heading('Mura', 2, together + 40 <= PAGE.bottom - PAGE.top ? together : introH + mapH);
+  flow.text(intro, { size: 8, after: 6 });
+  if (block) drawMapBlock(ctx, block);
+  if (ph.blobs.length === 0) {
+    flow.text('No mura was found above the detection threshold.', { size: 9, after: 6 });
+    return;
+  }
+  drawTable(flow, columns, rows, opts);
   flow.text('Contrast is the signed mean over the half-peak region (negative = darker than the background). Blobs are numbered in order of SEMU, as in the reasons.', {
     size: 7,
     colour: MUTED,
@@ -780,7 +783,7 @@ function drawProfiles(ctx: Ctx, p: PreparedPhoto): void {
     hi = Math.max(hi, g.relative * k);
   }
   const yLabel = p.calibrated ? 'Luminance, cd/m\u00b2' : 'Relative luminance';
-  const plotH = 165;
+  const plotH = 150;
   flow.heading('Profiles through the centre', 2, plotH);
   flow.ensure(plotH + 20);
   const w = (PAGE.contentWidth - 16) / 2;
@@ -855,9 +858,9 @@ function drawGridTable(ctx: Ctx, p: PreparedPhoto): void {
   const opts = { size: 7.6, keepRows: rows.length <= 13 ? rows.length : 3 };
   flow.heading(heading, 2, tableHeight(flow.doc, columns, rows, opts) + 30);
   flow.text(
-    `u, v: position as a fraction of the active area's width and height from its top-left corner. Each value is the mean of linear luminance over a spot of radius ${fmtPct(grid.spotRadiusPct)} % ` +
-      `(${pts[0] ? `${pts[0].pixels}` : '\u2013'} map pixels at point 1). L rel. = L / L(centre); \u0394 centre = 100 (L \u2212 Lc) / Lc; ` +
-      `${p.calibrated ? '' : 'Y photo: linear luminance in the photo\u2019s own units; '}\u0394u'v' from the centre point.`,
+    `u, v: % of the active area's width and height from its top-left corner. Spot radius ${fmtPct(grid.spotRadiusPct)} % of the diagonal ` +
+      `(${pts[0] ? `${pts[0].pixels}` : '\u2013'} map pixels at point 1). L rel. = L / Lc; \u0394 centre = 100 (L \u2212 Lc) / Lc; ` +
+      `${p.calibrated ? '' : 'Y photo: linear Y in the photo\u2019s units; '}\u0394u'v' from the centre point.`,
     { size: 7, colour: MUTED, after: 3 },
   );
   drawTable(flow, columns, rows, opts);
@@ -901,7 +904,7 @@ function photoMethodPairs(p: PreparedPhoto): Array<[string, string | Cell]> {
     d
       ? `${d.format.toUpperCase()}, ${d.width} \u00d7 ${d.height} px, ${d.bitDepth}-bit, ${d.channels} channels; ` +
         `${d.transfer === 'srgb' ? 'sRGB transfer function undone to linear light' : 'linear data'}; ` +
-        `${d.scale === 1 ? 'measured at full size' : `measured at 1/${fmtNum(d.scale)} size (area average)`}`
+        `${d.scale === 1 ? 'measured at full size' : `measured at 1/${trim(d.scale, 2)} size (area average)`}`
       : 'not decoded',
   ]);
   const s = ph.exposureStats;
@@ -927,23 +930,23 @@ function photoMethodPairs(p: PreparedPhoto): Array<[string, string | Cell]> {
     'Panel outline and geometry',
     g
       ? `corners ${g.cornersSource === 'auto' ? 'found automatically' : g.cornersSource === 'manual' ? 'given by hand' : "shared with the panel's other photos"}` +
-        `${g.edgeResidualPx !== null ? `; edge-fit residual ${fmtNum(g.edgeResidualPx)} camera px rms` : ''}` +
-        `${g.tiltDeg !== null ? `; largest angle between camera axis and panel normal ${fmtNum(g.tiltDeg)}\u00b0` : ''}` +
+        `${g.edgeResidualPx !== null ? `; edge-fit residual ${trim(g.edgeResidualPx, 2)} camera px rms` : ''}` +
+        `${g.tiltDeg !== null ? `; largest angle between camera axis and panel normal ${trim(g.tiltDeg, 1)}\u00b0` : ''}` +
         `; corners TL TR BR BL (camera px) ${(ph.corners ?? []).map(([x, y]) => `(${x.toFixed(1)}, ${y.toFixed(1)})`).join(' ')}`
       : 'not located',
   ]);
   if (g) {
     pairs.push([
       'Panel map',
-      `${g.mapWidth} \u00d7 ${g.mapHeight} px at ${fmtNum(g.pxPerMm)} px/mm` +
+      `${g.mapWidth} \u00d7 ${g.mapHeight} px at ${trim(g.pxPerMm, 3)} px/mm` +
         `${p.sizeMm ? `; active area ${fmtMm(p.sizeMm.width)} \u00d7 ${fmtMm(p.sizeMm.height)} mm (${p.sizeMm.known ? 'size given' : 'size assumed: mm are nominal'})` : ''}` +
-        `; ${fmtNum(g.cameraPxPerMapPx)} camera px per map px at the centre`,
+        `; ${trim(g.cameraPxPerMapPx, 2)} camera px per map px at the centre`,
     ]);
   }
   if (ph.grid) {
     pairs.push([
       'Grid',
-      `${ph.grid.layout} points, ${ph.grid.placement === 'inset' ? `inset ${fmtPct(ph.grid.insetPct)} %` : 'at cell centres'}, spot radius ${fmtPct(ph.grid.spotRadiusPct)} %`,
+      `${ph.grid.layout} points, ${ph.grid.placement === 'inset' ? `inset ${fmtPct(ph.grid.insetPct)} %` : 'at cell centres'}, spot radius ${fmtPct(ph.grid.spotRadiusPct)} % of the diagonal`,
     ]);
   }
   if (p.art.calibration) {
@@ -1046,7 +1049,7 @@ function specificCautions(ctx: Ctx): string[] {
     const ph = p.photo;
     const name = patternName(ph.pattern, ph.patternLevel);
     if (ph.geometry?.tiltDeg !== null && ph.geometry?.tiltDeg !== undefined && ph.geometry.tiltDeg > 10) {
-      out.push(`${name}: the camera was ${fmtNum(ph.geometry.tiltDeg)}\u00b0 off the panel normal at the worst point; viewing-angle effects may be in the figures.`);
+      out.push(`${name}: the camera was ${trim(ph.geometry.tiltDeg, 1)}\u00b0 off the panel normal at the worst point; viewing-angle effects may be in the figures.`);
     }
     if (ph.falloff && !ph.falloff.applied) out.push(`${name}: no lens falloff correction was applied, so the corners read darker than they are.`);
     if (ph.exposureStats && ph.exposureStats.clippedFraction > 0) {

@@ -10,11 +10,16 @@ function check(img: RgbRaster): void {
 }
 
 function distinctColoursAtMost(img: RgbRaster, limit: number): boolean {
-  const seen = new Set<number>();
+  const seen = new Uint8Array(1 << 21); // one bit per 24-bit colour
   const { rgb } = img;
+  let count = 0;
   for (let o = 0; o < rgb.length; o += 3) {
-    seen.add((rgb[o]! << 16) | (rgb[o + 1]! << 8) | rgb[o + 2]!);
-    if (seen.size > limit) return false;
+    const c = (rgb[o]! << 16) | (rgb[o + 1]! << 8) | rgb[o + 2]!;
+    const bit = 1 << (c & 7);
+    if ((seen[c >>> 3]! & bit) === 0) {
+      seen[c >>> 3]! |= bit;
+      if (++count > limit) return false;
+    }
   }
   return true;
 }

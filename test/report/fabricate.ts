@@ -133,7 +133,7 @@ export function fakeGrid(rel: Plane, layout: 5 | 9 | 13 | 25, seed: number): Gri
 }
 
 /** A fabricated photo of a panel in a dark room, 8-bit sRGB, with the panel's corners. */
-export function fakeThumbnail(level: number, seed: number, width = 960, height = 640): { thumb: ReportThumbnail; corners: [[number, number], [number, number], [number, number], [number, number]] } {
+export function fakeThumbnail(level: number, seed: number, width = 720, height = 480): { thumb: ReportThumbnail; corners: [[number, number], [number, number], [number, number], [number, number]] } {
   const r = rng(seed);
   const scaleToFull = 6000 / width;
   // corners in full-size camera pixels (6000 x 4000), slight perspective
@@ -145,24 +145,30 @@ export function fakeThumbnail(level: number, seed: number, width = 960, height =
   ];
   const thumb = new Uint8Array(width * height * 3);
   const tc = corners.map(([x, y]) => [(x + 0.5) / scaleToFull - 0.5, (y + 0.5) / scaleToFull - 0.5] as [number, number]);
-  const inside = (x: number, y: number): boolean => {
-    let s = 0;
+  // x-range of a convex quadrilateral on a row, from its edges
+  const span = (y: number): [number, number] => {
+    let lo = Infinity;
+    let hi = -Infinity;
     for (let i = 0; i < 4; i++) {
       const [ax, ay] = tc[i]!;
       const [bx, by] = tc[(i + 1) % 4]!;
-      const cr = (bx - ax) * (y - ay) - (by - ay) * (x - ax);
-      if (cr < 0) s++;
+      if ((y < ay && y < by) || (y > ay && y > by) || ay === by) continue;
+      const x = ax + ((y - ay) / (by - ay)) * (bx - ax);
+      lo = Math.min(lo, x);
+      hi = Math.max(hi, x);
     }
-    return s === 0;
+    return [lo, hi];
   };
   for (let y = 0; y < height; y++) {
+    const [lo, hi] = span(y);
+    const [blo, bhi] = [Math.min(span(y - 6)[0], span(y + 6)[0]) - 6, Math.max(span(y - 6)[1], span(y + 6)[1]) + 6];
     for (let x = 0; x < width; x++) {
       const o = (y * width + x) * 3;
       let val = 18 + 6 * r();
-      if (inside(x, y)) {
+      if (x >= lo && x <= hi) {
         const d2 = ((x - width / 2) ** 2 + (y - height / 2) ** 2) / (width * width * 0.25);
         val = level * (1 - 0.25 * d2) + 3 * r();
-      } else if (inside(x - 6, y - 6) || inside(x + 6, y + 6)) {
+      } else if (x >= blo && x <= bhi) {
         val = 35; // bezel
       }
       const c = Math.max(0, Math.min(255, Math.round(val)));
@@ -286,7 +292,7 @@ export function fakePanel(specs: FakePhotoSpec[] = THREE_PATTERNS, mapW = 600): 
       value: nonu,
       limit: 25,
       margin: 25 - nonu,
-      text: `White field: luminance non-uniformity ${nonu.toFixed(1)} % against a limit of 25 %`,
+      text: `white: luminance non-uniformity ${nonu.toFixed(1)} % ≤ 25 % maximum (margin ${(25 - nonu).toFixed(1)} points)`,
       severity: nonu > 25 ? 'fail' : 'note',
     },
     {
@@ -295,7 +301,7 @@ export function fakePanel(specs: FakePhotoSpec[] = THREE_PATTERNS, mapW = 600): 
       value: 2.31,
       limit: 1.5,
       margin: -0.81,
-      text: 'White field: cloud mura M1 at 2.31 SEMU exceeds the limit of 1.5 SEMU',
+      text: 'white: largest mura 2.31 SEMU (blob 1, cloud) > 1.5 maximum (over by 0.81)',
       severity: 'fail',
     },
     {
@@ -304,7 +310,7 @@ export function fakePanel(specs: FakePhotoSpec[] = THREE_PATTERNS, mapW = 600): 
       value: 5.7,
       limit: 6,
       margin: 0.3,
-      text: 'Black field: largest mura 5.70 SEMU, limit 6 SEMU',
+      text: 'black: largest mura 5.70 SEMU (blob 1, edge-glow) ≤ 6 maximum (margin 0.30)',
       severity: 'note',
     },
   ];
