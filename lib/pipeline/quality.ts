@@ -1,9 +1,24 @@
 // Photo quality gates: a photo that cannot be measured honestly is refused with a named reason,
-// never measured badly. Limits are options with documented defaults.
+// never measured badly. Every limit is an option with a documented default and the reason for it.
+//
+// The gates, in the order their reasons are reported when several apply:
+//   glare        a compact bright region at odds with the rest of the panel (a reflection on the glass)
+//   clipped      highlights clipped on the panel
+//   too-dark     panel signal down in the quantisation / noise floor
+//   blurred      panel edges out of focus or motion-blurred, judged against the smallest mura sought
+//   moire        a periodic coloured ripple strong enough to survive into the panel map
+//   too-oblique  a part of the panel seen too far off its normal for its luminance to hold
+// The photo is refused with the first failing gate's code; the message names every failing gate.
+//
+// All gates work on the camera image at working scale (after decoding, before rectification), in
+// linear light. Glare and the exposure gates use the luminance before the falloff correction (the
+// camera's own levels); falloff is smooth and is absorbed by the background fit of the glare gate.
 
-import { EvenfieldError } from '../errors.js';
-import { srgbDecode } from '../photometry/index.js';
-import type { Corners, Plane, RgbImage } from '../types.js';
+import { Matrix, solve } from 'ml-matrix';
+import { EvenfieldError, type ErrorCode } from '../errors.js';
+import { panelToCamera, rectifyPlane } from '../geometry/index.js';
+import { srgbDecode, srgbEncode } from '../photometry/index.js';
+import type { Corners, Pattern, Plane, Point, RgbImage } from '../types.js';
 
 export interface QualityLimits {
   /** linear value at or above which a channel counts as clipped (sRGB code 0.98 ≈ linear 0.955) */
@@ -12,8 +27,76 @@ export interface QualityLimits {
   maxClippedFraction: number;
   /** smallest median panel code value (sRGB-encoded, 0..1) for the photo to be measurable */
   minPanelCode: number;
-  /** largest 10–90 % edge width of the panel outline, in full-size camera pixels, before the photo counts as blurred */
-  maxEdgeWidthPx: number;
+  /**
+   * Blur: an edge counts as blurred when its 10–90 % width exceeds this fraction of the smallest mura
+   * feature searched for (MeasureOptions.muraOptions.minFeatureMm, default 3 mm) AND sharpEdgePx.
+   * Default 0.5. Why: a Gaussian blur whose edge 10–90 % width is E lowers the peak contrast of a
+   * Gaussian spot of half-peak diameter d by the factor d² / (d² + 0.845 E²) (the blur's own half-peak
+   * width is 0.919 E; widths add in quadrature) [computed]; E = d/2 costs the smallest spot 17 % of its
+   * contrast, E = d would cost 46 % and turn failing spots into passing ones.
+   */
+  maxEdgeWidthFeatureFraction: number;
+  /**
+   * Edges no wider than this (pixels of the working image) are as sharp as the camera's pixels allow and
+   * never count as blurred: a coarse photo of a large panel is a resolution limit, reported by the mura
+   * analysis, not a focus problem. Default 3 (a focused edge measures about 1–2 px, common practice).
+   */
+  sharpEdgePx: number;
+  /**
+   * Glare on a lit field (white, gray, red, green, blue): a compact region whose peak stands more than
+   * this fraction above the panel's own smooth level. Default 0.15. Why: mura contrasts are a few tenths
+   * of a percent to a few percent (from memory); a patch 15 % above a robust low-order fit of the rest
+   * is far outside that and is taken for a reflection. A real defect that bright is refused, not passed.
+   */
+  glareExcess: number;
+  /**
+   * The same on a black field, where bleed, clouding and corner glow legitimately reach several times
+   * the black level. Default 9 (a patch at 10 times its surroundings).
+   */
+  glareExcessBlack: number;
+  /** a bright region larger than this fraction of the panel is not "at odds with the rest" (default 0.25) */
+  glareMaxAreaFraction: number;
+  /**
+   * A bright region whose peak lies within this fraction of the panel's width/height from its edge is
+   * left to the mura analysis as edge glow, bleed or edge-lit brightening, never called glare.
+   * Default 0.04.
+   */
+  glareEdgeMargin: number;
+  /**
+   * Moiré: largest amplitude (fraction of the mean level) of a periodic ripple, in luminance or in the
+   * ratio of two colour channels, that survives into the panel map. Default 0.01. Why: the rectified map averages each map pixel's camera footprint, which
+   * attenuates a ripple of frequency (fx, fy) by |sinc(fx w) sinc(fy w)| (w = footprint); what survives
+   * at 1 % is as large as the mura contrasts sought (a few tenths of a percent to a few percent, from
+   * memory) and shows as false lines, bands or spot arrays.
+   */
+  maxMoireAmplitude: number;
+  /**
+   * Periods (working pixels) searched for moiré: 2 up to this. Default 32. Longer beats cannot be told
+   * from banding mura in one photo (shoot again from another distance: mura stays, moiré moves).
+   */
+  moireMaxPeriodPx: number;
+  /**
+   * Ripples longer than this (working pixels) count only when they are coloured (the channel ratios
+   * ripple at least half as much as luminance), the usual mark of moiré from the panel's colour stripes
+   * against the camera's colour filter mosaic; a neutral periodic pattern that long may be the backlight's
+   * own hot-spot array, which is mura. Shorter ripples count whatever their colour: JPEG chroma
+   * subsampling (4:2:0) halves the colour resolution, so fine colour ripple cannot be seen. Default 8.
+   * On a primary-colour field (fewer than two channels carry light) every ripple counts.
+   */
+  moireColourTestPeriodPx: number;
+  /**
+   * Too oblique: largest angle between the panel normal and the line of sight to any point of the
+   * active area, degrees. Default 15. Why: LCD luminance and colour depend on the viewing angle; the
+   * falloff correction removes the lens's cos⁴ loss, not the panel's own angular emission. Measurement
+   * practice keeps the meter perpendicular (from memory: FPDM/IDMS); IPS white luminance is already down
+   * a few percent at 15° and VA/TN panels lose more (from memory), as large as a 5 % uniformity tolerance
+   * (ISO 12646 "within 5 % of centre"). Needs the focal length (EXIF); without it the angle is unchecked
+   * and the photo carries a warning.
+   */
+  maxViewAngleDeg: number;
+  /** above this viewing angle (degrees) the photo is measured with a warning. Default 10 (the README's
+   *  advice: corners within about 10° of the axis, about 3 screen diagonals away). */
+  warnViewAngleDeg: number;
 }
 
 export const DEFAULT_QUALITY_LIMITS: QualityLimits = {
@@ -21,7 +104,17 @@ export const DEFAULT_QUALITY_LIMITS: QualityLimits = {
   maxClippedFraction: 0.001,
   // 8 code values of 255: below that, 8-bit quantisation alone is a ±6 % step (common practice)
   minPanelCode: 8 / 255,
-  maxEdgeWidthPx: 25,
+  maxEdgeWidthFeatureFraction: 0.5,
+  sharpEdgePx: 3,
+  glareExcess: 0.15,
+  glareExcessBlack: 9,
+  glareMaxAreaFraction: 0.25,
+  glareEdgeMargin: 0.04,
+  maxMoireAmplitude: 0.01,
+  moireMaxPeriodPx: 32,
+  moireColourTestPeriodPx: 8,
+  maxViewAngleDeg: 15,
+  warnViewAngleDeg: 10,
 };
 
 /** 1 where any channel is at or above the clip level. */
@@ -52,22 +145,532 @@ export function insideQuad(c: Corners, x: number, y: number): boolean {
 }
 
 export interface QualityInput {
+  /** linear luminance at working scale, before the falloff correction */
   rawLum: Plane;
+  /** 1 where any channel was at the clip level (working scale) */
   clipMask: Uint8Array;
-  corners: Corners; // working-scale pixels
-  edgeWidthPx: number | null; // full-size pixels
+  /** linear RGB at working scale (falloff-corrected or not: the moiré gate uses relative ripple only) */
+  image: RgbImage;
+  /** active-area corners, working-scale pixels */
+  corners: Corners;
+  /** decode scale: working pixel = scale full-size pixels */
   scale: number;
+  pattern: Pattern;
+  /** active area in mm (nominal when the size is unknown; the mura search uses the same units) */
+  panelSizeMm: { width: number; height: number };
+  /** smallest mura feature searched for, mm (same units as panelSizeMm) */
+  minFeatureMm: number;
+  /** working-scale camera pixels per map pixel of the rectified map (1 or less: no averaging) */
+  mapFootprintPx: number;
+  /** largest angle between the panel normal and the line of sight to the active area, degrees; null
+   *  when it cannot be estimated (no focal length) */
+  viewAngleMaxDeg: number | null;
 }
 
-/** Throws EvenfieldError for an unmeasurable photo; returns warnings for marginal ones. */
-export function checkPanelQuality(file: string, q: QualityInput, limits: QualityLimits): { warnings: string[]; clippedFraction: number; medianCode: number } {
+export interface EdgeWidth {
+  side: 'top' | 'right' | 'bottom' | 'left';
+  /** 10–90 % width, working pixels; null when the edge step is too weak to trace */
+  px: number | null;
+  /** the same in panel mm (or nominal units) */
+  mm: number | null;
+}
+
+export interface GlareFinding {
+  /** peak excess over the fitted panel level (0.5 = 50 % brighter) */
+  peakExcess: number;
+  u: number;
+  v: number;
+  /** fraction of the panel area above the threshold in this region */
+  areaFraction: number;
+  /** the region's cells include clipped camera pixels */
+  clipped: boolean;
+}
+
+export interface MoireFinding {
+  /** amplitude surviving into the panel map, fraction of the mean level */
+  amplitude: number;
+  /** amplitude in the camera image before the map's averaging */
+  cameraAmplitude: number;
+  /** period, working pixels */
+  periodPx: number;
+  /** direction of the ripple's wave vector, degrees from the x axis */
+  angleDeg: number;
+  /** whether the ripple differs between colour channels (the usual mark of moiré) */
+  coloured: boolean;
+}
+
+/** Every figure the gates look at, for reports, tests and accuracy studies. */
+export interface QualityFigures {
+  pixels: number;
+  clippedFraction: number;
+  medianCode: number;
+  edges: EdgeWidth[];
+  glare: GlareFinding | null;
+  moire: MoireFinding | null;
+  viewAngleMaxDeg: number | null;
+}
+
+export interface QualityOutcome {
+  figures: QualityFigures;
+  /** failing gates in reporting order, each with its message */
+  problems: { code: ErrorCode; message: string }[];
+  warnings: string[];
+}
+
+const SIDES = ['top', 'right', 'bottom', 'left'] as const;
+
+function shrink(corners: Corners, f: number): Corners {
+  const cx = corners.reduce((a, p) => a + p[0], 0) / 4;
+  const cy = corners.reduce((a, p) => a + p[1], 0) / 4;
+  return corners.map(([x, y]) => [cx + f * (x - cx), cy + f * (y - cy)]) as Corners;
+}
+
+function bilinear(p: Plane, x: number, y: number): number {
+  const w = p.width;
+  const h = p.height;
+  if (!(x >= 0 && y >= 0 && x <= w - 1 && y <= h - 1)) return Number.NaN;
+  const x0 = Math.min(w - 2, Math.floor(x));
+  const y0 = Math.min(h - 2, Math.floor(y));
+  const fx = x - x0;
+  const fy = y - y0;
+  const d = p.data;
+  const k = y0 * w + x0;
+  return (1 - fy) * ((1 - fx) * d[k] + fx * d[k + 1]) + fy * ((1 - fx) * d[k + w] + fx * d[k + w + 1]);
+}
+
+/**
+ * 10–90 % width of one side's edge: profiles across the side at 24 places along its middle 70 %, each
+ * averaged over ±2 px along the side, summed into one profile sampled every 0.25 px; the levels are the
+ * medians of the outer halves of the profile, and the crossings are searched outward from the line.
+ * The half-length grows until the profile has flattened on both sides. Null when the step is too weak.
+ */
+export function edgeWidthPx(lum: Plane, a: Point, b: Point): number | null {
+  const dx = b[0] - a[0];
+  const dy = b[1] - a[1];
+  const len = Math.hypot(dx, dy);
+  if (!(len > 8)) return null;
+  const tx = dx / len;
+  const ty = dy / len;
+  // inward normal for corners listed clockwise on screen
+  const nx = -ty;
+  const ny = tx;
+  const step = 0.25;
+  for (let R = 12; R <= 160; R *= 2) {
+    if (R > len / 3) break;
+    const nb = Math.round((2 * R) / step) + 1;
+    const prof = new Float64Array(nb);
+    const cnt = new Float64Array(nb);
+    for (let k = 0; k < 24; k++) {
+      const s = len * (0.15 + (0.7 * (k + 0.5)) / 24);
+      for (let j = -2; j <= 2; j++) {
+        const bx = a[0] + (s + j) * tx;
+        const by = a[1] + (s + j) * ty;
+        for (let i = 0; i < nb; i++) {
+          const t = -R + i * step;
+          const v = bilinear(lum, bx + t * nx, by + t * ny);
+          if (Number.isFinite(v)) {
+            prof[i] += v;
+            cnt[i]++;
+          }
+        }
+      }
+    }
+    for (let i = 0; i < nb; i++) prof[i] = cnt[i] > 0 ? prof[i] / cnt[i] : Number.NaN;
+    const outer: number[] = [];
+    const inner: number[] = [];
+    const q = Math.floor(nb / 4);
+    for (let i = 0; i < q; i++) if (Number.isFinite(prof[i])) outer.push(prof[i]);
+    for (let i = nb - q; i < nb; i++) if (Number.isFinite(prof[i])) inner.push(prof[i]);
+    if (outer.length < q / 2 || inner.length < q / 2) return null;
+    const lo = medianOf(outer);
+    const hi = medianOf(inner);
+    if (!(hi > 1.5 * lo && hi > 0)) return null;
+    const l10 = lo + 0.1 * (hi - lo);
+    const l90 = lo + 0.9 * (hi - lo);
+    const mid = Math.round(R / step);
+    // from the line inward to the first sample at or above 90 %, outward to the first at or below 10 %
+    let i90 = -1;
+    for (let i = mid; i < nb; i++) {
+      if (prof[i] >= l90) {
+        i90 = i;
+        break;
+      }
+    }
+    let i10 = -1;
+    for (let i = mid; i >= 0; i--) {
+      if (prof[i] <= l10) {
+        i10 = i;
+        break;
+      }
+    }
+    // the line may sit a little off the 50 % point: also allow the crossings on the other side of it
+    if (i90 < 0 || i10 < 0) continue;
+    const t90 = crossing(prof, i90, -1, l90, step, R);
+    const t10 = crossing(prof, i10, +1, l10, step, R);
+    const width = t90 - t10;
+    // the profile must be flat well beyond the transition, or the levels are not the plateaus
+    if (width < R / 3) return Math.max(0, width);
+  }
+  return null;
+}
+
+/** Linear interpolation of the level crossing between sample i and its neighbour i + dir. */
+function crossing(prof: Float64Array, i: number, dir: number, level: number, step: number, R: number): number {
+  const j = i + dir;
+  const t = (k: number) => -R + k * step;
+  if (j < 0 || j >= prof.length || !Number.isFinite(prof[j])) return t(i);
+  const a = prof[i];
+  const b = prof[j];
+  if (a === b) return t(i);
+  const f = (level - a) / (b - a);
+  return t(i) + dir * step * Math.max(0, Math.min(1, f));
+}
+
+function medianOf(v: number[]): number {
+  const s = v.slice().sort((x, y) => x - y);
+  const n = s.length;
+  return n % 2 ? s[(n - 1) / 2] : 0.5 * (s[n / 2 - 1] + s[n / 2]);
+}
+
+/** Edge widths of the four sides, in working pixels and panel mm. */
+export function edgeWidths(lum: Plane, corners: Corners, panelSizeMm: { width: number; height: number }): EdgeWidth[] {
+  return SIDES.map((side, i) => {
+    const a = corners[i];
+    const b = corners[(i + 1) % 4];
+    const px = edgeWidthPx(lum, a, b);
+    const lenPx = Math.hypot(b[0] - a[0], b[1] - a[1]);
+    const lenMm = i % 2 === 0 ? panelSizeMm.width : panelSizeMm.height;
+    return { side, px, mm: px === null ? null : (px * lenMm) / lenPx };
+  });
+}
+
+/** Monomials U^i V^j, i + j <= order, on U, V in -1..1. */
+function monomials(order: number): [number, number][] {
+  const t: [number, number][] = [];
+  for (let d = 0; d <= order; d++) for (let i = d; i >= 0; i--) t.push([i, d - i]);
+  return t;
+}
+
+/**
+ * Robust low-order fit of log luminance over a small rectified map (cells with a valid value), iterated
+ * with cells beyond 3 robust sigmas left out. Returns the fitted log level per cell.
+ */
+export function robustLogSurface(values: Float64Array, w: number, h: number, use: Uint8Array, order: number): Float64Array {
+  const terms = monomials(order);
+  const nt = terms.length;
+  const U = (i: number) => (2 * (i + 0.5)) / w - 1;
+  const V = (j: number) => (2 * (j + 0.5)) / h - 1;
+  const basis = (i: number, j: number, out: Float64Array) => {
+    const u = U(i);
+    const v = V(j);
+    for (let k = 0; k < nt; k++) out[k] = u ** terms[k][0] * v ** terms[k][1];
+  };
+  const keep = use.slice();
+  const fit = new Float64Array(w * h);
+  const row = new Float64Array(nt);
+  for (let round = 0; round < 5; round++) {
+    const A = new Matrix(nt, nt);
+    const y = new Matrix(nt, 1);
+    let n = 0;
+    for (let j = 0; j < h; j++)
+      for (let i = 0; i < w; i++) {
+        const k = j * w + i;
+        if (!keep[k]) continue;
+        n++;
+        basis(i, j, row);
+        for (let r = 0; r < nt; r++) {
+          y.set(r, 0, y.get(r, 0) + row[r] * values[k]);
+          for (let c = 0; c < nt; c++) A.set(r, c, A.get(r, c) + row[r] * row[c]);
+        }
+      }
+    if (n < nt * 2) break;
+    const coef = solve(A, y).to1DArray();
+    const res: number[] = [];
+    for (let j = 0; j < h; j++)
+      for (let i = 0; i < w; i++) {
+        const k = j * w + i;
+        basis(i, j, row);
+        let s = 0;
+        for (let r = 0; r < nt; r++) s += coef[r] * row[r];
+        fit[k] = s;
+        if (use[k]) res.push(Math.abs(values[k] - s));
+      }
+    const sigma = Math.max(0.003, 1.4826 * medianOf(res));
+    let changed = false;
+    for (let k = 0; k < w * h; k++) {
+      const next = use[k] && Math.abs(values[k] - fit[k]) <= 3 * sigma ? 1 : 0;
+      if (next !== keep[k]) changed = true;
+      keep[k] = next;
+    }
+    if (!changed) break;
+  }
+  return fit;
+}
+
+/**
+ * Glare: the panel's camera luminance on a coarse rectified map (64 cells across), a robust low-order
+ * surface fitted to its logarithm, and the compact regions standing above it by more than the limit.
+ * Regions peaking next to the panel's edge are left to the mura analysis (edge glow, bleed).
+ */
+export function findGlare(q: QualityInput, limits: QualityLimits): GlareFinding | null {
+  const aspect = q.panelSizeMm.width / q.panelSizeMm.height;
+  const w = aspect >= 1 ? 64 : Math.max(8, Math.round(64 * aspect));
+  const h = aspect >= 1 ? Math.max(8, Math.round(64 / aspect)) : 64;
+  const rect = rectifyPlane(q.rawLum, q.corners, w, h);
+  const clipRect = rectifyPlane({ width: q.rawLum.width, height: q.rawLum.height, data: Float32Array.from(q.clipMask) }, q.corners, w, h);
+  const n = w * h;
+  const logv = new Float64Array(n);
+  const use = new Uint8Array(n);
+  const floor = 1e-6;
+  for (let k = 0; k < n; k++) {
+    const i = k % w;
+    const j = Math.floor(k / w);
+    logv[k] = Math.log(Math.max(floor, rect.plane.data[k]));
+    // the outermost cell ring straddles the edge transition
+    use[k] = rect.valid[k] && i > 0 && j > 0 && i < w - 1 && j < h - 1 ? 1 : 0;
+  }
+  const black = q.pattern === 'black';
+  const fit = robustLogSurface(logv, w, h, use, black ? 2 : 3);
+  const limit = black ? limits.glareExcessBlack : limits.glareExcess;
+  const thr = Math.log(1 + limit);
+  const above = new Uint8Array(n);
+  for (let k = 0; k < n; k++) if (use[k] && logv[k] - fit[k] > thr) above[k] = 1;
+  // 8-connected regions
+  const label = new Int32Array(n).fill(-1);
+  const mi = Math.max(1, Math.round(limits.glareEdgeMargin * w));
+  const mj = Math.max(1, Math.round(limits.glareEdgeMargin * h));
+  let best: GlareFinding | null = null;
+  const stack: number[] = [];
+  let nextLabel = 0;
+  for (let k0 = 0; k0 < n; k0++) {
+    if (!above[k0] || label[k0] >= 0) continue;
+    const id = nextLabel++;
+    label[k0] = id;
+    stack.push(k0);
+    let count = 0;
+    let peak = -Infinity;
+    let peakK = k0;
+    let clipped = false;
+    while (stack.length) {
+      const k = stack.pop()!;
+      count++;
+      const e = logv[k] - fit[k];
+      if (e > peak) {
+        peak = e;
+        peakK = k;
+      }
+      if (clipRect.plane.data[k] > 0) clipped = true;
+      const i = k % w;
+      const j = (k - i) / w;
+      for (let dj = -1; dj <= 1; dj++)
+        for (let di = -1; di <= 1; di++) {
+          const ii = i + di;
+          const jj = j + dj;
+          if (ii < 0 || jj < 0 || ii >= w || jj >= h) continue;
+          const kk = jj * w + ii;
+          if (above[kk] && label[kk] < 0) {
+            label[kk] = id;
+            stack.push(kk);
+          }
+        }
+    }
+    const pi = peakK % w;
+    const pj = (peakK - pi) / w;
+    const nearEdge = pi < mi || pj < mj || pi >= w - mi || pj >= h - mj;
+    const areaFraction = count / n;
+    if (nearEdge || areaFraction > limits.glareMaxAreaFraction) continue;
+    const g: GlareFinding = { peakExcess: Math.exp(peak) - 1, u: (pi + 0.5) / w, v: (pj + 0.5) / h, areaFraction, clipped };
+    if (!best || g.peakExcess > best.peakExcess) best = g;
+  }
+  return best;
+}
+
+/** In-place iterative radix-2 FFT of (re, im), length a power of two. */
+export function fft(re: Float64Array, im: Float64Array): void {
+  const n = re.length;
+  for (let i = 1, j = 0; i < n; i++) {
+    let bit = n >> 1;
+    for (; j & bit; bit >>= 1) j ^= bit;
+    j ^= bit;
+    if (i < j) {
+      let t = re[i];
+      re[i] = re[j];
+      re[j] = t;
+      t = im[i];
+      im[i] = im[j];
+      im[j] = t;
+    }
+  }
+  for (let len = 2; len <= n; len <<= 1) {
+    const ang = (-2 * Math.PI) / len;
+    const wr = Math.cos(ang);
+    const wi = Math.sin(ang);
+    for (let i = 0; i < n; i += len) {
+      let cr = 1;
+      let ci = 0;
+      for (let k = 0; k < len / 2; k++) {
+        const a = i + k;
+        const b = a + len / 2;
+        const xr = re[b] * cr - im[b] * ci;
+        const xi = re[b] * ci + im[b] * cr;
+        re[b] = re[a] - xr;
+        im[b] = im[a] - xi;
+        re[a] += xr;
+        im[a] += xi;
+        const nr = cr * wr - ci * wi;
+        ci = cr * wi + ci * wr;
+        cr = nr;
+      }
+    }
+  }
+}
+
+/** 2-D FFT of an N×N real array (row-major); returns interleaved-free (re, im). */
+function fft2(data: Float64Array, N: number): { re: Float64Array; im: Float64Array } {
+  const re = Float64Array.from(data);
+  const im = new Float64Array(N * N);
+  const rr = new Float64Array(N);
+  const ri = new Float64Array(N);
+  for (let y = 0; y < N; y++) {
+    rr.set(re.subarray(y * N, y * N + N));
+    ri.fill(0);
+    fft(rr, ri);
+    re.set(rr, y * N);
+    im.set(ri, y * N);
+  }
+  for (let x = 0; x < N; x++) {
+    for (let y = 0; y < N; y++) {
+      rr[y] = re[y * N + x];
+      ri[y] = im[y * N + x];
+    }
+    fft(rr, ri);
+    for (let y = 0; y < N; y++) {
+      re[y * N + x] = rr[y];
+      im[y * N + x] = ri[y];
+    }
+  }
+  return { re, im };
+}
+
+const sinc = (t: number) => (t === 0 ? 1 : Math.sin(Math.PI * t) / (Math.PI * t));
+
+/**
+ * Moiré: square windows (Hann-tapered) inside the panel; per window the spectra of each usable colour
+ * channel's relative ripple, of relative luminance, and of the channel differences (the ripple's
+ * colour). Every frequency with a period from 2 to moireMaxPeriodPx pixels is weighed by the
+ * attenuation of the map's box average; the strongest surviving coloured ripple is the finding.
+ * Where fewer than two channels carry light (a primary colour field) the colour test cannot be made and
+ * the luminance ripple alone counts.
+ */
+export function findMoire(q: QualityInput, limits: QualityLimits): MoireFinding | null {
+  const img = q.image;
+  const inner = shrink(q.corners, 0.9);
+  const xs = inner.map((p) => p[0]);
+  const ys = inner.map((p) => p[1]);
+  const span = Math.min(Math.max(...xs) - Math.min(...xs), Math.max(...ys) - Math.min(...ys));
+  let N = 256;
+  while (N > 32 && N > 0.5 * span) N >>= 1;
+  if (N > 0.5 * span) return null;
+  const H = panelToCamera(q.corners);
+  const at = (u: number, v: number): Point => {
+    const w = H[6] * u + H[7] * v + H[8];
+    return [(H[0] * u + H[1] * v + H[2]) / w, (H[3] * u + H[4] * v + H[5]) / w];
+  };
+  const hann = new Float64Array(N);
+  for (let i = 0; i < N; i++) hann[i] = 0.5 - 0.5 * Math.cos((2 * Math.PI * (i + 0.5)) / N);
+  let sumW = 0;
+  for (let j = 0; j < N; j++) for (let i = 0; i < N; i++) sumW += hann[i] * hann[j];
+  const fw = q.mapFootprintPx > 1 ? q.mapFootprintPx : 0;
+  const minK = Math.ceil(N / limits.moireMaxPeriodPx);
+  let best: MoireFinding | null = null;
+  for (const [u, v] of [
+    [0.5, 0.5],
+    [0.3, 0.5],
+    [0.7, 0.5],
+  ]) {
+    const [cx, cy] = at(u, v);
+    const x0 = Math.round(cx - N / 2);
+    const y0 = Math.round(cy - N / 2);
+    const box: Point[] = [
+      [x0, y0],
+      [x0 + N - 1, y0],
+      [x0 + N - 1, y0 + N - 1],
+      [x0, y0 + N - 1],
+    ];
+    if (!box.every(([x, y]) => insideQuad(inner, x, y) && x >= 0 && y >= 0 && x < img.width && y < img.height)) continue;
+    const ch = [new Float64Array(N * N), new Float64Array(N * N), new Float64Array(N * N)];
+    const mean = [0, 0, 0];
+    for (let j = 0; j < N; j++)
+      for (let i = 0; i < N; i++) {
+        const k = ((y0 + j) * img.width + x0 + i) * 3;
+        for (let c = 0; c < 3; c++) {
+          const val = img.data[k + c];
+          ch[c][j * N + i] = val;
+          mean[c] += val;
+        }
+      }
+    for (let c = 0; c < 3; c++) mean[c] /= N * N;
+    const top = Math.max(...mean);
+    if (!(top > 0)) continue;
+    const usable = [0, 1, 2].filter((c) => mean[c] >= 0.05 * top);
+    // relative ripple per channel, windowed, with its windowed mean removed
+    const spectra = usable.map((c) => {
+      const s = ch[c];
+      let wm = 0;
+      for (let j = 0; j < N; j++) for (let i = 0; i < N; i++) wm += hann[i] * hann[j] * s[j * N + i];
+      wm /= sumW;
+      const r = new Float64Array(N * N);
+      for (let j = 0; j < N; j++) for (let i = 0; i < N; i++) r[j * N + i] = (hann[i] * hann[j] * (s[j * N + i] - wm)) / mean[c];
+      return fft2(r, N);
+    });
+    // luminance weights of the usable channels (BT.709), renormalised
+    const wY = [0.2126, 0.7152, 0.0722];
+    const lw = usable.map((c) => wY[c] * mean[c]);
+    const lsum = lw.reduce((a, b) => a + b, 0);
+    for (let ky = -N / 2 + 1; ky < N / 2; ky++) {
+      for (let kx = 0; kx < N / 2; kx++) {
+        if (kx === 0 && ky <= 0) continue; // each real ripple once
+        const kk = Math.hypot(kx, ky);
+        if (kk < minK || kk > N / 2) continue;
+        const idx = ((ky + N) % N) * N + kx;
+        let lr = 0;
+        let li = 0;
+        for (let s = 0; s < usable.length; s++) {
+          lr += (lw[s] / lsum) * spectra[s].re[idx];
+          li += (lw[s] / lsum) * spectra[s].im[idx];
+        }
+        const aY = (2 * Math.hypot(lr, li)) / sumW;
+        let aC = 0;
+        for (let s = 0; s < usable.length; s++)
+          for (let t = s + 1; t < usable.length; t++) {
+            const d = Math.hypot(spectra[s].re[idx] - spectra[t].re[idx], spectra[s].im[idx] - spectra[t].im[idx]);
+            aC = Math.max(aC, (2 * d) / sumW);
+          }
+        const canColour = usable.length >= 2;
+        const coloured = canColour && aC >= 0.5 * aY;
+        // beyond the colour test's reach (fine chroma is lost to JPEG chroma subsampling) any ripple counts
+        if (canColour && !coloured && N / kk > limits.moireColourTestPeriodPx) continue;
+        const cam = Math.max(aY, aC);
+        const fx = kx / N;
+        const fy = ky / N;
+        const att = fw > 0 ? Math.abs(sinc(fx * fw) * sinc(fy * fw)) : 1;
+        const amp = cam * att;
+        if (!best || amp > best.amplitude) {
+          best = { amplitude: amp, cameraAmplitude: cam, periodPx: N / kk, angleDeg: (Math.atan2(ky, kx) * 180) / Math.PI, coloured };
+        }
+      }
+    }
+  }
+  return best;
+}
+
+/** Measure every gate's figure and decide; never throws for a bad photo (see checkPanelQuality). */
+export function assessPanelQuality(q: QualityInput, limits: QualityLimits): QualityOutcome {
   const { rawLum, clipMask, corners } = q;
   const w = rawLum.width;
   const h = rawLum.height;
   // shrink the outline 3 % towards its centre so edge pixels do not count
-  const cx = corners.reduce((a, p) => a + p[0], 0) / 4;
-  const cy = corners.reduce((a, p) => a + p[1], 0) / 4;
-  const inner = corners.map(([x, y]) => [cx + 0.97 * (x - cx), cy + 0.97 * (y - cy)]) as Corners;
+  const inner = shrink(corners, 0.97);
   const xs = inner.map((p) => p[0]);
   const ys = inner.map((p) => p[1]);
   const x0 = Math.max(0, Math.floor(Math.min(...xs)));
@@ -87,33 +690,107 @@ export function checkPanelQuality(file: string, q: QualityInput, limits: Quality
       sample.push(rawLum.data[k]);
     }
   }
+  const problems: QualityOutcome['problems'] = [];
   const warnings: string[] = [];
-  if (n === 0) throw new EvenfieldError('no-panel', 'the panel outline encloses no pixels', file);
+  if (n === 0) {
+    return {
+      figures: { pixels: 0, clippedFraction: 0, medianCode: 0, edges: [], glare: null, moire: null, viewAngleMaxDeg: q.viewAngleMaxDeg },
+      problems: [{ code: 'no-panel', message: 'the panel outline encloses no pixels' }],
+      warnings,
+    };
+  }
   sample.sort((a, b) => a - b);
   const median = sample[Math.floor(sample.length / 2)];
-  const medianCode = median <= 0.0031308 ? 12.92 * median : 1.055 * Math.pow(median, 1 / 2.4) - 0.055;
+  const medianCode = srgbEncode(Math.max(0, median));
   const clippedFraction = clipped / n;
+  const dark = medianCode < limits.minPanelCode;
+
+  // glare (needs light to see against; a panel lost in the floor is refused as too dark instead)
+  const glare = dark ? null : findGlare(q, limits);
+  if (glare) {
+    problems.push({
+      code: 'glare',
+      message:
+        `a bright patch at u ${glare.u.toFixed(2)}, v ${glare.v.toFixed(2)} (${(100 * glare.areaFraction).toFixed(1)} % of the panel) ` +
+        `stands ${(100 * glare.peakExcess).toFixed(0)} % above the rest of the panel (limit ${(100 * (q.pattern === 'black' ? limits.glareExcessBlack : limits.glareExcess)).toFixed(0)} %)` +
+        `${glare.clipped ? ' and is clipped' : ''}: a reflection on the screen? Darken the room or move the light or the camera`,
+    });
+  }
   if (clippedFraction > limits.maxClippedFraction) {
-    throw new EvenfieldError(
-      'clipped',
-      `${(100 * clippedFraction).toFixed(2)} % of the panel is clipped (limit ${(100 * limits.maxClippedFraction).toFixed(2)} %): shorten the exposure`,
-      file,
-    );
+    problems.push({
+      code: 'clipped',
+      message: `${(100 * clippedFraction).toFixed(2)} % of the panel is clipped (limit ${(100 * limits.maxClippedFraction).toFixed(2)} %): shorten the exposure`,
+    });
+  } else if (clipped > 0) {
+    warnings.push(`${(100 * clippedFraction).toFixed(3)} % of the panel pixels are at the clip level`);
   }
-  if (medianCode < limits.minPanelCode) {
-    throw new EvenfieldError(
-      'too-dark',
-      `the panel is too dark to measure (median code ${(255 * medianCode).toFixed(1)} of 255, need ${(255 * limits.minPanelCode).toFixed(0)}): lengthen the exposure`,
-      file,
-    );
+  if (dark) {
+    problems.push({
+      code: 'too-dark',
+      message: `the panel is too dark to measure (median code ${(255 * medianCode).toFixed(1)} of 255, need ${(255 * limits.minPanelCode).toFixed(0)}): lengthen the exposure`,
+    });
   }
-  if (q.edgeWidthPx !== null && q.edgeWidthPx > limits.maxEdgeWidthPx) {
-    throw new EvenfieldError(
-      'blurred',
-      `the panel outline is blurred (edge ${q.edgeWidthPx.toFixed(1)} px wide, limit ${limits.maxEdgeWidthPx} px): refocus or steady the camera`,
-      file,
-    );
+
+  // blur: the worst traceable side (motion blur widens only the sides across the motion)
+  const edges = q.pattern === 'black' || dark ? [] : edgeWidths(rawLum, corners, q.panelSizeMm);
+  const traced = edges.filter((e) => e.px !== null && e.mm !== null);
+  const limitMm = limits.maxEdgeWidthFeatureFraction * q.minFeatureMm;
+  const blurred = traced.filter((e) => e.px! > limits.sharpEdgePx && e.mm! > limitMm);
+  if (blurred.length > 0) {
+    const worst = blurred.reduce((a, b) => (b.mm! > a.mm! ? b : a));
+    const names = blurred.map((e) => e.side).join(', ');
+    problems.push({
+      code: 'blurred',
+      message:
+        `the panel outline is blurred (${names} edge${blurred.length > 1 ? 's' : ''}; worst ${worst.px!.toFixed(1)} px = ${worst.mm!.toFixed(1)} mm wide, ` +
+        `limit ${limitMm.toFixed(1)} mm, half the smallest feature sought): refocus or steady the camera`,
+    });
+  } else if (q.pattern !== 'black' && !dark && traced.length < 2) {
+    warnings.push('the sharpness of the panel outline could not be checked (edges too faint to trace)');
   }
-  if (clipped > 0) warnings.push(`${(100 * clippedFraction).toFixed(3)} % of the panel pixels are at the clip level`);
-  return { warnings, clippedFraction, medianCode };
+
+  // moiré
+  const moire = dark ? null : findMoire(q, limits);
+  if (moire && moire.amplitude > limits.maxMoireAmplitude) {
+    problems.push({
+      code: 'moire',
+      message:
+        `moiré: a ${moire.coloured ? 'coloured ' : ''}ripple of period ${moire.periodPx.toFixed(1)} px and ${(100 * moire.cameraAmplitude).toFixed(1)} % amplitude ` +
+        `(${(100 * moire.amplitude).toFixed(1)} % left after the map's averaging, limit ${(100 * limits.maxMoireAmplitude).toFixed(1)} %): ` +
+        'change the distance or zoom slightly, or defocus a little',
+    });
+  }
+
+  // viewing angle
+  const va = q.viewAngleMaxDeg;
+  if (va === null) {
+    warnings.push('the viewing angle could not be checked (no focal length in the photo\'s EXIF): keep the panel\'s corners within about 10° of the camera axis');
+  } else if (va > limits.maxViewAngleDeg) {
+    problems.push({
+      code: 'too-oblique',
+      message:
+        `part of the panel is seen ${va.toFixed(1)}° off its normal (limit ${limits.maxViewAngleDeg}°): LCD luminance changes with viewing angle and no ` +
+        'falloff correction removes that; shoot square-on from farther away with a longer lens',
+    });
+  } else if (va > limits.warnViewAngleDeg) {
+    warnings.push(`part of the panel is seen ${va.toFixed(1)}° off its normal: the panel's own angular emission may bias the corner values by a few percent`);
+  }
+
+  return {
+    figures: { pixels: n, clippedFraction, medianCode, edges, glare, moire, viewAngleMaxDeg: va },
+    problems,
+    warnings,
+  };
+}
+
+/** Throws EvenfieldError for an unmeasurable photo (the first failing gate's code, every failing gate
+ *  named in the message); returns warnings and figures for a measurable one. */
+export function checkPanelQuality(file: string, q: QualityInput, limits: QualityLimits): QualityOutcome & { clippedFraction: number; medianCode: number } {
+  const out = assessPanelQuality(q, limits);
+  if (out.problems.length > 0) {
+    const [first, ...rest] = out.problems;
+    const also = rest.length > 0 ? `; also ${rest.map((p) => `${p.code}: ${p.message}`).join('; ')}` : '';
+    throw new EvenfieldError(first.code, first.message + also, file);
+  }
+  return { ...out, clippedFraction: out.figures.clippedFraction, medianCode: out.figures.medianCode };
 }
