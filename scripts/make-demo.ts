@@ -3,7 +3,7 @@
 //   npx tsc -p tsconfig.build.json && node dist/scripts/make-demo.js [outDir]
 //
 // Everything is fixed by the seeds below, so a rerun rewrites the same bytes.
-import { mkdirSync, rmSync, writeFileSync } from 'node:fs';
+import { mkdirSync, readdirSync, rmSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { fitInFrame, renderFlatFrame, renderPhoto, Rng } from '../fixtures/generator/index.js';
 import type { CameraSpec, FeatureSpec, GlareSpec, LuminanceTerm, ColourVariation, PhotoSpec } from '../fixtures/generator/index.js';
@@ -169,7 +169,10 @@ function timeStamp(k: number): string {
   return `${t.getUTCFullYear()}:${p(t.getUTCMonth() + 1)}:${p(t.getUTCDate())} ${p(t.getUTCHours())}:${p(t.getUTCMinutes())}:${p(t.getUTCSeconds())}`;
 }
 
-rmSync(out, { recursive: true, force: true });
+// clear what an earlier run generated (README.md is written by hand and stays)
+for (const old of ['truth', 'flats']) rmSync(join(out, old), { recursive: true, force: true });
+mkdirSync(out, { recursive: true });
+for (const f of readdirSync(out)) if (/\.(jpg|csv)$/.test(f)) rmSync(join(out, f));
 mkdirSync(join(out, 'truth'), { recursive: true });
 mkdirSync(join(out, 'flats'), { recursive: true });
 const manifest: string[] = ['file,panel,pattern,note'];

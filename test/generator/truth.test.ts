@@ -62,6 +62,8 @@ describe('feature truth (C = 100 (L - B) / B, half-peak region)', () => {
     expect(semuOf(2, 100)).toBeCloseTo(1.738, 3);
     expect(semuOf(-2, 1000)).toBeCloseTo(2.17, 3);
     expect(2 / semuOf(2, 1)).toBeCloseTo(2.69, 4);
+    // settable constants (from memory in the field notes): a = 2, b = 1, exponent 0.5 at 100 mm² -> 2 / 1.2
+    expect(semuOf(2, 100, { a: 2, b: 1, exponent: 0.5 })).toBeCloseTo(2 / 1.2, 12);
   });
 
   it('full-span line (Gaussian profile): area = length x FWHM, mean = peak sqrt(2 pi) erf(sqrt(ln2)) / (2 sqrt(2 ln2))', () => {
