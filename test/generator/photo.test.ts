@@ -70,6 +70,20 @@ describe('renderPhoto', () => {
     expect(e.FNumber).toBeCloseTo(4, 9);
   });
 
+  it('16-bit TIFF (sRGB-encoded) decodes back to the camera values', async () => {
+    const spec = small({ noise: null, output: { format: 'tiff', bitDepth: 16, transfer: 'srgb' } });
+    const r = await renderPhoto(spec);
+    expect(r.ext).toBe('tif');
+    expect(r.truth.image).toMatchObject({ bitDepth: 16, transfer: 'srgb', format: 'tiff' });
+    const { data } = await sharp(r.buffer).toColourspace('rgb16').raw({ depth: 'ushort' }).toBuffer({ resolveWithObject: true });
+    const u16 = new Uint16Array(data.buffer, data.byteOffset, data.length / 2);
+    const px = renderPhotoPixels(spec).image;
+    let worst = 0;
+    for (let k = 0; k < u16.length; k += 89) worst = Math.max(worst, Math.abs(srgbDecode(u16[k] / 65535) - px.data[k]));
+    // half a 16-bit code step of the encoded value, times the largest slope of the decode (1/12.92 ... 2.4)
+    expect(worst).toBeLessThan((0.5 / 65535) * 2.4 + 1e-7);
+  });
+
   it('pixels crossing the active-area edge get partial coverage: total light = emission x projected area', () => {
     // uniform panel, no falloff, no noise, black surroundings: the sum of pixel values over the frame is
     // gain * radiance * (area of the projected quadrilateral in px²) when coverage is integrated honestly
