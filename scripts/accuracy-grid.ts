@@ -22,6 +22,7 @@ const pointErrs: number[] = [];
 const uniErrs: number[] = [];
 const cornerErrs: number[] = [];
 let failures = 0;
+const worst: string[] = [];
 for (let i = 0; i < count; i++) {
   const gray = i % 2 === 1;
   const spec = randomScene(1000 + i, { width, height, pattern: gray ? 'gray' : 'white', level: gray ? 0.5 : undefined, features: [0, 0], k1: [0, 0] });
@@ -48,7 +49,11 @@ for (let i = 0; i < count; i++) {
     const tg = (truth.grids as unknown as { layout: number; placement: string; points: { relative: number }[]; uniformity: { minOverMaxPct: number } }[]).find(
       (g) => g.layout === layout && g.placement === 'cells',
     )!;
-    m.result.grid!.points.forEach((p, k) => pointErrs.push((100 * (p.relative - tg.points[k].relative)) / tg.points[k].relative));
+    m.result.grid!.points.forEach((p, k) => {
+      const e = (100 * (p.relative - tg.points[k].relative)) / tg.points[k].relative;
+      pointErrs.push(e);
+      if (Math.abs(e) > 0.8) worst.push(`${file} ${layout}-point #${p.index}: ${e.toFixed(2)} % (truth ${tg.points[k].relative.toFixed(4)})`);
+    });
     uniErrs.push(m.result.uniformity!.minOverMaxPct - tg.uniformity.minOverMaxPct);
     if (layout === 9) {
       m.result.corners!.forEach((c, k) => cornerErrs.push((100 * Math.hypot(c[0] - truth.corners[k][0], c[1] - truth.corners[k][1])) / diag));
@@ -68,4 +73,4 @@ const summary = {
   uniformityErrorPctPoints: { medianAbs: med(uniErrs), maxAbs: max(uniErrs) },
   cornerErrorPctOfDiagonal: { medianAbs: med(cornerErrs), maxAbs: max(cornerErrs) },
 };
-console.log(JSON.stringify(summary, null, 2));
+console.log(JSON.stringify({ ...summary, pointsAbove08pct: worst }, null, 2));

@@ -173,6 +173,7 @@ export async function main(argv: string[]): Promise<number> {
   const parser = yargs(argv)
     .scriptName('evenfield')
     .usage('$0 <command> [options]')
+    .parserConfiguration({ 'camel-case-expansion': false })
     .strict()
     .exitProcess(false)
     .fail((msg, err) => {

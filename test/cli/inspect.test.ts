@@ -1,0 +1,76 @@
+// The command as a user runs it: exit statuses, one-line errors, the rest of the batch still measured.
+import { spawnSync } from 'node:child_process';
+import { existsSync, mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import sharp from 'sharp';
+import { beforeAll, describe, expect, it } from 'vitest';
+import { randomScene, renderPhoto } from '../../fixtures/generator/index.js';
+
+const BIN = join(__dirname, '..', '..', 'bin', 'evenfield.js');
+
+function run(args: string[]) {
+  const r = spawnSync(process.execPath, [BIN, ...args], { encoding: 'utf8' });
+  return { status: r.status, stdout: r.stdout, stderr: r.stderr };
+}
+
+let dir: string;
+beforeAll(async () => {
+  dir = mkdtempSync(join(tmpdir(), 'ef-cli-'));
+  for (const [i, name] of ['A1_white', 'A2_white'].entries()) {
+    const spec = randomScene(40 + i, { width: 800, height: 600, features: [0, 0], focal35: [85, 85], yawDeg: [-4, 4], pitchDeg: [-4, 4], fill: [0.5, 0.6] });
+    const { buffer, ext } = await renderPhoto(spec);
+    writeFileSync(join(dir, `${name}.${ext}`), buffer);
+  }
+  // a text file with a photo's name
+  writeFileSync(join(dir, 'B1_white.jpg'), 'not a photo at all\n');
+  // a real JPEG with nothing in it but an even gray wall: no panel to find
+  const gray = await sharp({ create: { width: 800, height: 600, channels: 3, background: { r: 90, g: 90, b: 90 } } }).jpeg().toBuffer();
+  writeFileSync(join(dir, 'C1_white.jpg'), gray);
+});
+
+describe('evenfield inspect', () => {
+  it('names each unusable photo on one line, exits 2, and still measures the others', () => {
+    const out = join(dir, 'out');
+    const r = run(['inspect', dir, '--out', out, '--panel-size', '597.9x336.3', '--no-pdf', '--no-mura', '--jobs', '1', '--quiet']);
+    expect(r.status).toBe(2);
+    const errors = r.stderr.split('\n').filter((l) => l.startsWith('error: '));
+    expect(errors).toHaveLength(2);
+    expect(errors.find((l) => l.includes('B1_white.jpg'))).toMatch(/B1_white\.jpg: .*not an image/);
+    expect(errors.find((l) => l.includes("C1_white.jpg"))).toMatch(/C1_white\.jpg: no bright, roughly quadrilateral region found/);
+    const res = JSON.parse(readFileSync(join(out, 'results.json'), 'utf8'));
+    const byPanel = Object.fromEntries(res.panels.map((p: { panel: string }) => [p.panel, p]));
+    expect(byPanel.A1.photos[0].status).toBe('ok');
+    expect(byPanel.A2.photos[0].status).toBe('ok');
+    expect(byPanel.A1.photos[0].grid.points).toHaveLength(9);
+    expect(byPanel.B1.verdict).toBe('error');
+    expect(byPanel.B1.photos[0].errorCode).toBe('unreadable');
+    expect(byPanel.C1.verdict).toBe('error');
+    expect(byPanel.C1.photos[0].errorCode).toBe('no-panel');
+    expect(existsSync(join(out, 'results.csv'))).toBe(true);
+  });
+
+  it('refuses to overwrite a previous run without --force', () => {
+    const out = join(dir, 'out2');
+    const args = ['inspect', join(dir, 'A1_white.jpg'), '--out', out, '--panel-size', '597.9x336.3', '--no-pdf', '--jobs', '1', '--quiet'];
+    expect(run(args).status).not.toBe(2);
+    const again = run(args);
+    expect(again.status).toBe(2);
+    expect(again.stderr.trim()).toMatch(/^evenfield: .*out2: holds a previous run: add --resume to finish it or --force to replace it$/);
+    expect(run([...args, '--force']).status).not.toBe(2);
+  });
+
+  it('rejects an unknown option with one line and exit status 2', () => {
+    const r = run(['inspect', dir, '--spot-size', '3']);
+    expect(r.status).toBe(2);
+    const lines = r.stderr.trim().split('\n');
+    expect(lines).toHaveLength(1);
+    expect(lines[0]).toMatch(/^evenfield: Unknown argument: spot-size/);
+  });
+
+  it('rejects a missing input with one line naming it', () => {
+    const r = run(['inspect', join(dir, 'nope.jpg'), '--out', join(dir, 'o3')]);
+    expect(r.status).toBe(2);
+    expect(r.stderr.trim()).toMatch(/nope\.jpg: no such file or folder$/);
+  });
+});
