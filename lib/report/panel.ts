@@ -170,7 +170,7 @@ export async function renderPanelPdf(input: PanelReportInput): Promise<Buffer> {
     generated: generatedDate(input.generated),
   });
   const flow = new Flow(doc);
-  const ctx: Ctx = { doc, flow, input, id, prepared, bars, lumMap, conMap, sections: [], deferred: [] };
+  const ctx: Ctx = { doc, flow, input, id, prepared, bars, lumMap, conMap, sections: [], deferred: [], lastPatternBare: false };
 
   drawSummary(ctx);
   for (const p of prepared) drawPattern(ctx, p);
@@ -200,10 +200,12 @@ interface Ctx {
   sections: Array<{ title: string; page: number }>;
   /** drawing that needs page numbers known only at the end */
   deferred: Array<() => void>;
+  /** the previous pattern section had nothing but its error */
+  lastPatternBare: boolean;
 }
 
-function startSection(ctx: Ctx, title: string): void {
-  ctx.flow.newPage();
+function startSection(ctx: Ctx, title: string, newPage = true): void {
+  if (newPage) ctx.flow.newPage();
   ctx.sections.push({ title, page: ctx.flow.pageCount });
 }
 
@@ -227,7 +229,7 @@ function verdictLine(ctx: Ctx): string {
 function drawSummary(ctx: Ctx): void {
   const { doc, flow, input } = ctx;
   const { panel } = input;
-  startSection(ctx, 'Verdict and reasons');
+  startSection(ctx, 'Verdict');
 
   textAt(doc, 'Display uniformity report', PAGE.left, flow.y, PAGE.contentWidth, { font: 'Sans-Bold', size: 17 });
   flow.gap(26);
@@ -278,7 +280,17 @@ function drawSummary(ctx: Ctx): void {
   const noteX = bx + 265;
   doc.moveTo(noteX - 10, by + 10).lineTo(noteX - 10, by + bannerH - 10).lineWidth(0.5).strokeColor(RULE).stroke();
   textAt(doc, ESTIMATE_NOTICE, noteX, by + 9, PAGE.right - noteX - 10, { size: 7.6, lineGap: 0.6 });
-  flow.y = by + bannerH + 10;
+  flow.y = by + bannerH + 5;
+
+  // contents on one or two lines, filled in once every section's page is known
+  const contentsY = flow.y;
+  const contentsH = 22;
+  flow.y += contentsH;
+  ctx.deferred.push(() => {
+    doc.switchToPage(0);
+    const line = ctx.sections.map((s) => `${s.title} p.\u00a0${s.page}`).join('  \u00b7  ');
+    textAt(doc, `Contents:  ${line}`, PAGE.left, contentsY, PAGE.contentWidth, { size: 7.5, colour: MUTED });
+  });
 
   // reasons: the panel's reasons verbatim, in the judge's order (errors, failures, borderline)
   flow.heading('Reasons', 2);
@@ -350,7 +362,8 @@ function drawSummary(ctx: Ctx): void {
     { size: 7.8 },
   );
 
-  const judgedRows = panel.reasonDetails.filter((r) => !(r as { borderline?: boolean }).borderline);
+  // errors are listed under Reasons already; borderline notes repeat a judged figure
+  const judgedRows = panel.reasonDetails.filter((r) => r.severity !== 'error' && !(r as { borderline?: boolean }).borderline);
   if (judgedRows.length > 0) {
     flow.heading('Every figure judged', 2, 50);
     drawTable(
@@ -376,22 +389,6 @@ function drawSummary(ctx: Ctx): void {
     for (const w of warnings.slice(0, 6)) flow.text(`\u2022 ${w}`, { size: 8, after: 1.5 });
     if (warnings.length > 6) flow.text(`and ${warnings.length - 6} more on the Method page.`, { size: 8, colour: MUTED });
   }
-
-  // contents, filled in once every section's page is known
-  const rowsNeeded = 3 + ctx.prepared.length;
-  flow.heading('Contents', 3, rowsNeeded * 11);
-  const page = flow.pageCount;
-  const cy = flow.y;
-  flow.y += rowsNeeded * 11 + 4;
-  ctx.deferred.push(() => {
-    doc.switchToPage(page - 1);
-    let y = cy;
-    for (const s of ctx.sections) {
-      textAt(doc, s.title, PAGE.left, y, 380, { size: 8.5 });
-      textAt(doc, `page ${s.page}`, PAGE.left + 380, y, 60, { size: 8.5, align: 'right' });
-      y += 11;
-    }
-  });
 }
 
 function resultWord(r: Reason): string {
@@ -413,13 +410,19 @@ function drawPattern(ctx: Ctx, p: PreparedPhoto): void {
   const { doc, flow } = ctx;
   const ph = p.photo;
   const title = `${p.number}. ${patternName(ph.pattern, ph.patternLevel)} field`;
-  startSection(ctx, `Pattern ${title}`);
+  // a photo with nothing to show but its error shares a page with the next one
+  const hasContent = !!(p.photoJpeg || p.lum || p.contrast || ph.grid || ph.uniformity || ph.mura);
+  const shareable = !hasContent && flow.pageCount > 1 && ctx.lastPatternBare && flow.room > 160;
+  if (shareable) flow.gap(12);
+  startSection(ctx, title, !shareable);
+  ctx.lastPatternBare = !hasContent;
   flow.heading(title, 1);
   flow.text(`Photo ${ph.file}  \u00b7  SHA-256 ${shortHash(ph.sha256, 16)}\u2026 (full hash on the Method page)`, { size: 8, colour: MUTED, after: 6 });
 
   if (ph.status !== 'ok') {
     flow.text(`This photo could not be measured (${ph.errorCode ?? 'error'}): ${ph.error ?? 'no detail recorded'}`, { size: 10, after: 8 });
   }
+  if (!hasContent) return;
 
   // photo and key figures side by side
   const colGap = 14;
@@ -962,7 +965,7 @@ function photoMethodPairs(p: PreparedPhoto): Array<[string, string | Cell]> {
 
 function drawMethod(ctx: Ctx): void {
   const { flow, input } = ctx;
-  startSection(ctx, 'Method and traceability');
+  startSection(ctx, 'Method');
   flow.heading('Method and traceability', 1);
   flow.text(
     'Each photo was decoded to linear light, corrected for lens falloff in camera coordinates, and the panel ' +
