@@ -65,6 +65,7 @@ interface InspectArgs {
   'map-resolution'?: number;
   'work-size'?: number;
   quiet?: boolean;
+  'max-view-angle'?: number;
 }
 
 async function inspect(a: InspectArgs): Promise<number> {
@@ -124,7 +125,11 @@ async function inspect(a: InspectArgs): Promise<number> {
     mapPxPerMm: a['map-resolution'] ?? DEFAULT_MEASURE_OPTIONS.mapPxPerMm,
     workLongSide: a['work-size'] ?? DEFAULT_MEASURE_OPTIONS.workLongSide,
     artifacts: a.pdf,
+    quality: { ...DEFAULT_MEASURE_OPTIONS.quality, ...(a['max-view-angle'] !== undefined ? { maxViewAngleDeg: a['max-view-angle'] } : {}) },
   };
+  if (a['max-view-angle'] !== undefined && !(a['max-view-angle'] > 0 && a['max-view-angle'] < 90)) {
+    throw new EvenfieldError('usage', `--max-view-angle must be between 0 and 90 degrees (got ${a['max-view-angle']})`);
+  }
   const ctx: RunContext = {
     measure,
     criteria: c,
@@ -211,6 +216,7 @@ export async function main(argv: string[]): Promise<number> {
           .option('tile-grid', { type: 'string', describe: 'tiled displays: tiles COLUMNSxROWS, for seam and tile-step findings' })
           .option('map-resolution', { type: 'number', describe: 'rectified map pixels per mm (default 2)' })
           .option('work-size', { type: 'number', describe: 'decode photos down to about this long side in pixels (default 1800)' })
+          .option('max-view-angle', { type: 'number', describe: 'refuse photos that see part of the panel more than this many degrees off its normal (default 60)' })
           .option('quiet', { type: 'boolean', describe: 'no progress output' }),
       async (a) => {
         status = await inspect(a as unknown as InspectArgs);

@@ -86,16 +86,20 @@ export interface QualityLimits {
   moireColourTestPeriodPx: number;
   /**
    * Too oblique: largest angle between the panel normal and the line of sight to any point of the
-   * active area, degrees. Default 15. Why: LCD luminance and colour depend on the viewing angle; the
-   * falloff correction removes the lens's cos⁴ loss, not the panel's own angular emission. Measurement
-   * practice keeps the meter perpendicular (from memory: FPDM/IDMS); IPS white luminance is already down
-   * a few percent at 15° and VA/TN panels lose more (from memory), as large as a 5 % uniformity tolerance
-   * (ISO 12646 "within 5 % of centre"). Needs the focal length (EXIF); without it the angle is unchecked
-   * and the photo carries a warning.
+   * active area, degrees, beyond which the photo is refused. Default 60. Why 60: past it the panel is
+   * foreshortened more than 2:1 (cos 60° = 0.5), so a map pixel rests on half the camera pixels, and
+   * every panel technology's luminance has changed by far more than any uniformity tolerance; a
+   * buyer who measures LCDs strictly sets this lower in the criteria or with --max-view-angle.
+   * Between warnViewAngleDeg and this the photo is measured with a warning that says why: LCD
+   * luminance and colour depend on the viewing angle and the falloff correction removes the lens's
+   * cos⁴ loss, not the panel's own angular emission. Measurement practice keeps the meter
+   * perpendicular (from memory: FPDM/IDMS); IPS white luminance is already down a few percent at 15°
+   * and VA/TN panels lose more (from memory). Self-emitting panels (OLED, LED tiles) change less.
+   * Needs the focal length (EXIF); without it the angle is unchecked and the photo carries a warning.
    */
   maxViewAngleDeg: number;
-  /** above this viewing angle (degrees) the photo is measured with a warning. Default 10 (the README's
-   *  advice: corners within about 10° of the axis, about 3 screen diagonals away). */
+  /** above this viewing angle (degrees) the photo is measured with a warning. Default 15 (the README's
+   *  advice is corners within about 10° of the axis, about 3 screen diagonals away). */
   warnViewAngleDeg: number;
 }
 
@@ -113,8 +117,8 @@ export const DEFAULT_QUALITY_LIMITS: QualityLimits = {
   maxMoireAmplitude: 0.01,
   moireMaxPeriodPx: 32,
   moireColourTestPeriodPx: 8,
-  maxViewAngleDeg: 15,
-  warnViewAngleDeg: 10,
+  maxViewAngleDeg: 60,
+  warnViewAngleDeg: 15,
 };
 
 /** 1 where any channel is at or above the clip level. */
@@ -769,8 +773,8 @@ export function assessPanelQuality(q: QualityInput, limits: QualityLimits): Qual
     problems.push({
       code: 'too-oblique',
       message:
-        `part of the panel is seen ${va.toFixed(1)}° off its normal (limit ${limits.maxViewAngleDeg}°): LCD luminance changes with viewing angle and no ` +
-        'falloff correction removes that; shoot square-on from farther away with a longer lens',
+        `part of the panel is seen ${va.toFixed(1)}° off its normal (limit ${limits.maxViewAngleDeg}°): too oblique to measure, as the panel's own ` +
+        'angular emission and the foreshortening dominate; shoot square-on from farther away with a longer lens',
     });
   } else if (va > limits.warnViewAngleDeg) {
     warnings.push(`part of the panel is seen ${va.toFixed(1)}° off its normal: the panel's own angular emission may bias the corner values by a few percent`);
