@@ -2,6 +2,7 @@
 import { Matrix, SingularValueDecomposition } from 'ml-matrix';
 import { describe, expect, it } from 'vitest';
 import { buildCamera, focalPxFrom35 } from '../../fixtures/generator/camera.js';
+import { gaussianBlur } from '../../fixtures/generator/render.js';
 import { renderPhotoPixels } from '../../fixtures/generator/photo.js';
 import type { CameraSpec, PhotoSpec } from '../../fixtures/generator/types.js';
 
@@ -151,5 +152,92 @@ describe('generator camera', () => {
     // at r = 1 (half diagonal away from the optical centre): 1 + k1 + k2
     expect(cam.falloff(cam.ox + half, cam.oy)).toBeCloseTo(1 - 0.2 + 0.05, 12);
     expect(cam.falloff(cam.ox, cam.oy + half / 2)).toBeCloseTo(1 - 0.2 / 4 + 0.05 / 16, 12);
+  });
+});
+
+describe('viewing angle and angular emission', () => {
+  it('viewing angle at the centre equals the tilt; at a corner it follows from the camera position (ml-matrix)', () => {
+    const cs: CameraSpec = { width: 1600, height: 1200, focal35: 30, yawDeg: 10, pitchDeg: -6, rollDeg: 2, fill: 0.75 };
+    const W = 597.9;
+    const H = 336.3;
+    const cam = buildCamera(cs, W, H);
+    // no shift: the camera looks at the panel centre, so the angle there is the angle between axis and normal
+    expect((Math.acos(cam.viewCos(W / 2, H / 2)) * 180) / Math.PI).toBeCloseTo(cam.tiltDeg, 9);
+    // camera centre in panel coordinates from R and t by ml-matrix: C = -R^T t
+    const R = new Matrix([cam.R.slice(0, 3), cam.R.slice(3, 6), cam.R.slice(6, 9)]);
+    const C = R.transpose().mmul(Matrix.columnVector(cam.t)).mul(-1);
+    const P = [0 - W / 2, H - H / 2, 0]; // bottom-left corner, panel-centred
+    const v = [C.get(0, 0) - P[0], C.get(1, 0) - P[1], C.get(2, 0) - P[2]];
+    const cosRef = -v[2] / Math.hypot(v[0], v[1], v[2]); // the viewer's side is -z in panel coordinates
+    expect(cam.viewCos(0, H)).toBeCloseTo(cosRef, 12);
+  });
+
+  it('a panel emitting cos^p towards the camera: centre pixel = gain x cos(yaw)^p (no falloff, no noise)', () => {
+    const base: PhotoSpec = {
+      seed: 2,
+      panel: { widthMm: 300, heightMm: 200, pattern: 'white', viewingExponent: 2 },
+      camera: { width: 201, height: 151, focal35: 35, fill: 0.6, yawDeg: 20, cos4: false },
+      noise: null,
+      exposure: { gain: 0.5 },
+    };
+    const { image, truth } = renderPhotoPixels(base);
+    const h = truth.homographyMmToImage;
+    const w = h[6] * 150 + h[7] * 100 + h[8];
+    // the centre of the panel projects to the image centre (100, 75) without shift
+    expect((h[0] * 150 + h[1] * 100 + h[2]) / w).toBeCloseTo(100, 9);
+    expect((h[3] * 150 + h[4] * 100 + h[5]) / w).toBeCloseTo(75, 9);
+    expect(truth.camera.viewingAngleDeg.centre).toBeCloseTo(20, 9);
+    expect(image.data[(75 * 201 + 100) * 3 + 1]).toBeCloseTo(0.5 * Math.cos((20 * Math.PI) / 180) ** 2, 4);
+  });
+});
+
+describe('optical blur', () => {
+  it('a point of light spreads as the sampled 2-D Gaussian of the given sigma', () => {
+    const w = 41;
+    const data = new Float32Array(w * w * 3);
+    data[(20 * w + 20) * 3 + 1] = 1;
+    const sigma = 1.7;
+    gaussianBlur(data, w, w, sigma);
+    for (const [i, j] of [
+      [0, 0],
+      [1, 0],
+      [3, 2],
+      [5, -4],
+    ]) {
+      // continuous Gaussian density; the sampled kernel's sum differs from sqrt(2 pi) sigma by < 1e-9 for
+      // sigma >= 1, but truncation at 4 sigma (renormalised) lifts every weight by ~1e-4 relative
+      const ref = Math.exp(-(i * i + j * j) / (2 * sigma * sigma)) / (2 * Math.PI * sigma * sigma);
+      expect(Math.abs(data[((20 + j) * w + 20 + i) * 3 + 1] / ref - 1)).toBeLessThan(2e-4);
+    }
+    let sum = 0;
+    for (let k = 1; k < data.length; k += 3) sum += data[k];
+    expect(sum).toBeCloseTo(1, 6);
+  });
+
+  it('blur keeps the light of a rendered panel (edges away from the frame border)', () => {
+    const spec: PhotoSpec = {
+      seed: 3,
+      panel: { widthMm: 300, heightMm: 200, pattern: 'white', bezelMm: 5 },
+      camera: { width: 200, height: 150, focal35: 30, yawDeg: 7, fill: 0.6, cos4: false, blurPx: 1.5 },
+      noise: null,
+      surround: { ambient: 0, spill: 0 },
+      exposure: { gain: 0.5 },
+    };
+    const blurred = renderPhotoPixels(spec).image.data;
+    const sharp = renderPhotoPixels({ ...spec, camera: { ...spec.camera, blurPx: 0 } }).image.data;
+    let a = 0;
+    let b = 0;
+    for (let k = 1; k < blurred.length; k += 3) {
+      a += blurred[k];
+      b += sharp[k];
+    }
+    expect(a / b).toBeCloseTo(1, 6);
+    // and it does blur: the largest pixel-to-pixel step shrinks
+    const maxStep = (d: Float32Array) => {
+      let m = 0;
+      for (let k = 3; k < d.length; k += 3) m = Math.max(m, Math.abs(d[k + 1] - d[k - 2]));
+      return m;
+    };
+    expect(maxStep(blurred)).toBeLessThan(0.5 * maxStep(sharp));
   });
 });
