@@ -403,6 +403,10 @@ export function findCandidates(img: CoarseImage, opts: CoarseOptions): CoarseCan
     const { labels, sizes, boxes } = labelComponents(mask, w, h, stack);
     for (let label = 1; label < sizes.length; label++) {
       if (sizes[label] < minArea) continue;
+      // A region touching all four sides of the frame (the wall, the whole scene) has no outline of its
+      // own to trace.
+      const bx = boxes[label];
+      if (bx[0] === 0 && bx[1] === 0 && bx[2] === w - 1 && bx[3] === h - 1) continue;
       const filled = filledComponent(labels, label, boxes[label], w, h);
       const [bx0, by0, bx1, by1] = filled.bbox;
       const touchesBorder = bx0 === 0 || by0 === 0 || bx1 === w - 1 || by1 === h - 1;

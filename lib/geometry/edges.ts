@@ -62,6 +62,8 @@ export interface EdgeFit {
   snr: number;
   /** number of profiles that ran off the image */
   offFrame: number;
+  /** 'peak' mode: median full width at half maximum of the profiles' luminance drop (line spread), px */
+  lsfFwhm: number;
 }
 
 /** Bilinear sample; NaN outside the span of pixel centres. */
@@ -150,8 +152,8 @@ export class ProfileScratch {
     if (this.d.length < n) {
       this.d = new Float64Array(n);
       this.v = new Float64Array(n);
-      this.tmp = new Float64Array(n);
     }
+    if (this.tmp.length < 2 * n) this.tmp = new Float64Array(2 * n);
   }
 }
 
@@ -163,13 +165,15 @@ interface ProfileGeometry {
   n: number;
   inEnd: number;
   outStart: number;
+  /** end (exclusive) of the outside level window; n unless a structure beyond the bezel cuts it short */
+  outEnd: number;
 }
 
 function profileGeometry(g: number, R: number): ProfileGeometry {
   const nHalf = Math.round(R / STEP);
   const gi = Math.min(nHalf - 3, Math.round(g / STEP));
   const n = 2 * nHalf + 1;
-  return { nHalf, gi, n, inEnd: nHalf - gi + 1, outStart: nHalf + gi };
+  return { nHalf, gi, n, inEnd: nHalf - gi + 1, outStart: nHalf + gi, outEnd: n };
 }
 
 /**
@@ -202,6 +206,112 @@ function sampleProfile(
 }
 
 /**
+ * Where the outside level window should end for this edge. A bezel can be narrower than the window;
+ * beyond it lies the wall, often far brighter than the bezel. Take the median over the edge's profiles of
+ * each profile normalised by its own inside level, find the outside plateau just past the blur, and stop
+ * the window one pixel before the median profile rises above the plateau by more than half the plateau
+ * level (and 4 times the median profile's noise). Keeps at least 2 samples (1 px).
+ */
+function outsideWindowEnd(values: Float64Array, count: number, inFrame: Uint8Array, geo: ProfileGeometry): number {
+  const { n, inEnd, outStart } = geo;
+  const m = new Float64Array(n);
+  const col: number[] = [];
+  const scale = new Float64Array(count);
+  let used = 0;
+  for (let k = 0; k < count; k++) {
+    if (!inFrame[k]) continue;
+    const inside = windowMean(values.subarray(k * n, (k + 1) * n), 0, inEnd);
+    scale[k] = inside > 0 ? 1 / inside : 0;
+    if (scale[k] > 0) used++;
+  }
+  if (used < 5) return n;
+  for (let i = outStart; i < n; i++) {
+    col.length = 0;
+    for (let k = 0; k < count; k++) if (scale[k] > 0) col.push(values[k * n + i] * scale[k]);
+    m[i] = medianOf(col);
+  }
+  // noise of the median profile: spread of single normalised samples at the window start / sqrt(count)
+  col.length = 0;
+  for (let k = 0; k < count; k++) if (scale[k] > 0) col.push(values[k * n + outStart] * scale[k]);
+  const spread = 1.4826 * medianOf(col.map((v) => Math.abs(v - m[outStart])));
+  const noiseM = (1.2533 * spread) / Math.sqrt(used);
+  const plateau = 0.5 * (m[outStart] + m[Math.min(n - 1, outStart + 1)]);
+  const threshold = plateau + Math.max(0.5 * Math.abs(plateau), 4 * noiseM);
+  let end = n;
+  for (let i = outStart + 2; i < n; i++) {
+    if (m[i] > threshold) {
+      end = i - Math.round(1 / STEP); // one pixel back from the rise
+      break;
+    }
+  }
+  return Math.max(outStart + 2, Math.min(n, end));
+}
+
+/**
+ * Rough edge position of one profile for the first pass: the steepest bright-to-dark drop (outward)
+ * within the central window, found on the profile smoothed by a Gaussian of 1 px, refined by a parabola
+ * through the derivative. Needs no level windows, so a bezel narrower than the window or a bright wall
+ * beyond it does not matter. Also measures the drop's full width at half maximum.
+ */
+function locatePeak(
+  base: Point,
+  v: Float64Array,
+  geo: ProfileGeometry,
+  opts: EdgeOptions,
+  tmp: Float64Array,
+): ProfileResult & { fwhm: number } {
+  const { n, nHalf, gi } = geo;
+  const bad = { base, offset: 0, inside: 0, outside: 0, noise: 0, ok: false, offFrame: false, fwhm: Number.NaN };
+  // smooth: Gaussian sigma = 1 px = 2 samples, taps to ±3 sigma
+  const K = [0.0044, 0.054, 0.242, 0.399, 0.242, 0.054, 0.0044];
+  const sm = tmp;
+  for (let i = 0; i < n; i++) {
+    let acc = 0;
+    let wsum = 0;
+    for (let j = -3; j <= 3; j++) {
+      const ii = i + 2 * j;
+      if (ii < 0 || ii >= n) continue;
+      acc += K[j + 3] * v[ii];
+      wsum += K[j + 3];
+    }
+    sm[n + i] = acc / wsum;
+  }
+  // derivative per sample (central difference); most negative in the central window
+  const der = (i: number) => (sm[n + Math.min(n - 1, i + 1)] - sm[n + Math.max(0, i - 1)]) / (2 * STEP);
+  let best = 0;
+  let bi = -1;
+  for (let i = Math.max(1, nHalf - gi); i <= Math.min(n - 2, nHalf + gi); i++) {
+    const dv = der(i);
+    if (dv < best) {
+      best = dv;
+      bi = i;
+    }
+  }
+  if (bi < 0) return bad;
+  const y0 = der(bi - 1);
+  const y1 = best;
+  const y2 = der(bi + 1);
+  const den = y0 - 2 * y1 + y2;
+  const frac = den !== 0 ? Math.max(-0.5, Math.min(0.5, (0.5 * (y0 - y2)) / den)) : 0;
+  const offset = (bi + frac - nHalf) * STEP;
+  // levels 3 px either side of the drop on the smoothed profile
+  const at = (i: number) => sm[n + Math.max(0, Math.min(n - 1, i))];
+  const inside = at(bi - Math.round(3 / STEP));
+  const outside = at(bi + Math.round(3 / STEP));
+  // full width at half maximum of the drop
+  let lo = bi;
+  while (lo > 0 && der(lo - 1) < best / 2) lo--;
+  let hi = bi;
+  while (hi < n - 1 && der(hi + 1) < best / 2) hi++;
+  const fwhm = (hi - lo + 1) * STEP;
+  const result = { base, offset, inside, outside, noise: 0, ok: false, offFrame: false, fwhm };
+  if (!(inside > outside)) return result;
+  if (outside > 0 && inside < opts.minEdgeRatio * outside) return result;
+  result.ok = true;
+  return result;
+}
+
+/**
  * Edge position of one sampled profile (values v at offsets d), given the slopes of the inside and
  * outside levels. Fills in a ProfileResult.
  */
@@ -215,9 +325,9 @@ function locateEdge(
   opts: EdgeOptions,
   tmp: Float64Array,
 ): ProfileResult {
-  const { n, inEnd, outStart, gi } = geo;
+  const { inEnd, outStart, gi } = geo;
   const [ai, ri] = levelWithSlope(d, v, 0, inEnd, slopeIn, tmp);
-  const [ao, ro] = levelWithSlope(d, v, outStart, n, slopeOut, tmp);
+  const [ao, ro] = levelWithSlope(d, v, outStart, geo.outEnd, slopeOut, tmp);
   const noise = Math.sqrt(0.5 * (ri * ri + ro * ro));
   const result: ProfileResult = { base, offset: 0, inside: ai, outside: ao, noise, ok: false, offFrame: false };
   const step = ai - ao;
@@ -361,6 +471,7 @@ export function fitEdge(
   R: number,
   opts: EdgeOptions,
   scratch: ProfileScratch,
+  mode: 'area' | 'peak' = 'area',
 ): EdgeFit | null {
   const dx = b[0] - a[0];
   const dy = b[1] - a[1];
@@ -388,13 +499,17 @@ export function fitEdge(
     bases.push(base);
     if (!sampleProfile(lum, base, normal, dir, geo, taps, values, k * geo.n)) continue;
     inFrame[k] = 1;
+  }
+  geo.outEnd = outsideWindowEnd(values, count, inFrame, geo);
+  for (let k = 0; k < count; k++) {
+    if (!inFrame[k]) continue;
     const v = values.subarray(k * geo.n, (k + 1) * geo.n);
     // Clamp each slope to a plausible relative gradient: anything steeper is not falloff or veiling
     // glare but structure in the window (the far edge of a narrow bezel, a bright background).
     const capIn = opts.maxLevelSlope * Math.abs(windowMean(v, 0, geo.inEnd));
-    const capOut = opts.maxLevelSlope * Math.abs(windowMean(v, geo.outStart, geo.n));
+    const capOut = opts.maxLevelSlope * Math.abs(windowMean(v, geo.outStart, geo.outEnd));
     rawIn[k] = Math.max(-capIn, Math.min(capIn, windowSlope(d, v, 0, geo.inEnd)));
-    rawOut[k] = Math.max(-capOut, Math.min(capOut, windowSlope(d, v, geo.outStart, geo.n)));
+    rawOut[k] = Math.max(-capOut, Math.min(capOut, windowSlope(d, v, geo.outStart, geo.outEnd)));
   }
   // Level slopes across the edge (falloff, smooth glare) change slowly along it - for a radial quadratic
   // falloff they are constant along a straight edge - while one profile's slope, extrapolated from its
@@ -405,6 +520,7 @@ export function fitEdge(
   const slopeIn = smoothAlongEdge(ts, rawIn, inFrame);
   const slopeOut = smoothAlongEdge(ts, rawOut, inFrame);
   const profiles: ProfileResult[] = [];
+  const fwhms: number[] = [];
   let offFrame = 0;
   for (let k = 0; k < count; k++) {
     if (!inFrame[k]) {
@@ -413,7 +529,13 @@ export function fitEdge(
       continue;
     }
     const v = values.subarray(k * geo.n, (k + 1) * geo.n);
-    profiles.push(locateEdge(bases[k], d, v, geo, slopeIn[k], slopeOut[k], opts, tmp));
+    if (mode === 'peak') {
+      const r = locatePeak(bases[k], v, geo, opts, tmp);
+      profiles.push(r);
+      if (r.ok) fwhms.push(r.fwhm);
+    } else {
+      profiles.push(locateEdge(bases[k], d, v, geo, slopeIn[k], slopeOut[k], opts, tmp));
+    }
   }
   // Glare and reflections lower the local contrast ratio (they add light to both sides): drop profiles
   // whose log contrast falls well below the edge's median.
@@ -486,7 +608,9 @@ export function fitEdge(
     }
     const next = tlsLine(px, py, w);
     if (!next) return null;
+    const moved = Math.abs(next.c - line.c) + 1000 * Math.abs(next.nx * line.ny - next.ny * line.nx);
     line = next;
+    if (moved < 1e-5) break;
   }
   // Orient the line normal outward.
   if (line.nx * normal[0] + line.ny * normal[1] < 0) line = { nx: -line.nx, ny: -line.ny, c: -line.c };
@@ -515,6 +639,7 @@ export function fitEdge(
     contrastRatio: medianOf(ratios),
     snr: medianOf(snrs),
     offFrame,
+    lsfFwhm: fwhms.length ? medianOf(fwhms) : Number.NaN,
   };
 }
 

@@ -138,7 +138,7 @@ function refineOnce(
       glareContrastFraction: o.glareContrastFraction,
       maxLevelSlope: o.maxLevelSlope,
     };
-    const fit = fitEdge(lum, a, b, g, R, eo, scratch);
+    const fit = fitEdge(lum, a, b, g, R, eo, scratch, rough ? 'peak' : 'area');
     if (!fit || fit.inliers / fit.profiles.length < o.minInlierFraction) {
       // An edge whose profiles run off the image lies along or beyond the frame border.
       const off = fit ? fit.offFrame / fit.profiles.length : offFrameFraction(lum, a, b, R);
@@ -198,16 +198,19 @@ function cornersFromFits(fits: EdgeFit[]): Corners {
 
 function refine(lum: Plane, start: Corners, f: number, o: Resolved): Refined {
   const scratch = new ProfileScratch(256);
-  // Pass 1: windows wide enough to hold the edge wherever the coarse outline put it (a few coarse pixels).
+  // Pass 1: the steepest drop near the coarse outline, searched over a few coarse pixels either side.
   let g = 1.5 * f + 4;
-  let R = g + Math.max(4, f);
+  let R = g + 3;
   let q = start;
   let fits = refineOnce(lum, q, g, R, o, scratch, true);
   q = cornersFromFits(fits);
-  let widths = fits.map((fit) => edgeSpreadWidth(lum, fit, R, 3));
+  // For a Gaussian spread, the 10-90 % width is 1.09 times the FWHM of the drop (2.563 σ vs 2.355 σ);
+  // the 1-px Gaussian smoothing of pass 1 (FWHM 2.355 px) is taken out in quadrature first.
+  let widths = fits.map((fit) => 1.09 * Math.sqrt(Math.max(0, fit.lsfFwhm ** 2 - 2.355 ** 2)));
   // Passes 2 and 3: windows sized to the measured edge width, centred on the previous lines. The
-  // integration window reaches just past the blur (the 10-90 % width spans about 0.8 of a Gaussian
-  // edge's 1-99 % range), the level windows just beyond it, so a narrow bezel matters as little as possible.
+  // integration window reaches just past the blur (a Gaussian edge is within 1 % of its levels 0.91 of
+  // the 10-90 % width from its centre; bilinear sampling adds up to half a pixel), the level windows just
+  // beyond it, so a narrow bezel matters as little as possible.
   for (let pass = 0; pass < 2; pass++) {
     checkQuadrilateral(q, lum.width, lum.height, {
       minCornerAngleDeg: o.minCornerAngleDeg,
@@ -215,7 +218,7 @@ function refine(lum: Plane, start: Corners, f: number, o: Resolved): Refined {
       minAreaFraction: o.minAreaFraction,
     });
     const w = median(widths);
-    g = Math.max(2.5, (Number.isFinite(w) ? w : 2) + 1.5);
+    g = Math.max(2, (Number.isFinite(w) ? w : 2) + 1);
     R = g + Math.max(4, 0.75 * g);
     fits = refineOnce(lum, q, g, R, o, scratch, false);
     q = cornersFromFits(fits);
