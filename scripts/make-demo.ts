@@ -22,6 +22,7 @@ const CAMERA: Omit<CameraSpec, 'yawDeg' | 'pitchDeg' | 'rollDeg' | 'fill' | 'shi
   cropFactor: 1.5,
   k1: 0.35,
   k2: 0.1,
+  blurPx: 0.7,
   make: 'Fieldglass',
   model: 'FG-1 (synthetic)',
   lens: '20 mm f/2.8 (30 mm equivalent)',
