@@ -117,20 +117,57 @@ function rectifyInterleaved(
         wys[l - l0] = wl > 0 ? wl : 0;
         sy += wys[l - l0];
       }
-      for (let c = 0; c < nc; c++) acc[c] = 0;
-      for (let l = l0; l <= l1; l++) {
-        const wl = wys[l - l0];
-        if (wl === 0) continue;
-        const rowBase = l * W;
-        for (let k = k0; k <= k1; k++) {
-          const wgt = wl * wxs[k - k0];
-          const base = (rowBase + k) * nc;
-          for (let c = 0; c < nc; c++) acc[c] += wgt * data[base + c];
-        }
-      }
       const norm = 1 / (sx * sy);
       const o = (j * outWidth + i) * nc;
-      for (let c = 0; c < nc; c++) out[o + c] = acc[c] * norm;
+      if (nc === 3) {
+        let a0 = 0;
+        let a1 = 0;
+        let a2 = 0;
+        for (let l = l0; l <= l1; l++) {
+          const wl = wys[l - l0];
+          if (wl === 0) continue;
+          let r0 = 0;
+          let r1 = 0;
+          let r2 = 0;
+          let base = (l * W + k0) * 3;
+          for (let k = 0; k < nk; k++, base += 3) {
+            const wk = wxs[k];
+            r0 += wk * data[base];
+            r1 += wk * data[base + 1];
+            r2 += wk * data[base + 2];
+          }
+          a0 += wl * r0;
+          a1 += wl * r1;
+          a2 += wl * r2;
+        }
+        out[o] = a0 * norm;
+        out[o + 1] = a1 * norm;
+        out[o + 2] = a2 * norm;
+      } else if (nc === 1) {
+        let a0 = 0;
+        for (let l = l0; l <= l1; l++) {
+          const wl = wys[l - l0];
+          if (wl === 0) continue;
+          let r0 = 0;
+          const base = l * W + k0;
+          for (let k = 0; k < nk; k++) r0 += wxs[k] * data[base + k];
+          a0 += wl * r0;
+        }
+        out[o] = a0 * norm;
+      } else {
+        for (let c = 0; c < nc; c++) acc[c] = 0;
+        for (let l = l0; l <= l1; l++) {
+          const wl = wys[l - l0];
+          if (wl === 0) continue;
+          const rowBase = l * W;
+          for (let k = k0; k <= k1; k++) {
+            const wgt = wl * wxs[k - k0];
+            const base = (rowBase + k) * nc;
+            for (let c = 0; c < nc; c++) acc[c] += wgt * data[base + c];
+          }
+        }
+        for (let c = 0; c < nc; c++) out[o + c] = acc[c] * norm;
+      }
       valid[j * outWidth + i] = 1;
     }
   }
