@@ -1,7 +1,6 @@
 // One photo, end to end: decode → linear light → falloff → panel → rectify → grid → mura.
 // Plain data in, plain data out; the only file it reads is the photo itself.
 
-import sharp from 'sharp';
 import { decodePhotoBuffer, readInputFile } from '../io/index.js';
 import type { DecodedPhoto } from '../io/index.js';
 import { SRGB_TO_XYZ, luminancePlane, srgbEncode } from '../photometry/index.js';
@@ -151,15 +150,15 @@ function rgbToXyzMap(rgb: RgbImage, valid: Uint8Array, widthMm: number, heightMm
   const X = new Float32Array(n);
   const Y = new Float32Array(n);
   const Z = new Float32Array(n);
-  const M = SRGB_TO_XYZ;
+  const [m0, m1, m2, m3, m4, m5, m6, m7, m8] = SRGB_TO_XYZ as [number, number, number, number, number, number, number, number, number];
   const d = rgb.data;
   for (let i = 0, k = 0; i < n; i++, k += 3) {
     const r = d[k];
     const g = d[k + 1];
     const b = d[k + 2];
-    X[i] = M[0] * r + M[1] * g + M[2] * b;
-    Y[i] = M[3] * r + M[4] * g + M[5] * b;
-    Z[i] = M[6] * r + M[7] * g + M[8] * b;
+    X[i] = m0 * r + m1 * g + m2 * b;
+    Y[i] = m3 * r + m4 * g + m5 * b;
+    Z[i] = m6 * r + m7 * g + m8 * b;
   }
   return { width: rgb.width, height: rgb.height, pxPerMm, widthMm, heightMm, mmKnown, X, Y, Z, valid };
 }
@@ -215,11 +214,24 @@ function relativeMapOf(map: PanelMap, centreY: number, maxWidth: number): Plane 
   return { width: w, height: h, data: out };
 }
 
+/**
+ * The falloff transmission of the last photo: the photos of a lot share the camera, the profile and the
+ * size, so each worker evaluates the model once. Keyed by value (task data reaches a worker as a copy);
+ * the planes are only read (applyTransmission divides the image by them).
+ */
+let lastTransmission: { key: string; value: Transmission } | null = null;
+function cachedTransmission(key: string, make: () => Transmission): Transmission {
+  if (lastTransmission?.key !== key) lastTransmission = { key, value: make() };
+  return lastTransmission.value;
+}
+
 /** Measure one photo. Never throws for a problem with the photo: it comes back as status 'error'. */
 export async function measurePhoto(file: string, opts: MeasureOptions): Promise<PhotoMeasurement> {
   const result = emptyResult(file, opts.pattern, opts.patternLevel);
+  // what the report can still show when the photo turns out unmeasurable
+  const partial: { thumbnail: ReportThumbnail | null } = { thumbnail: null };
   try {
-    return await measureInner(file, opts, result);
+    return await measureInner(file, opts, result, partial);
   } catch (e) {
     result.status = 'error';
     if (isEvenfieldError(e)) {
@@ -233,21 +245,21 @@ export async function measurePhoto(file: string, opts: MeasureOptions): Promise<
     }
     result.grid = null;
     result.uniformity = null;
-    return { result, artifacts: null, cornerStrength: 0 };
+    const artifacts: PhotoArtifacts | null = opts.artifacts && partial.thumbnail ? { thumbnail: partial.thumbnail, relMap: null, contrastMap: null } : null;
+    return { result, artifacts, cornerStrength: 0 };
   }
 }
 
-async function measureInner(file: string, opts: MeasureOptions, result: PhotoResult): Promise<PhotoMeasurement> {
+async function measureInner(
+  file: string,
+  opts: MeasureOptions,
+  result: PhotoResult,
+  partial: { thumbnail: ReportThumbnail | null },
+): Promise<PhotoMeasurement> {
   // 1. decode to linear light at working scale
   const buf = await readInputFile(file);
-  let scale0: 1 | 2 | 4 | 8 = 1;
-  try {
-    const meta = await sharp(buf, { limitInputPixels: false }).metadata();
-    if (meta.width && meta.height) scale0 = chooseScale(meta.width, meta.height, opts.workLongSide) as 1 | 2 | 4 | 8;
-  } catch {
-    // not a readable image: the decoder below gives the precise message
-  }
-  const decoded = await decodePhotoBuffer(buf, file, { transfer: opts.transfer, maxPixels: opts.maxPixels, scale: scale0 });
+  // the decoder picks the scale from the header it reads anyway (the rule of chooseScale)
+  const decoded = await decodePhotoBuffer(buf, file, { transfer: opts.transfer, maxPixels: opts.maxPixels, targetLongSide: opts.workLongSide });
   const scale = decoded.info.scale;
   result.sha256 = decoded.sha256;
   result.decode = decoded.info;
@@ -259,8 +271,8 @@ async function measureInner(file: string, opts: MeasureOptions, result: PhotoRes
     result.warnings.push(`EXIF orientation ${orientation} is a mirrored view: corners are ordered as the stored pixels show the panel`);
   }
   const img = decoded.image;
-  // camera levels before any correction, for the exposure gates
-  const rawLum = luminancePlane(img);
+  // camera levels before any correction, for the exposure gates (made by the decoder in its pass)
+  const rawLum = decoded.luminance;
   const clipMask = nearWhiteMask(img, opts.quality.clipLinear);
 
   // 2. lens falloff, in camera coordinates, before anything geometric
@@ -272,10 +284,11 @@ async function measureInner(file: string, opts: MeasureOptions, result: PhotoRes
       throw new EvenfieldError('falloff', `falloff profile ${opts.falloff.source} does not fit this photo: ${match.errors.join('; ')}`, file);
     }
     falloff.warnings.push(...match.warnings);
-    transmission = channelTransmissionFromProfile(opts.falloff.profile, img.width, img.height, scale, {
-      width: decoded.info.width,
-      height: decoded.info.height,
-    });
+    const profile = opts.falloff.profile;
+    const fullSize = { width: decoded.info.width, height: decoded.info.height };
+    transmission = cachedTransmission(`profile ${JSON.stringify(profile)} ${img.width}x${img.height}/${scale} of ${fullSize.width}x${fullSize.height}`, () =>
+      channelTransmissionFromProfile(profile, img.width, img.height, scale, fullSize),
+    );
     falloff.method = 'profile';
     falloff.source = opts.falloff.source;
   } else if (opts.falloff.kind === 'cos4') {
@@ -286,7 +299,8 @@ async function measureInner(file: string, opts: MeasureOptions, result: PhotoRes
     if (decoded.info.transfer !== 'linear') {
       falloff.warnings.push('cos⁴ model applied to sRGB-encoded input: cameras often correct part of the falloff in their JPEGs, so this may over-correct');
     }
-    transmission = cos4Transmission(img.width, img.height, { focal35mm: f35, fullWidth: decoded.info.width, fullHeight: decoded.info.height }, scale);
+    const model = { focal35mm: f35, fullWidth: decoded.info.width, fullHeight: decoded.info.height };
+    transmission = cachedTransmission(`cos4 ${JSON.stringify(model)} ${img.width}x${img.height}/${scale}`, () => cos4Transmission(img.width, img.height, model, scale));
     falloff.method = 'cos4-model';
     falloff.source = `cos⁴ law, ${f35} mm equivalent focal length`;
   }
@@ -441,7 +455,7 @@ async function measureInner(file: string, opts: MeasureOptions, result: PhotoRes
   const centreY = points.find((p) => p.u === 0.5 && p.v === 0.5)?.Y ?? points[0].Y;
   const artifacts: PhotoArtifacts | null = opts.artifacts
     ? {
-        thumbnail: thumbnailOf(img, scale, 900),
+        thumbnail: partial.thumbnail,
         relMap: relativeMapOf(map, centreY, 600),
         contrastMap: contrastMap ? downsamplePlane(contrastMap, 600) : null,
         panelSizeMm: { width: widthMm, height: heightMm, known },
