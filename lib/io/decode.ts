@@ -15,12 +15,18 @@
 // - Reduced scale: output pixel (i, j) at scale s covers full-size pixels [s·i, s·i + s) × [s·j, s·j + s),
 //   so full-size x maps to (x + 0.5)/s − 0.5 (see toScaled / toFullSize). Edge blocks that do not
 //   fill s×s average the pixels they have.
+// - Exposure statistics: clipped and dark fractions count every full-size pixel; the median and the
+//   99.9th percentile of linear Y are exact up to about a million decoded pixels and taken on a regular
+//   lattice of them beyond (exposureQuantiles).
+// - Speed: the file's bytes are hashed and its EXIF read while sharp decodes in the thread pool; codes
+//   become linear light, block means, luminance and the clip/dark counts in one pass without allocation
+//   per pixel (reduceLinearBox).
 
 import sharp from 'sharp';
 import type { Metadata, OutputInfo, Sharp } from 'sharp';
-import type { DecodeInfo, ExposureRecord, ExposureStats, RgbImage } from '../types.js';
+import type { DecodeInfo, ExposureRecord, ExposureStats, Plane, RgbImage } from '../types.js';
 import { EvenfieldError } from '../errors.js';
-import { decodeLut, luminancePlane } from '../photometry/index.js';
+import { SRGB_TO_XYZ, decodeLut } from '../photometry/index.js';
 import { readExif } from './exif.js';
 import { readInputFile, sha256OfBuffer } from './files.js';
 import { describeDecodeFailure, describeStart, formatName, sniffFormat } from './sniff.js';
@@ -48,6 +54,11 @@ export interface DecodeOptions {
   maxPixels?: number;
   /** Decode at 1/scale of full size (1, 2, 4 or 8; default 1). */
   scale?: 1 | 2 | 4 | 8;
+  /**
+   * Instead of `scale`: decode at the largest power-of-two reduction (up to 8) that keeps the long side
+   * at least this many pixels, decided from the file's header (see scaleForLongSide).
+   */
+  targetLongSide?: number;
   /** How to reduce when scale > 1 (default 'linear-box'). */
   method?: ScaleMethod;
   /** A pixel counts as clipped when any channel code ≥ clipLevel × white (default 0.98; common practice). */
@@ -59,6 +70,9 @@ export interface DecodeOptions {
 export interface DecodedPhoto {
   /** linear light, relative to the encoding's white, sensor orientation */
   image: RgbImage;
+  /** linear Y of `image` as decoded (luminancePlane of it), made in the same pass; not updated if
+   *  `image` is changed in place afterwards */
+  luminance: Plane;
   info: DecodeInfo;
   exposure: ExposureRecord;
   sha256: string;
@@ -74,6 +88,14 @@ export interface DecodedPhoto {
 
 export const DEFAULT_MAX_PIXELS = 100_000_000;
 const ACCEPTED_FORMATS = new Set(['jpeg', 'png', 'tiff', 'webp', 'gif', 'heif', 'jxl']);
+
+/** The largest power-of-two reduction (1 … 8) whose long side stays at least `longSide` pixels. */
+export function scaleForLongSide(width: number, height: number, longSide: number): 1 | 2 | 4 | 8 {
+  const long = Math.max(width, height);
+  let s = 1;
+  while (s < 8 && long / (s * 2) >= longSide) s *= 2;
+  return s as 1 | 2 | 4 | 8;
+}
 
 /** Full-size camera x (or y) to the same point at decode scale s. */
 export function toScaled(x: number, s: number): number {
@@ -192,8 +214,11 @@ function thresholds(bitDepth: 8 | 16, clipLevel: number, darkLevel: number): { c
   return { clipCode: Math.ceil(clipLevel * white - 1e-9), darkCode: Math.ceil(darkLevel * white - 1e-9) };
 }
 
-interface Reduced {
+export interface Reduced {
+  /** linear RGB, interleaved, width × height × 3 */
   data: Float32Array;
+  /** linear Y of `data` (the same values as luminancePlane of it), width × height */
+  luminance: Float32Array;
   width: number;
   height: number;
   clipped: number;
@@ -201,9 +226,16 @@ interface Reduced {
   pixels: number;
 }
 
+// Luminance weights: the second row of SRGB_TO_XYZ, as luminancePlane uses them.
+const YR = SRGB_TO_XYZ[3]!;
+const YG = SRGB_TO_XYZ[4]!;
+const YB = SRGB_TO_XYZ[5]!;
+
 /**
  * Code values (interleaved RGB) -> linear light through `lut`, averaged over s×s blocks in linear light,
- * counting clipped and dark pixels of the input in the same pass.
+ * counting clipped and dark pixels of the input in the same pass, and the luminance of each output pixel.
+ * The scale-2 reduction of 8-bit codes (the pipeline's usual case) has its own loop over whole 2×2 blocks;
+ * every path sums a block row by row and gives bit-identical results.
  */
 export function reduceLinearBox(
   src: Uint8Array | Uint16Array,
@@ -215,26 +247,51 @@ export function reduceLinearBox(
   darkCode: number,
 ): Reduced {
   if (src.length !== W * H * 3) throw new Error(`reduceLinearBox: ${src.length} codes for ${W}×${H}×3`);
+  if (s === 1) return linearise(src, W, H, lut, clipCode, darkCode);
+  if (s === 2 && src instanceof Uint8Array) return reduce2x8(src, W, H, lut, clipCode, darkCode);
+  return reduceBlocks(src, W, H, s, lut, clipCode, darkCode);
+}
+
+function linearise(src: Uint8Array | Uint16Array, W: number, H: number, lut: Float32Array, clipCode: number, darkCode: number): Reduced {
   let clipped = 0;
   let dark = 0;
-  if (s === 1) {
-    const out = new Float32Array(W * H * 3);
-    for (let i = 0; i < src.length; i += 3) {
-      const c0 = src[i]!;
-      const c1 = src[i + 1]!;
-      const c2 = src[i + 2]!;
-      const mx = c0 > c1 ? (c0 > c2 ? c0 : c2) : c1 > c2 ? c1 : c2;
-      if (mx >= clipCode) clipped++;
-      if (mx < darkCode) dark++;
-      out[i] = lut[c0]!;
-      out[i + 1] = lut[c1]!;
-      out[i + 2] = lut[c2]!;
-    }
-    return { data: out, width: W, height: H, clipped, dark, pixels: W * H };
+  const n = W * H;
+  const out = new Float32Array(n * 3);
+  const lum = new Float32Array(n);
+  for (let i = 0, k = 0; k < n; i += 3, k++) {
+    const c0 = src[i]!;
+    const c1 = src[i + 1]!;
+    const c2 = src[i + 2]!;
+    const mx = c0 > c1 ? (c0 > c2 ? c0 : c2) : c1 > c2 ? c1 : c2;
+    if (mx >= clipCode) clipped++;
+    if (mx < darkCode) dark++;
+    const r = lut[c0]!;
+    const g = lut[c1]!;
+    const b = lut[c2]!;
+    out[i] = r;
+    out[i + 1] = g;
+    out[i + 2] = b;
+    lum[k] = YR * r + YG * g + YB * b;
   }
+  return { data: out, luminance: lum, width: W, height: H, clipped, dark, pixels: n };
+}
+
+/** Any block size; blocks at the right and bottom edges that do not fill s×s average the pixels they have. */
+function reduceBlocks(
+  src: Uint8Array | Uint16Array,
+  W: number,
+  H: number,
+  s: number,
+  lut: Float32Array,
+  clipCode: number,
+  darkCode: number,
+): Reduced {
+  let clipped = 0;
+  let dark = 0;
   const w = Math.ceil(W / s);
   const h = Math.ceil(H / s);
   const out = new Float32Array(w * h * 3);
+  const lum = new Float32Array(w * h);
   const acc = new Float64Array(w * 3);
   for (let oy = 0; oy < h; oy++) {
     acc.fill(0);
@@ -270,12 +327,142 @@ export function reduceLinearBox(
       const cols = Math.min(W, ox * s + s) - ox * s;
       const inv = 1 / (rows * cols);
       const o = ox * 3;
-      out[base + o] = acc[o]! * inv;
-      out[base + o + 1] = acc[o + 1]! * inv;
-      out[base + o + 2] = acc[o + 2]! * inv;
+      const r = Math.fround(acc[o]! * inv);
+      const g = Math.fround(acc[o + 1]! * inv);
+      const b = Math.fround(acc[o + 2]! * inv);
+      out[base + o] = r;
+      out[base + o + 1] = g;
+      out[base + o + 2] = b;
+      lum[oy * w + ox] = YR * r + YG * g + YB * b;
     }
   }
-  return { data: out, width: w, height: h, clipped, dark, pixels: W * H };
+  return { data: out, luminance: lum, width: w, height: h, clipped, dark, pixels: W * H };
+}
+
+/**
+ * Scale 2, 8-bit: one pass over two input rows at a time, whole 2×2 blocks in the inner loop without
+ * inner loops or allocation; a last odd column or row is finished by reduceBlocks' rule (the pixels the
+ * block has). Sums (top pair) + (bottom pair) in double precision, as reduceBlocks does.
+ */
+function reduce2x8(src: Uint8Array, W: number, H: number, lut: Float32Array, clipCode: number, darkCode: number): Reduced {
+  let clipped = 0;
+  let dark = 0;
+  const w = (W + 1) >> 1;
+  const h = (H + 1) >> 1;
+  const out = new Float32Array(w * h * 3);
+  const lum = new Float32Array(w * h);
+  const row = W * 3;
+  const wf = W >> 1; // whole blocks across
+  const hf = H >> 1; // whole blocks down
+  for (let oy = 0; oy < hf; oy++) {
+    let i = 2 * oy * row;
+    let j = i + row;
+    let o = oy * w * 3;
+    let q = oy * w;
+    for (let ox = 0; ox < wf; ox++, i += 6, j += 6, o += 3, q++) {
+      const a0 = src[i]!;
+      const a1 = src[i + 1]!;
+      const a2 = src[i + 2]!;
+      const b0 = src[i + 3]!;
+      const b1 = src[i + 4]!;
+      const b2 = src[i + 5]!;
+      const c0 = src[j]!;
+      const c1 = src[j + 1]!;
+      const c2 = src[j + 2]!;
+      const d0 = src[j + 3]!;
+      const d1 = src[j + 4]!;
+      const d2 = src[j + 5]!;
+      const r = Math.fround((lut[a0]! + lut[b0]! + (lut[c0]! + lut[d0]!)) * 0.25);
+      const g = Math.fround((lut[a1]! + lut[b1]! + (lut[c1]! + lut[d1]!)) * 0.25);
+      const b = Math.fround((lut[a2]! + lut[b2]! + (lut[c2]! + lut[d2]!)) * 0.25);
+      out[o] = r;
+      out[o + 1] = g;
+      out[o + 2] = b;
+      lum[q] = YR * r + YG * g + YB * b;
+      let m = a0 > a1 ? a0 : a1;
+      if (a2 > m) m = a2;
+      if (m >= clipCode) clipped++;
+      if (m < darkCode) dark++;
+      m = b0 > b1 ? b0 : b1;
+      if (b2 > m) m = b2;
+      if (m >= clipCode) clipped++;
+      if (m < darkCode) dark++;
+      m = c0 > c1 ? c0 : c1;
+      if (c2 > m) m = c2;
+      if (m >= clipCode) clipped++;
+      if (m < darkCode) dark++;
+      m = d0 > d1 ? d0 : d1;
+      if (d2 > m) m = d2;
+      if (m >= clipCode) clipped++;
+      if (m < darkCode) dark++;
+    }
+  }
+  // partial blocks: the last column when W is odd, the last row when H is odd
+  const edge = (ox: number, oy: number) => {
+    const x0 = 2 * ox;
+    const x1 = Math.min(W, x0 + 2);
+    const y0 = 2 * oy;
+    const y1 = Math.min(H, y0 + 2);
+    let s0 = 0;
+    let s1 = 0;
+    let s2 = 0;
+    for (let y = y0; y < y1; y++) {
+      let a0 = 0;
+      let a1 = 0;
+      let a2 = 0;
+      for (let x = x0, i = (y * W + x0) * 3; x < x1; x++, i += 3) {
+        const c0 = src[i]!;
+        const c1 = src[i + 1]!;
+        const c2 = src[i + 2]!;
+        const mx = c0 > c1 ? (c0 > c2 ? c0 : c2) : c1 > c2 ? c1 : c2;
+        if (mx >= clipCode) clipped++;
+        if (mx < darkCode) dark++;
+        a0 += lut[c0]!;
+        a1 += lut[c1]!;
+        a2 += lut[c2]!;
+      }
+      s0 += a0;
+      s1 += a1;
+      s2 += a2;
+    }
+    const inv = 1 / ((y1 - y0) * (x1 - x0));
+    const r = Math.fround(s0 * inv);
+    const g = Math.fround(s1 * inv);
+    const b = Math.fround(s2 * inv);
+    const o = (oy * w + ox) * 3;
+    out[o] = r;
+    out[o + 1] = g;
+    out[o + 2] = b;
+    lum[oy * w + ox] = YR * r + YG * g + YB * b;
+  };
+  if (wf < w) for (let oy = 0; oy < hf; oy++) edge(wf, oy);
+  if (hf < h) for (let ox = 0; ox < w; ox++) edge(ox, hf);
+  return { data: out, luminance: lum, width: w, height: h, clipped, dark, pixels: W * H };
+}
+
+/** Largest number of luminance values the exposure quantiles are taken over; larger images are sampled. */
+export const STATS_SAMPLE_LIMIT = 1 << 20;
+
+/**
+ * Median and 99.9th percentile of a luminance plane: exact up to STATS_SAMPLE_LIMIT values, else over
+ * the pixels of a regular lattice (every k-th pixel of every k-th row, k the smallest step that brings
+ * the count under the limit), which leaves about a million values: plenty for these two figures.
+ */
+export function exposureQuantiles(lum: Float32Array, width: number, height: number): { median: number; p999: number } {
+  let sample = lum;
+  if (lum.length > STATS_SAMPLE_LIMIT) {
+    const k = Math.ceil(Math.sqrt(lum.length / STATS_SAMPLE_LIMIT));
+    const sw = Math.ceil(width / k);
+    const sh = Math.ceil(height / k);
+    sample = new Float32Array(sw * sh);
+    let m = 0;
+    for (let y = 0; y < height; y += k) {
+      const r = y * width;
+      for (let x = 0; x < width; x += k) sample[m++] = lum[r + x]!;
+    }
+  }
+  const [median, p999] = quantiles(sample, [0.5, 0.999]) as [number, number];
+  return { median, p999 };
 }
 
 function sharpInput(buf: Buffer, plan: Plan, maxPixels: number): Sharp {
@@ -300,8 +487,9 @@ async function runSharp(pipeline: Sharp, plan: Plan, name: string): Promise<{ da
 
 /** Decode photo bytes already in memory; `name` is used in messages. */
 export async function decodePhotoBuffer(buf: Buffer, name: string, opts: DecodeOptions = {}): Promise<DecodedPhoto> {
-  const scale = opts.scale ?? 1;
-  if (![1, 2, 4, 8].includes(scale)) throw new EvenfieldError('usage', `decode scale must be 1, 2, 4 or 8, got ${scale}`, name);
+  if (opts.scale !== undefined && ![1, 2, 4, 8].includes(opts.scale)) {
+    throw new EvenfieldError('usage', `decode scale must be 1, 2, 4 or 8, got ${opts.scale}`, name);
+  }
   const maxPixels = opts.maxPixels ?? DEFAULT_MAX_PIXELS;
   if (!(maxPixels > 0)) throw new EvenfieldError('usage', `maxPixels must be positive, got ${maxPixels}`, name);
   const clipLevel = opts.clipLevel ?? 0.98;
@@ -309,7 +497,7 @@ export async function decodePhotoBuffer(buf: Buffer, name: string, opts: DecodeO
   if (buf.length === 0) throw new EvenfieldError('unreadable', 'empty file (0 bytes)', name);
 
   const plan = await readHeader(buf, name, maxPixels);
-  const sha256 = sha256OfBuffer(buf);
+  const scale = opts.targetLongSide !== undefined ? scaleForLongSide(plan.width, plan.height, opts.targetLongSide) : (opts.scale ?? 1);
   const warnings: string[] = [];
   const transfer = chooseTransfer(buf, plan, opts.transfer ?? 'auto', warnings);
   profileWarnings(plan, transfer, warnings);
@@ -317,42 +505,52 @@ export async function decodePhotoBuffer(buf: Buffer, name: string, opts: DecodeO
   const useShrink = scale > 1 && opts.method === 'jpeg-shrink' && plan.format === 'jpeg';
   const method: DecodedPhoto['method'] = scale === 1 ? 'full' : useShrink ? 'jpeg-shrink' : 'linear-box';
 
-  let reduced: Reduced;
+  // Start the decoder (it runs in libuv's thread pool), then hash the bytes and read the EXIF block on
+  // this thread meanwhile. The early catch only keeps a failure from counting as unhandled before it
+  // is awaited below; the await still throws it.
+  const is16 = !useShrink && plan.bitDepth === 16;
+  let pipeline: Sharp;
   if (useShrink) {
     // JPEG is always 8-bit.
-    const w = Math.ceil(plan.width / scale);
-    const h = Math.ceil(plan.height / scale);
-    const p = sharpInput(buf, plan, maxPixels)
+    pipeline = sharpInput(buf, plan, maxPixels)
       .removeAlpha()
       .toColourspace('srgb')
       // Kernel of sharp's final 2× step: lanczos3. libvips' 8-bit 'linear' (and 'mitchell', 'mks2021')
       // reduce rounds ties one way, a measured +0.125 (−0.125) code bias on noisy fields; lanczos3
       // measured within ±0.002 codes.
-      .resize(w, h, { fit: 'fill', kernel: 'lanczos3', fastShrinkOnLoad: true })
+      .resize(Math.ceil(plan.width / scale), Math.ceil(plan.height / scale), { fit: 'fill', kernel: 'lanczos3', fastShrinkOnLoad: true })
       .raw();
-    const { data, info } = await runSharp(p, plan, name);
-    const codes = new Uint8Array(data.buffer, data.byteOffset, data.length);
-    const th = thresholds(8, clipLevel, darkLevel);
-    reduced = reduceLinearBox(codes, info.width, info.height, 1, decodeLut(8, transfer), th.clipCode, th.darkCode);
   } else {
-    const is16 = plan.bitDepth === 16;
-    const p = sharpInput(buf, plan, maxPixels)
+    pipeline = sharpInput(buf, plan, maxPixels)
       .removeAlpha()
       .toColourspace(is16 ? 'rgb16' : 'srgb')
       .raw(is16 ? { depth: 'ushort' } : {});
-    const { data, info } = await runSharp(p, plan, name);
-    if (info.channels !== 3 || info.width !== plan.width || info.height !== plan.height) {
-      throw new EvenfieldError('internal', `decoder returned ${info.width}×${info.height}×${info.channels}, expected ${plan.width}×${plan.height}×3`, name);
+  }
+  const decoding = runSharp(pipeline, plan, name);
+  decoding.catch(() => undefined);
+  const sha256 = sha256OfBuffer(buf);
+  const exif = await readExif(buf, plan.exifBlock);
+  const { data, info: out } = await decoding;
+
+  let reduced: Reduced;
+  if (useShrink) {
+    const codes = new Uint8Array(data.buffer, data.byteOffset, data.length);
+    const th = thresholds(8, clipLevel, darkLevel);
+    reduced = reduceLinearBox(codes, out.width, out.height, 1, decodeLut(8, transfer), th.clipCode, th.darkCode);
+  } else {
+    if (out.channels !== 3 || out.width !== plan.width || out.height !== plan.height) {
+      throw new EvenfieldError('internal', `decoder returned ${out.width}×${out.height}×${out.channels}, expected ${plan.width}×${plan.height}×3`, name);
     }
     const codes = is16
       ? new Uint16Array(data.buffer, data.byteOffset, data.length / 2)
       : new Uint8Array(data.buffer, data.byteOffset, data.length);
     const th = thresholds(plan.bitDepth, clipLevel, darkLevel);
-    reduced = reduceLinearBox(codes, info.width, info.height, scale, decodeLut(plan.bitDepth, transfer), th.clipCode, th.darkCode);
+    reduced = reduceLinearBox(codes, out.width, out.height, scale, decodeLut(plan.bitDepth, transfer), th.clipCode, th.darkCode);
   }
 
   const image: RgbImage = { width: reduced.width, height: reduced.height, data: reduced.data };
-  const [median, p999] = quantiles(luminancePlane(image).data, [0.5, 0.999]) as [number, number];
+  const luminance: Plane = { width: reduced.width, height: reduced.height, data: reduced.luminance };
+  const { median, p999 } = exposureQuantiles(reduced.luminance, reduced.width, reduced.height);
   const stats: ExposureStats = {
     clippedFraction: reduced.clipped / reduced.pixels,
     darkFraction: reduced.dark / reduced.pixels,
@@ -360,7 +558,6 @@ export async function decodePhotoBuffer(buf: Buffer, name: string, opts: DecodeO
     p999,
   };
 
-  const exif = await readExif(buf, plan.exifBlock);
   const info: DecodeInfo = {
     format: plan.format,
     width: plan.width,
@@ -372,6 +569,7 @@ export async function decodePhotoBuffer(buf: Buffer, name: string, opts: DecodeO
   };
   return {
     image,
+    luminance,
     info,
     exposure: exif.exposure,
     sha256,

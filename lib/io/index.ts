@@ -3,13 +3,17 @@
 
 export {
   DEFAULT_MAX_PIXELS,
+  STATS_SAMPLE_LIMIT,
   decodePhoto,
   decodePhotoBuffer,
+  exposureQuantiles,
   reduceLinearBox,
+  scaleForLongSide,
   toFullSize,
   toScaled,
   type DecodeOptions,
   type DecodedPhoto,
+  type Reduced,
   type ScaleMethod,
 } from './decode.js';
 export { EMPTY_EXPOSURE, exifDateToIso, exposureFromTags, readExif, type ExifResult } from './exif.js';
