@@ -16,7 +16,7 @@
 
 import { Matrix, solve } from 'ml-matrix';
 import { EvenfieldError, type ErrorCode } from '../errors.js';
-import { panelToCamera, rectifyPlane } from '../geometry/index.js';
+import { cornerAngles, isConvexClockwise, panelToCamera, rectifyPlane, signedArea } from '../geometry/index.js';
 import { srgbDecode, srgbEncode } from '../photometry/index.js';
 import type { Corners, Pattern, Plane, Point, RgbImage } from '../types.js';
 
@@ -673,6 +673,27 @@ export function assessPanelQuality(q: QualityInput, limits: QualityLimits): Qual
   const { rawLum, clipMask, corners } = q;
   const w = rawLum.width;
   const h = rawLum.height;
+  const problems: QualityOutcome['problems'] = [];
+  const warnings: string[] = [];
+  // an outline given by hand can be anything: every gate below needs a proper quadrilateral
+  const proper =
+    corners.every((p) => Number.isFinite(p[0]) && Number.isFinite(p[1])) &&
+    isConvexClockwise(corners) &&
+    signedArea(corners) >= 16 &&
+    cornerAngles(corners).every((a) => a >= 5 && a <= 175);
+  if (!proper) {
+    return {
+      figures: { pixels: 0, clippedFraction: 0, medianCode: 0, edges: [], glare: null, moire: null, viewAngleMaxDeg: q.viewAngleMaxDeg },
+      problems: [
+        {
+          code: 'no-panel',
+          message:
+            'the panel outline is not a convex quadrilateral (corners top-left, top-right, bottom-right, bottom-left; every corner angle 5–175°; at least 16 pixels)',
+        },
+      ],
+      warnings,
+    };
+  }
   // shrink the outline 3 % towards its centre so edge pixels do not count
   const inner = shrink(corners, 0.97);
   const xs = inner.map((p) => p[0]);
@@ -694,8 +715,6 @@ export function assessPanelQuality(q: QualityInput, limits: QualityLimits): Qual
       sample.push(rawLum.data[k]);
     }
   }
-  const problems: QualityOutcome['problems'] = [];
-  const warnings: string[] = [];
   if (n === 0) {
     return {
       figures: { pixels: 0, clippedFraction: 0, medianCode: 0, edges: [], glare: null, moire: null, viewAngleMaxDeg: q.viewAngleMaxDeg },
@@ -747,7 +766,7 @@ export function assessPanelQuality(q: QualityInput, limits: QualityLimits): Qual
       code: 'blurred',
       message:
         `the panel outline is blurred (${names} edge${blurred.length > 1 ? 's' : ''}; worst ${worst.px!.toFixed(1)} px = ${worst.mm!.toFixed(1)} mm wide, ` +
-        `limit ${limitMm.toFixed(1)} mm, half the smallest feature sought): refocus or steady the camera`,
+        `limit ${limits.sharpEdgePx} px and ${limitMm.toFixed(1)} mm, half the smallest feature sought): refocus or steady the camera`,
     });
   } else if (q.pattern !== 'black' && !dark && traced.length < 2) {
     warnings.push('the sharpness of the panel outline could not be checked (edges too faint to trace)');
