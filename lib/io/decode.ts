@@ -467,7 +467,11 @@ export function exposureQuantiles(lum: Float32Array, width: number, height: numb
 
 function sharpInput(buf: Buffer, plan: Plan, maxPixels: number): Sharp {
   return sharp(buf, {
-    failOn: 'truncated',
+    // JPEG: libjpeg reports damaged entropy-coded data ("Corrupt JPEG data: bad Huffman code") only as a
+    // warning and fills the blocks with whatever it decoded, so a damaged file would be measured as if
+    // whole; refuse on warnings. Other formats: refuse truncated data (libpng warns on harmless chunk
+    // problems such as a known-incorrect sRGB profile, which must not refuse a photo).
+    failOn: plan.format === 'jpeg' ? 'warning' : 'truncated',
     limitInputPixels: Math.max(1, Math.floor(maxPixels)),
     // Apply embedded profiles only to CMYK (which must be converted); RGB/gray code values are read as is.
     ignoreIcc: !plan.isCmyk,
