@@ -96,7 +96,13 @@ export function parseCriteria(text: string, file: string): Criteria {
     throw new CriteriaError([{ file, line: 1, key: '', problem: 'the criteria file is empty' }]);
   }
 
-  const data: unknown = doc.toJS();
+  let data: unknown;
+  try {
+    data = doc.toJS();
+  } catch (e) {
+    // the YAML reader refuses aliases that expand into too much data (a resource-exhaustion guard)
+    throw new CriteriaError([{ file, line: 1, key: '', problem: `cannot read the YAML: ${firstLine((e as Error).message)}` }]);
+  }
   const parsed = CriteriaSchema.safeParse(data);
   if (parsed.success) return parsed.data;
 
