@@ -42,8 +42,13 @@ export interface PanelOutcome {
 
 const BRIGHT = new Set(['white', 'gray', 'red', 'green', 'blue']);
 
+/** The batch's own PDF in the same folder (SUMMARY_PDF in run.ts): a panel may not take its name. */
+const LOT_SUMMARY_PDF = 'lot-summary.pdf';
+
 export function pdfNameFor(panel: string): string {
-  return `${panel}.pdf`;
+  const name = `${panel}.pdf`;
+  // compared without case: on a case-insensitive file system "Lot-Summary.pdf" is the same file
+  return name.toLowerCase() === LOT_SUMMARY_PDF ? `${panel}.panel.pdf` : name;
 }
 
 export async function runPanel(task: PanelTask): Promise<PanelOutcome> {
