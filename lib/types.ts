@@ -170,8 +170,10 @@ export interface GeometryRecord {
   cornersSource: 'auto' | 'manual' | 'shared';
   /** rms of edge-point distances to the fitted edge lines, camera pixels (auto only) */
   edgeResidualPx: number | null;
-  /** largest angle between the camera axis and the panel normal, degrees, when estimable */
+  /** angle between the camera's optical axis and the panel normal, degrees, when estimable */
   tiltDeg: number | null;
+  /** largest angle between the panel normal and the line of sight to any point of the active area, degrees */
+  viewAngleMaxDeg: number | null;
   mapWidth: number;
   mapHeight: number;
   pxPerMm: number;

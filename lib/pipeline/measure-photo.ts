@@ -30,6 +30,9 @@ import { checkPanelQuality, nearWhiteMask, type QualityLimits, DEFAULT_QUALITY_L
 /** default smallest mura feature, mm (the mura analysis's own default; see lib/mura/options.ts) */
 const DEFAULT_MIN_FEATURE_MM = 3;
 
+/** Largest departure from right angles (degrees) of the back-projected outline for the pose to be used. */
+const MAX_ORTHOGONALITY_ERROR_DEG = 3;
+
 export type FalloffChoice =
   | { kind: 'none' }
   | { kind: 'profile'; profile: FalloffProfile; source: string }
@@ -368,9 +371,17 @@ async function measureInner(
   if (fpx !== null) {
     try {
       const pose = estimatePose(cornersWork, fpx, (img.width - 1) / 2, (img.height - 1) / 2);
-      tiltDeg = pose.tiltDeg;
-      viewAngleMaxDeg = pose.viewAngleMaxDeg;
-      poseAspect = pose.aspect;
+      // a rectangle seen through the right focal length has right angles; a large error means the
+      // EXIF focal length (or a crop) does not describe this image, so the pose is not trusted
+      if (pose.orthogonalityErrorDeg <= MAX_ORTHOGONALITY_ERROR_DEG) {
+        tiltDeg = pose.tiltDeg;
+        viewAngleMaxDeg = pose.viewAngleMaxDeg;
+        poseAspect = pose.aspect;
+      } else {
+        result.warnings.push(
+          `the outline is not a rectangle seen through the EXIF focal length (${pose.orthogonalityErrorDeg.toFixed(1)}° off square): viewing angle and aspect not estimated`,
+        );
+      }
     } catch {
       tiltDeg = null;
     }
@@ -417,6 +428,7 @@ async function measureInner(
     cornersSource: geometrySource,
     edgeResidualPx: edgeResidual,
     tiltDeg,
+    viewAngleMaxDeg,
     mapWidth: mapW,
     mapHeight: mapH,
     pxPerMm: map.pxPerMm,

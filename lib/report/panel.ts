@@ -934,7 +934,8 @@ function photoMethodPairs(p: PreparedPhoto): Array<[string, string | Cell]> {
     g
       ? `corners ${g.cornersSource === 'auto' ? 'found automatically' : g.cornersSource === 'manual' ? 'given by hand' : "shared with the panel's other photos"}` +
         `${g.edgeResidualPx !== null ? `; edge-fit residual ${trim(g.edgeResidualPx, 2)} camera px rms` : ''}` +
-        `${g.tiltDeg !== null ? `; largest angle between camera axis and panel normal ${trim(g.tiltDeg, 1)}\u00b0` : ''}` +
+        `${g.tiltDeg !== null ? `; camera axis ${trim(g.tiltDeg, 1)}\u00b0 off the panel normal` : ''}` +
+        `${g.viewAngleMaxDeg !== null && g.viewAngleMaxDeg !== undefined ? `; largest viewing angle ${trim(g.viewAngleMaxDeg, 1)}\u00b0` : ''}` +
         `; corners TL TR BR BL (camera px) ${(ph.corners ?? []).map(([x, y]) => `(${x.toFixed(1)}, ${y.toFixed(1)})`).join(' ')}`
       : 'not located',
   ]);
@@ -1051,8 +1052,9 @@ function specificCautions(ctx: Ctx): string[] {
   for (const p of ctx.prepared) {
     const ph = p.photo;
     const name = patternName(ph.pattern, ph.patternLevel);
-    if (ph.geometry?.tiltDeg !== null && ph.geometry?.tiltDeg !== undefined && ph.geometry.tiltDeg > 10) {
-      out.push(`${name}: the camera was ${trim(ph.geometry.tiltDeg, 1)}\u00b0 off the panel normal at the worst point; viewing-angle effects may be in the figures.`);
+    const va = ph.geometry?.viewAngleMaxDeg;
+    if (va !== null && va !== undefined && va > 10) {
+      out.push(`${name}: part of the panel was seen ${trim(va, 1)}\u00b0 off its normal; viewing-angle effects may be in the figures.`);
     }
     if (ph.falloff && !ph.falloff.applied) out.push(`${name}: no lens falloff correction was applied, so the corners read darker than they are.`);
     if (ph.exposureStats && ph.exposureStats.clippedFraction > 0) {
