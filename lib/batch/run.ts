@@ -149,7 +149,9 @@ export async function runBatch(opts: BatchOptions): Promise<BatchOutcome> {
     await writeFileAtomic(join(outDir, WORK_DIR, `${group.panel}.json`), JSON.stringify({ signature, result: outcome.result }));
     results.set(group.panel, outcome.result);
     outcomes.push(outcome);
-    progress.tick(group.panel, outcome.result.verdict, outcome.result.photos.filter((p) => p.status === 'error').map((p) => p.error ?? ''));
+    // one line per unusable file: grouping problems (they name their files) and photos that could not be measured
+    const errors = [...group.problems, ...outcome.result.photos.filter((p) => p.status === 'error').map((p) => p.error ?? '')];
+    progress.tick(group.panel, outcome.result.verdict, errors);
   };
 
   const jobs = Math.max(1, Math.min(opts.jobs, todo.length || 1));
