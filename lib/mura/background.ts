@@ -1,0 +1,315 @@
+// The panel's own smooth background: a whole-panel polynomial surface fitted robustly to linear
+// luminance on a coarse grid of cells, with found features masked out.
+//
+// What separates a cloud from smooth variation: smooth variation is whatever a single low-order
+// polynomial over the whole panel explains (order 2-4; it is graded by the sampled-grid uniformity,
+// not by mura). A cloud is a local bump such a surface cannot produce without missing elsewhere, so
+// with the cloud's cells masked the surface passes under it and the cloud shows in the contrast map.
+// When the cloud is not masked the surface bends towards it and absorbs part of its contrast, which
+// biases the measured contrast low and the area small; hence fit -> find -> mask -> refit.
+//
+// Tiled displays: with a tile grid the fit carries one level offset per tile (summing to zero), so
+// tile-to-tile steps are measured as such instead of bending the surface; the returned background
+// excludes them, so the steps stay visible in the contrast map.
+
+import { Matrix, QrDecomposition, solve } from 'ml-matrix';
+import type { BackgroundOptions } from './options.js';
+import { robustSigma } from './raster.js';
+
+/** The analysed raster: the panel map's luminance box-averaged to working resolution. */
+export interface WorkRaster {
+  w: number;
+  h: number;
+  /** mm per working pixel (same in both axes) */
+  mmPerPx: number;
+  /** linear luminance */
+  Y: Float32Array;
+  /** fraction of the pixel that had camera data (0 = none) */
+  wt: Float32Array;
+}
+
+export interface BackgroundFit {
+  /** smooth background at working resolution (tile offsets not included) */
+  B: Float32Array;
+  order: number;
+  cellPx: number;
+  cellsUsed: number;
+  cellsClipped: number;
+  cellsMasked: number;
+  /** robust sigma of the cell residuals (%) after the fit, noise of the cell means removed: the
+   *  background model's own error, which does not average down with feature area */
+  fitErrorPct: number;
+  /** per-tile relative level offsets (%), row by row, mean 0; null without a tile grid */
+  tileOffsetsPct: Float64Array | null;
+}
+
+/** Legendre polynomials P_0..P_n at x in [-1, 1] (three-term recurrence). */
+export function legendre(n: number, x: number, out: Float64Array): void {
+  out[0] = 1;
+  if (n >= 1) out[1] = x;
+  for (let k = 1; k < n; k++) out[k + 1] = ((2 * k + 1) * x * out[k] - k * out[k - 1]) / (k + 1);
+}
+
+function termList(order: number): [number, number][] {
+  const t: [number, number][] = [];
+  for (let s = 0; s <= order; s++) for (let j = 0; j <= s; j++) t.push([s - j, j]);
+  return t;
+}
+
+interface Cell {
+  x: number; // centroid, working px
+  y: number;
+  value: number; // mean Y
+  weight: number;
+  tile: number; // -1 when straddling a tile boundary
+}
+
+/**
+ * Fit the background.
+ * @param mask 1 = leave out (found features); may be null
+ * @param noisePct per-working-pixel contrast noise (%), to separate the fit error from cell noise
+ * @param tileGrid [cols, rows] or null
+ * @param brightOnly black fields: glow and clouding are bright, so bright residuals are clipped at
+ *        clipSigma but dark ones only at twice that
+ */
+export function fitBackground(
+  work: WorkRaster,
+  mask: Uint8Array | null,
+  opts: BackgroundOptions,
+  noisePct: number,
+  tileGrid: [number, number] | null,
+  brightOnly: boolean,
+): BackgroundFit {
+  const { w, h } = work;
+  const longMm = Math.max(w, h) * work.mmPerPx;
+  const cellMm = opts.cellMm ?? longMm / 80;
+  const cellPx = Math.max(2, Math.round(cellMm / work.mmPerPx));
+  const cols = tileGrid ? tileGrid[0] : 1;
+  const rows = tileGrid ? tileGrid[1] : 1;
+  const nTiles = cols * rows;
+
+  // 1. cells
+  const cells: Cell[] = [];
+  let cellsMasked = 0;
+  for (let cy = 0; cy < h; cy += cellPx) {
+    for (let cx = 0; cx < w; cx += cellPx) {
+      let sw = 0;
+      let sy = 0;
+      let sx = 0;
+      let syy = 0;
+      let total = 0;
+      let masked = 0;
+      const x1 = Math.min(w, cx + cellPx);
+      const y1 = Math.min(h, cy + cellPx);
+      for (let y = cy; y < y1; y++) {
+        for (let x = cx; x < x1; x++) {
+          const i = y * w + x;
+          const q = work.wt[i];
+          total++;
+          if (q <= 0) continue;
+          if (mask && mask[i]) {
+            masked++;
+            continue;
+          }
+          sw += q;
+          sy += q * work.Y[i];
+          sx += q * x;
+          syy += q * y;
+        }
+      }
+      if (masked > 0.5 * total) cellsMasked++;
+      if (sw < 0.5 * total || sw <= 0) continue;
+      let tile = 0;
+      if (tileGrid) {
+        const tx0 = Math.floor((cx / w) * cols);
+        const tx1 = Math.floor(((x1 - 1e-6) / w) * cols);
+        const ty0 = Math.floor((cy / h) * rows);
+        const ty1 = Math.floor(((y1 - 1e-6) / h) * rows);
+        tile = tx0 === tx1 && ty0 === ty1 ? ty0 * cols + tx0 : -1;
+        if (tile < 0) continue;
+      }
+      cells.push({ x: sx / sw, y: syy / sw, value: sy / sw, weight: sw, tile });
+    }
+  }
+
+  // 2. design: Legendre terms in normalised coordinates, plus tile offsets (tile 0 is the reference)
+  let order = opts.order;
+  const nTileTerms = nTiles - 1;
+  while (order > 0 && cells.length < 3 * (termList(order).length + nTileTerms)) order--;
+  const terms = termList(order);
+  const nTerms = terms.length + nTileTerms;
+  const px = new Float64Array(order + 1);
+  const py = new Float64Array(order + 1);
+  const rowsOf = (c: Cell, out: Float64Array): void => {
+    legendre(order, (2 * (c.x + 0.5)) / w - 1, px);
+    legendre(order, (2 * (c.y + 0.5)) / h - 1, py);
+    for (let t = 0; t < terms.length; t++) out[t] = px[terms[t][0]] * py[terms[t][1]];
+    for (let t = 1; t < nTiles; t++) out[terms.length + t - 1] = c.tile === t ? 1 : 0;
+  };
+  const design = cells.map((c) => {
+    const r = new Float64Array(nTerms);
+    rowsOf(c, r);
+    return r;
+  });
+
+  const cellNoise = cells.map((c) => noisePct / Math.sqrt(Math.max(1, c.weight)));
+  let clipped = new Uint8Array(cells.length);
+  let coef: Float64Array = new Float64Array(nTerms);
+  const predicted = new Float64Array(cells.length);
+  const resid = new Float64Array(cells.length);
+  // cell index lookup for the 1-cell dilation of clipped cells
+  const gw = Math.ceil(w / cellPx);
+  const gh = Math.ceil(h / cellPx);
+  const gridIndex = new Int32Array(gw * gh).fill(-1);
+  cells.forEach((c, k) => {
+    gridIndex[Math.floor(c.y / cellPx) * gw + Math.floor(c.x / cellPx)] = k;
+  });
+
+  for (let iter = 0; iter < 15; iter++) {
+    coef = solveWeighted(design, cells, clipped, nTerms);
+    for (let k = 0; k < cells.length; k++) {
+      let p = 0;
+      const r = design[k];
+      for (let t = 0; t < nTerms; t++) p += coef[t] * r[t];
+      predicted[k] = p;
+      resid[k] = p > 0 ? (100 * (cells[k].value - p)) / p : 0;
+    }
+    const sigma = Math.max(robustSigma(resid), median1(cellNoise), 1e-4);
+    const hiLimit = opts.clipSigma * sigma;
+    const loLimit = (brightOnly ? 2 : 1) * opts.clipSigma * sigma;
+    const next = new Uint8Array(cells.length);
+    for (let k = 0; k < cells.length; k++) {
+      if (resid[k] > hiLimit || resid[k] < -loLimit) {
+        const gx = Math.floor(cells[k].x / cellPx);
+        const gy = Math.floor(cells[k].y / cellPx);
+        for (let dy = -1; dy <= 1; dy++) {
+          for (let dx = -1; dx <= 1; dx++) {
+            const xx = gx + dx;
+            const yy = gy + dy;
+            if (xx < 0 || yy < 0 || xx >= gw || yy >= gh) continue;
+            const j = gridIndex[yy * gw + xx];
+            if (j >= 0) next[j] = 1;
+          }
+        }
+      }
+    }
+    // never clip so much that the fit loses its footing
+    let kept = 0;
+    for (let k = 0; k < cells.length; k++) if (!next[k]) kept++;
+    if (kept < Math.max(3 * nTerms, 0.3 * cells.length)) break;
+    let same = true;
+    for (let k = 0; k < cells.length; k++) if (next[k] !== clipped[k]) same = false;
+    clipped = next;
+    if (same) break;
+  }
+  coef = solveWeighted(design, cells, clipped, nTerms);
+
+  // 3. fit error: residual scatter of all cells outside the feature mask (clipped ones included: the
+  //    clipping removes what the surface cannot follow, so leaving them out would hide its error),
+  //    less the cells' own noise
+  const used: number[] = [];
+  const usedNoise: number[] = [];
+  let nClipped = 0;
+  for (let k = 0; k < cells.length; k++) {
+    let p = 0;
+    for (let t = 0; t < nTerms; t++) p += coef[t] * design[k][t];
+    if (clipped[k]) nClipped++;
+    used.push(p > 0 ? (100 * (cells[k].value - p)) / p : 0);
+    usedNoise.push(cellNoise[k]);
+  }
+  const scatter = robustSigma(used);
+  const noiseLevel = median1(usedNoise);
+  const fitErrorPct = Math.sqrt(Math.max(0, scatter * scatter - noiseLevel * noiseLevel));
+
+  // 4. tile offsets: centre them and move their mean into the constant term
+  let tileOffsetsPct: Float64Array | null = null;
+  if (tileGrid) {
+    const beta = new Float64Array(nTiles);
+    for (let t = 1; t < nTiles; t++) beta[t] = coef[terms.length + t - 1];
+    let mean = 0;
+    for (let t = 0; t < nTiles; t++) mean += beta[t];
+    mean /= nTiles;
+    coef[0] += mean; // terms[0] is P0 * P0 = 1
+    for (let t = 0; t < nTiles; t++) beta[t] -= mean;
+    tileOffsetsPct = beta; // converted to % below, once B is known
+  }
+
+  // 5. evaluate at working resolution
+  const B = new Float32Array(w * h);
+  const colVals = new Float64Array((order + 1) * w);
+  const rowVals = new Float64Array((order + 1) * h);
+  for (let x = 0; x < w; x++) {
+    legendre(order, (2 * (x + 0.5)) / w - 1, px);
+    for (let i = 0; i <= order; i++) colVals[i * w + x] = px[i];
+  }
+  for (let y = 0; y < h; y++) {
+    legendre(order, (2 * (y + 0.5)) / h - 1, py);
+    for (let j = 0; j <= order; j++) rowVals[j * h + y] = py[j];
+  }
+  const rowCoef = new Float64Array(order + 1);
+  for (let y = 0; y < h; y++) {
+    // collapse the y-dependence: B(x, y) = sum_i P_i(x) * sum_j c_ij P_j(y)
+    rowCoef.fill(0);
+    for (let t = 0; t < terms.length; t++) rowCoef[terms[t][0]] += coef[t] * rowVals[terms[t][1] * h + y];
+    const row = y * w;
+    for (let x = 0; x < w; x++) {
+      let s = 0;
+      for (let i = 0; i <= order; i++) s += rowCoef[i] * colVals[i * w + x];
+      B[row + x] = s;
+    }
+  }
+
+  if (tileOffsetsPct && tileGrid) {
+    for (let t = 0; t < nTiles; t++) {
+      const tx = t % cols;
+      const ty = Math.floor(t / cols);
+      const x0 = Math.floor((tx * w) / cols);
+      const x1 = Math.floor(((tx + 1) * w) / cols);
+      const y0 = Math.floor((ty * h) / rows);
+      const y1 = Math.floor(((ty + 1) * h) / rows);
+      let s = 0;
+      let n = 0;
+      for (let y = y0; y < y1; y++) for (let x = x0; x < x1; x++) {
+        s += B[y * w + x];
+        n++;
+      }
+      tileOffsetsPct[t] = n > 0 && s > 0 ? (100 * tileOffsetsPct[t]) / (s / n) : 0;
+    }
+  }
+
+  return {
+    B,
+    order,
+    cellPx,
+    cellsUsed: cells.length - nClipped,
+    cellsClipped: nClipped,
+    cellsMasked,
+    fitErrorPct,
+    tileOffsetsPct,
+  };
+}
+
+function median1(a: number[]): number {
+  if (a.length === 0) return 0;
+  const s = [...a].sort((p, q) => p - q);
+  return s[s.length >> 1];
+}
+
+function solveWeighted(design: Float64Array[], cells: Cell[], clipped: Uint8Array, nTerms: number): Float64Array {
+  const rowsUsed: number[] = [];
+  for (let k = 0; k < cells.length; k++) if (!clipped[k]) rowsUsed.push(k);
+  const A = new Matrix(rowsUsed.length, nTerms);
+  const b = new Matrix(rowsUsed.length, 1);
+  rowsUsed.forEach((k, r) => {
+    const s = Math.sqrt(cells[k].weight);
+    for (let t = 0; t < nTerms; t++) A.set(r, t, design[k][t] * s);
+    b.set(r, 0, cells[k].value * s);
+  });
+  let x: Matrix;
+  const qr = new QrDecomposition(A);
+  if (rowsUsed.length >= nTerms && qr.isFullRank()) x = qr.solve(b);
+  else x = solve(A, b, true); // rank-deficient (e.g. a tile with no usable cell): minimum-norm solution
+  const out = new Float64Array(nTerms);
+  for (let t = 0; t < nTerms; t++) out[t] = x.get(t, 0);
+  return out;
+}

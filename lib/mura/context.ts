@@ -1,0 +1,226 @@
+// State shared by the detectors of one analysis round, and the measurement of a found region.
+
+import type { MuraOptions } from './options.js';
+
+export interface Ctx {
+  w: number;
+  h: number;
+  mmPerPx: number;
+  /** contrast used for detection, % (0 where there is no data) */
+  C: Float32Array;
+  wt: Float32Array;
+  /** 1-sigma contrast noise of one full working pixel, % (neighbour-difference estimate) */
+  noisePct: number;
+  /** how much more the map's noise survives smoothing than white noise would (spatial correlation),
+   *  measured on the map's own small-scale filters; >= 1 for correlated noise */
+  rho: number;
+  /** background model's own error, % (does not average down) */
+  fitErrorPct: number;
+  opts: MuraOptions;
+  black: boolean;
+  /** working-raster labels: 0 = free, k = found[k - 1] */
+  label: Int32Array;
+  found: Found[];
+}
+
+export type Axis = 'horizontal' | 'vertical';
+
+/** A found region with its measured figures, before kinds and reporting. */
+export interface Found {
+  source: 'blob' | 'profile';
+  sign: 1 | -1;
+  /** working-raster indices of the half-peak region */
+  pixels: Int32Array;
+  /** local surround the feature sits on (%, against the smooth background), 0 when insignificant */
+  pedestalPct: number;
+  /** signed mean contrast over the region, against the local surround, % */
+  contrastPct: number;
+  /** signed peak contrast (lightly smoothed map), against the local surround, % */
+  peakContrastPct: number;
+  areaMm2: number;
+  /** contrast-weighted centroid, working px */
+  cx: number;
+  cy: number;
+  /** where the (smoothed) peak is, working px */
+  px: number;
+  py: number;
+  /** [x0, y0, x1, y1] in working px, x1/y1 exclusive */
+  bbox: [number, number, number, number];
+  /** length and width of the equivalent rectangle from second moments, mm */
+  lengthMm: number;
+  widthMm: number;
+  /** angle of the long axis from the u axis, degrees in (-90, 90] */
+  angleDeg: number;
+  /** profile detections: the axis they run along */
+  axis: Axis | null;
+  /** significance against photo noise and against the background-model error */
+  zNoise: number;
+  zFit: number;
+  /** pixels of the region on each panel edge (within 2 px) */
+  touch: { top: number; bottom: number; left: number; right: number };
+  /** mean contrast (against the surround) of those pixels, per edge (0 where none) */
+  edgeContrast: { top: number; bottom: number; left: number; right: number };
+  /** DoG scale (working px) a feature of this width would be found at; seeds finer than a third of
+   *  it inside the region may be separate, nested features */
+  matchedScalePx: number;
+}
+
+/** Measure a region: mean contrast and centroid on the unsmoothed contrast map, shape from moments. */
+export function measureRegion(
+  ctx: Ctx,
+  pixels: Int32Array,
+  pedestalPct: number,
+  peakPct: number,
+  peakAt: [number, number],
+  sign: 1 | -1,
+  source: Found['source'],
+  axis: Axis | null,
+): Found | null {
+  const { w, h, C, wt } = ctx;
+  let sw = 0;
+  let sc = 0;
+  let sd = 0;
+  let sdx = 0;
+  let sdy = 0;
+  let mx = 0;
+  let my = 0;
+  let mxx = 0;
+  let myy = 0;
+  let mxy = 0;
+  let x0 = Infinity;
+  let y0 = Infinity;
+  let x1 = -Infinity;
+  let y1 = -Infinity;
+  const touch = { top: 0, bottom: 0, left: 0, right: 0 };
+  const edgeSum = { top: 0, bottom: 0, left: 0, right: 0 };
+  const m = 2;
+  for (let k = 0; k < pixels.length; k++) {
+    const i = pixels[k];
+    const q = wt[i];
+    if (q <= 0) continue;
+    const x = i % w;
+    const y = (i - x) / w;
+    const c = C[i];
+    sw += q;
+    sc += q * c;
+    const d = sign * (c - pedestalPct);
+    if (d > 0) {
+      sd += q * d;
+      sdx += q * d * x;
+      sdy += q * d * y;
+    }
+    mx += q * x;
+    my += q * y;
+    mxx += q * x * x;
+    myy += q * y * y;
+    mxy += q * x * y;
+    if (x < x0) x0 = x;
+    if (x > x1) x1 = x;
+    if (y < y0) y0 = y;
+    if (y > y1) y1 = y;
+    if (x < m) {
+      touch.left++;
+      edgeSum.left += c;
+    }
+    if (x >= w - m) {
+      touch.right++;
+      edgeSum.right += c;
+    }
+    if (y < m) {
+      touch.top++;
+      edgeSum.top += c;
+    }
+    if (y >= h - m) {
+      touch.bottom++;
+      edgeSum.bottom += c;
+    }
+  }
+  if (sw <= 0) return null;
+  const mm = ctx.mmPerPx;
+  const norm = 1 + pedestalPct / 100;
+  const contrastPct = (sc / sw - pedestalPct) / norm;
+  mx /= sw;
+  my /= sw;
+  // pixel discretisation adds 1/12 px² to each variance
+  const vxx = mxx / sw - mx * mx + 1 / 12;
+  const vyy = myy / sw - my * my + 1 / 12;
+  const vxy = mxy / sw - mx * my;
+  const tr = vxx + vyy;
+  const det = vxx * vyy - vxy * vxy;
+  const disc = Math.sqrt(Math.max(0, (tr * tr) / 4 - det));
+  const l1 = tr / 2 + disc;
+  const l2 = Math.max(tr / 2 - disc, 1 / 12);
+  // equivalent rectangle: a uniform strip of length L has variance L²/12 along it
+  const lengthMm = Math.sqrt(12 * l1) * mm;
+  const widthMm = Math.sqrt(12 * l2) * mm;
+  let angleDeg = (0.5 * Math.atan2(2 * vxy, vxx - vyy) * 180) / Math.PI;
+  if (angleDeg <= -90) angleDeg += 180;
+  const areaMm2 = sw * mm * mm;
+  const noiseOfMean = (ctx.rho * ctx.noisePct) / Math.sqrt(sw);
+  const zNoise = Math.abs(contrastPct) / Math.max(noiseOfMean, 1e-9);
+  const zFit = ctx.fitErrorPct > 0 ? Math.abs(contrastPct) / ctx.fitErrorPct : Infinity;
+  const edgeMean = (e: keyof typeof touch): number => (touch[e] > 0 ? (edgeSum[e] / touch[e] - pedestalPct) / norm : 0);
+  return {
+    source,
+    sign,
+    pixels,
+    edgeContrast: { top: edgeMean('top'), bottom: edgeMean('bottom'), left: edgeMean('left'), right: edgeMean('right') },
+    pedestalPct,
+    contrastPct,
+    peakContrastPct: (peakPct - pedestalPct) / norm,
+    areaMm2,
+    cx: sd > 0 ? sdx / sd : mx,
+    cy: sd > 0 ? sdy / sd : my,
+    px: peakAt[0],
+    py: peakAt[1],
+    bbox: [x0, y0, x1 + 1, y1 + 1],
+    lengthMm,
+    widthMm,
+    angleDeg,
+    axis,
+    zNoise,
+    zFit,
+    touch,
+    matchedScalePx: widthMm / mm / 3.33,
+  };
+}
+
+/**
+ * Is the new region a re-detection of a found one (the same feature at another scale or seed)?
+ * It is when more than half of the smaller region lies in the larger and either they are of
+ * comparable size (within 8x) or both are elongated the same way (a line seen again, broadened, at a
+ * coarser scale). A much smaller round region inside a larger one is a nested feature instead.
+ */
+export function isDuplicate(ctx: Ctx, f: Found): boolean {
+  const overlap = new Map<number, number>();
+  for (let k = 0; k < f.pixels.length; k++) {
+    const l = ctx.label[f.pixels[k]];
+    if (l) overlap.set(l, (overlap.get(l) ?? 0) + 1);
+  }
+  const n = f.pixels.length;
+  const elongated = (g: Found): boolean => g.lengthMm >= 3 * g.widthMm;
+  for (const [l, c] of overlap) {
+    const other = ctx.found[l - 1];
+    const no = other.pixels.length;
+    const small = Math.min(n, no);
+    if (c <= 0.5 * small) continue;
+    if (Math.max(n, no) < 8 * small) return true;
+    if (elongated(f) && elongated(other)) {
+      let da = Math.abs(f.angleDeg - other.angleDeg) % 180;
+      if (da > 90) da = 180 - da;
+      if (da < 20) return true;
+    }
+  }
+  return false;
+}
+
+/** Record a found region; nested (smaller) regions keep their own labels inside larger ones. */
+export function register(ctx: Ctx, f: Found): void {
+  ctx.found.push(f);
+  const id = ctx.found.length;
+  for (let k = 0; k < f.pixels.length; k++) {
+    const i = f.pixels[k];
+    const l = ctx.label[i];
+    if (l === 0 || ctx.found[l - 1].pixels.length > f.pixels.length) ctx.label[i] = id;
+  }
+}

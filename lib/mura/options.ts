@@ -1,0 +1,131 @@
+// Options of the mura analysis, their documented defaults and validation.
+
+import { EvenfieldError } from '../errors.js';
+import type { Pattern } from '../types.js';
+import { DEFAULT_SEMU_CONSTANTS, type SemuConstants } from './semu.js';
+
+export interface BackgroundOptions {
+  /** order of the whole-panel polynomial surface that counts as smooth variation (default 3 on lit
+   *  fields, 2 on black). Orders above 4 start to swallow clouds. */
+  order: number;
+  /** cells of the coarse grid the surface is fitted on, mm (default: long side / 80, at least 2 map px) */
+  cellMm: number | null;
+  /** cells whose residual is beyond this many robust sigmas are left out of the fit (default 3) */
+  clipSigma: number;
+  /** fit -> detect -> mask -> refit rounds (default 3) */
+  rounds: number;
+  /** found features are masked out to this multiple of their half-peak radius before the refit
+   *  (default 2.5; shrunk when the mask would cover more than maxMaskedFraction of the panel) */
+  maskRadiusFactor: number;
+  /** largest fraction of the panel the feature mask may cover (default 0.5) */
+  maxMaskedFraction: number;
+}
+
+export interface MuraOptions {
+  /** test pattern on the photo; black fields get the edge/corner glow logic */
+  pattern: Pattern;
+  /** tile grid [cols, rows] of a tiled display, or null (default) */
+  tileGrid: [number, number] | null;
+  /** smallest feature searched for, diameter in mm (default 3) */
+  minFeatureMm: number;
+  /** largest round feature searched for, diameter in mm (default 200) */
+  maxFeatureMm: number;
+  /** detection threshold: a feature's significance against the photo noise, in sigmas (default 5) */
+  thresholdSigma: number;
+  /** a feature must also stand out of the background model's own error by this many sigmas (default 3) */
+  fitSigma: number;
+  /** findings below this SEMU are not reported (default 0.5) */
+  semuFloor: number;
+  semuConstants: SemuConstants;
+  background: BackgroundOptions;
+  /** round features at least this wide (mm, half-peak diameter) are clouds, smaller ones spots (default 45) */
+  cloudMinMm: number;
+  /** elongated features narrower than this (mm, half-peak width) are lines (default 4) */
+  lineMaxWidthMm: number;
+  /** a band must span at least this fraction of the panel along its axis (default 0.6) */
+  bandMinSpan: number;
+  /** at least this many spots on a common lattice make a hot-spot array (default 6) */
+  hotspotMinCount: number;
+  /** largest working raster, pixels; larger maps are box-averaged down (default 4e6) */
+  maxWorkPixels: number;
+}
+
+export type MuraOptionsInput = Partial<Omit<MuraOptions, 'background' | 'semuConstants'>> & {
+  pattern: Pattern;
+  background?: Partial<BackgroundOptions>;
+  semuConstants?: Partial<SemuConstants>;
+};
+
+export function resolveMuraOptions(input: MuraOptionsInput): MuraOptions {
+  const black = input.pattern === 'black';
+  const bg: BackgroundOptions = {
+    order: black ? 2 : 3,
+    cellMm: null,
+    clipSigma: 3,
+    rounds: 3,
+    maskRadiusFactor: 2.5,
+    maxMaskedFraction: 0.5,
+    ...stripUndefined(input.background ?? {}),
+  };
+  const o: MuraOptions = {
+    pattern: input.pattern,
+    tileGrid: input.tileGrid ?? null,
+    minFeatureMm: input.minFeatureMm ?? 3,
+    maxFeatureMm: input.maxFeatureMm ?? 200,
+    thresholdSigma: input.thresholdSigma ?? 5,
+    fitSigma: input.fitSigma ?? 3,
+    semuFloor: input.semuFloor ?? 0.5,
+    semuConstants: { ...DEFAULT_SEMU_CONSTANTS, ...stripUndefined(input.semuConstants ?? {}) },
+    background: bg,
+    cloudMinMm: input.cloudMinMm ?? 45,
+    lineMaxWidthMm: input.lineMaxWidthMm ?? 4,
+    bandMinSpan: input.bandMinSpan ?? 0.6,
+    hotspotMinCount: input.hotspotMinCount ?? 6,
+    maxWorkPixels: input.maxWorkPixels ?? 4e6,
+  };
+  validate(o);
+  return o;
+}
+
+function stripUndefined<T extends object>(o: T): Partial<T> {
+  const out: Partial<T> = {};
+  for (const [k, v] of Object.entries(o)) if (v !== undefined) (out as Record<string, unknown>)[k] = v;
+  return out;
+}
+
+function bad(message: string): never {
+  throw new EvenfieldError('usage', `mura option ${message}`);
+}
+
+function positive(name: string, v: number): void {
+  if (!(Number.isFinite(v) && v > 0)) bad(`${name} must be a positive number, got ${v}`);
+}
+
+function validate(o: MuraOptions): void {
+  positive('minFeatureMm', o.minFeatureMm);
+  positive('maxFeatureMm', o.maxFeatureMm);
+  if (o.maxFeatureMm < 2 * o.minFeatureMm) bad('maxFeatureMm must be at least twice minFeatureMm');
+  positive('thresholdSigma', o.thresholdSigma);
+  if (!(Number.isFinite(o.fitSigma) && o.fitSigma >= 0)) bad(`fitSigma must be >= 0, got ${o.fitSigma}`);
+  if (!(Number.isFinite(o.semuFloor) && o.semuFloor >= 0)) bad(`semuFloor must be >= 0, got ${o.semuFloor}`);
+  positive('cloudMinMm', o.cloudMinMm);
+  positive('lineMaxWidthMm', o.lineMaxWidthMm);
+  if (!(o.bandMinSpan > 0 && o.bandMinSpan <= 1)) bad(`bandMinSpan must be in (0, 1], got ${o.bandMinSpan}`);
+  if (!(Number.isInteger(o.hotspotMinCount) && o.hotspotMinCount >= 3)) bad('hotspotMinCount must be an integer >= 3');
+  if (!(o.maxWorkPixels >= 10_000)) bad('maxWorkPixels must be at least 10000');
+  const b = o.background;
+  if (!(Number.isInteger(b.order) && b.order >= 0 && b.order <= 6)) bad(`background.order must be an integer 0..6, got ${b.order}`);
+  if (b.cellMm !== null) positive('background.cellMm', b.cellMm);
+  positive('background.clipSigma', b.clipSigma);
+  if (!(Number.isInteger(b.rounds) && b.rounds >= 1 && b.rounds <= 10)) bad('background.rounds must be an integer 1..10');
+  positive('background.maskRadiusFactor', b.maskRadiusFactor);
+  if (!(b.maxMaskedFraction > 0 && b.maxMaskedFraction < 1)) bad('background.maxMaskedFraction must be in (0, 1)');
+  if (o.tileGrid !== null) {
+    const [c, r] = o.tileGrid;
+    if (!(Number.isInteger(c) && Number.isInteger(r) && c >= 1 && r >= 1 && c * r >= 2 && c <= 64 && r <= 64)) {
+      bad(`tileGrid must be [cols, rows] of integers 1..64 with at least 2 tiles, got [${o.tileGrid.join(', ')}]`);
+    }
+  }
+  const k = o.semuConstants;
+  for (const [name, v] of Object.entries(k)) if (!Number.isFinite(v)) bad(`semuConstants.${name} must be finite`);
+}
