@@ -449,7 +449,7 @@ function fitLuminance(bl: Blocks, y: Float64Array, setup: FitSetup): LumFit {
       if (Math.abs(centre[0]) > 0.5 || Math.abs(centre[1]) > 0.5) {
         notes.push('fitted optical centre ran far from the image centre; fell back to the image centre');
         centre = [...st.centre0];
-        st = { ...st, fitCentre: false };
+        st = { ...setup, fitCentre: false };
         g = null;
         centreSe = null;
         continue;

@@ -28,7 +28,7 @@
 // The smallest is reported as `separability`; the calibration is refused when it is too small, when
 // the camera hardly moved, or when the photos do not share enough of the panel.
 
-import { Matrix } from 'ml-matrix';
+import { CholeskyDecomposition, Matrix, inverse } from 'ml-matrix';
 import { EvenfieldError } from '../errors.js';
 import { applyHomography, invertHomography, panelToCamera } from '../geometry/index.js';
 import type { Corners, ExposureRecord, Homography, Plane } from '../types.js';
@@ -44,7 +44,6 @@ import {
 } from './basis.js';
 import { inverseColumns, logCurveToPolynomial, median, robustSigma, solveSymmetric, symmetricEigenvalues } from './lsq.js';
 import { type FalloffProfile, PROFILE_FORMAT, PROFILE_VERSION, modelCornerTransmission } from './profile.js';
-import { CholeskyDecomposition, inverse } from 'ml-matrix';
 
 export interface ShiftedFrame {
   /** linear luminance of the photo (decoded size; all frames the same size) */
