@@ -59,7 +59,7 @@ export function radiusSquared(
 /**
  * Legendre polynomials P_0..P_order at x, written into out (length >= order + 1).
  * Recurrence (n + 1) P_{n+1} = (2n + 1) x P_n - n P_{n-1}, P_0 = 1, P_1 = x
- * [Abramowitz & Stegun 22.7.10].
+ * [Abramowitz & Stegun, Handbook of Mathematical Functions, ch. 22; equation number 22.7.10 from memory].
  */
 export function legendreInto(x: number, order: number, out: Float64Array): Float64Array {
   out[0] = 1;
@@ -72,7 +72,7 @@ export function legendreInto(x: number, order: number, out: Float64Array): Float
 
 /**
  * Derivatives P_0'..P_order' at x given P_0..P_order in p: P'_{n+1} = P'_{n-1} + (2n + 1) P_n
- * [Abramowitz & Stegun 22.8, the derivative recurrence].
+ * [Abramowitz & Stegun ch. 22, the derivative relations; exact equation number not checked, from memory].
  */
 export function legendreDerivInto(p: Float64Array, order: number, out: Float64Array): Float64Array {
   out[0] = 0;

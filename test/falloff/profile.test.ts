@@ -60,7 +60,7 @@ const exif: ExposureRecord = {
 
 describe('Legendre basis', () => {
   it('matches the closed forms P2 = (3x²-1)/2, P3 = (5x³-3x)/2, P4 = (35x⁴-30x²+3)/8', () => {
-    // closed forms [Abramowitz & Stegun, Table 22.9]
+    // closed forms [Abramowitz & Stegun ch. 22, table of Legendre polynomials; table number from memory]
     const out = new Float64Array(5);
     for (const x of [-1, -0.3, 0, 0.45, 1]) {
       legendreInto(x, 4, out);

@@ -131,7 +131,7 @@ export function panelPattern(u: number, v: number): number {
 export type Mat3 = number[];
 
 /** Homography of the unit square onto the quadrilateral q (TL, TR, BR, BL): the closed form for a
- *  square-to-quad map [Heckbert 1989, "Fundamentals of texture mapping", §2.2.3]. */
+ *  square-to-quad map [Heckbert 1989, "Fundamentals of texture mapping"; section number from memory]. */
 export function squareToQuad(q: [number, number][]): Mat3 {
   const [[x0, y0], [x1, y1], [x2, y2], [x3, y3]] = q;
   const sx = x0 - x1 + x2 - x3;
