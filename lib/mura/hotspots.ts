@@ -71,12 +71,16 @@ function offLattice(v: number, origin: number, pitch: number): number {
 
 export function groupHotspots(ctx: Ctx, singles: Finding[], opts: MuraOptions): Finding[] {
   const bright = singles.filter((f) => f.polarity === 'bright' && (f.kind === 'spot' || f.kind === 'cloud'));
-  if (bright.length < opts.hotspotMinCount) return singles;
+  // zones cut by a panel edge are smaller and their centroids shift inwards: they join the array but
+  // do not set its pitch, origin or typical zone
+  const cut = (f: Finding): boolean => f.bbox[0] <= 1 || f.bbox[1] <= 1 || f.bbox[2] >= ctx.w - 1 || f.bbox[3] >= ctx.h - 1;
+  const whole = bright.filter((f) => !cut(f));
+  if (whole.length < opts.hotspotMinCount) return singles;
   const mm = ctx.mmPerPx;
-  const pts = bright.map((f) => [f.cx * mm, f.cy * mm] as [number, number]);
+  const pts = whole.map((f) => [f.cx * mm, f.cy * mm] as [number, number]);
   const px = axisPitches(pts, 0);
   const py = axisPitches(pts, 1);
-  if (px.length < bright.length / 2 || py.length < bright.length / 2) return singles;
+  if (px.length < whole.length / 2 || py.length < whole.length / 2) return singles;
   const pitchX = medianOf(px);
   const pitchY = medianOf(py);
   // the pitch must be consistent: most nearest-neighbour distances within 20 % of it
@@ -84,16 +88,17 @@ export function groupHotspots(ctx: Ctx, singles: Finding[], opts: MuraOptions): 
   if (!consistent(px, pitchX) || !consistent(py, pitchY)) return singles;
   const ox = circularOrigin(pts.map((p) => p[0]), pitchX);
   const oy = circularOrigin(pts.map((p) => p[1]), pitchY);
-  const onNode = (x: number, y: number, shift: number): boolean =>
-    offLattice(x, ox + shift * pitchX, pitchX) <= 0.2 * pitchX && offLattice(y, oy + shift * pitchY, pitchY) <= 0.2 * pitchY;
-  const members = bright.filter((f) => onNode(f.cx * mm, f.cy * mm, 0));
+  const onNode = (x: number, y: number, shift: number, tol: number): boolean =>
+    offLattice(x, ox + shift * pitchX, pitchX) <= tol * pitchX && offLattice(y, oy + shift * pitchY, pitchY) <= tol * pitchY;
+  const members = whole.filter((f) => onNode(f.cx * mm, f.cy * mm, 0, 0.2));
   if (members.length < opts.hotspotMinCount) return singles;
   // zones of one array look alike: keep those within a factor 4 of the median area
   const medArea = medianOf(members.map((f) => f.areaMm2));
   const zones = members.filter((f) => f.areaMm2 <= 4 * medArea && f.areaMm2 >= medArea / 4);
   if (zones.length < opts.hotspotMinCount) return singles;
-  const gaps = singles.filter((f) => f.polarity === 'dark' && f.kind === 'spot' && onNode(f.cx * mm, f.cy * mm, 0.5));
-  const inArray = new Set<Finding>([...zones, ...gaps]);
+  const edgeZones = bright.filter((f) => cut(f) && f.areaMm2 <= 4 * medArea && onNode(f.cx * mm, f.cy * mm, 0, 0.4));
+  const gaps = singles.filter((f) => f.polarity === 'dark' && f.kind === 'spot' && onNode(f.cx * mm, f.cy * mm, 0.5, 0.25));
+  const inArray = new Set<Finding>([...zones, ...edgeZones, ...gaps]);
 
   const area = medianOf(zones.map((f) => f.areaMm2));
   const contrast = zones.reduce((s, f) => s + f.contrastPct, 0) / zones.length;
@@ -101,13 +106,13 @@ export function groupHotspots(ctx: Ctx, singles: Finding[], opts: MuraOptions): 
   const bbox: [number, number, number, number] = [Infinity, Infinity, -Infinity, -Infinity];
   let cx = 0;
   let cy = 0;
-  for (const f of zones) {
+  for (const f of [...zones, ...edgeZones]) {
     bbox[0] = Math.min(bbox[0], f.bbox[0]);
     bbox[1] = Math.min(bbox[1], f.bbox[1]);
     bbox[2] = Math.max(bbox[2], f.bbox[2]);
     bbox[3] = Math.max(bbox[3], f.bbox[3]);
-    cx += f.cx / zones.length;
-    cy += f.cy / zones.length;
+    cx += f.cx / (zones.length + edgeZones.length);
+    cy += f.cy / (zones.length + edgeZones.length);
   }
   const array: Finding = {
     kind: 'hotspot-array',
@@ -122,11 +127,11 @@ export function groupHotspots(ctx: Ctx, singles: Finding[], opts: MuraOptions): 
     detail: {
       pitchUMm: round(pitchX, 1),
       pitchVMm: round(pitchY, 1),
-      zones: zones.length,
+      zones: zones.length + edgeZones.length,
       darkGaps: gaps.length,
       zoneAreaMm2: round(area, 1),
     },
-    members: zones.flatMap((f) => f.members),
+    members: [...zones, ...edgeZones].flatMap((f) => f.members),
   };
   return [array, ...singles.filter((f) => !inArray.has(f))];
 }

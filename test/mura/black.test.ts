@@ -1,0 +1,70 @@
+// Black fields: light creeping in from an edge (bleed) or a corner is found as glow, on the right
+// edge or corner; SEMU there carries the extrapolation note.
+import { describe, expect, it } from 'vitest';
+import { analyseMura } from '../../lib/mura/index.js';
+import { synthMap, type SynthFeature } from '../../scripts/mura-synth.js';
+
+const W = 240;
+const H = 150;
+
+function run(features: SynthFeature[], seed: number, pattern: 'black' | 'gray' = 'black') {
+  // black fields are dim: the photo noise is several % of the level
+  const map = synthMap({ widthMm: W, heightMm: H, pxPerMm: 2, level: 0.002, noisePct: 3, seed, smooth: [[0, 0.02], [0.03], [-0.05]], features });
+  return analyseMura(map, { pattern });
+}
+
+describe('glow on black fields', () => {
+  it('finds light along a whole edge as edge glow on that edge', () => {
+    const decay = 12;
+    const r = run([{ kind: 'edge-glow', edge: 'left', decayMm: decay, contrastPct: 80 }], 21);
+    expect(r.blobs.length).toBe(1);
+    const g = r.blobs[0];
+    expect(g.kind).toBe('edge-glow');
+    expect(g.detail.edge).toBe('left');
+    expect(g.polarity).toBe('bright');
+    // exp(-x / decay) falls to half at x = decay ln2: the half-peak region is that strip along the edge;
+    // its mean is peak (1/ln2) (1 - 1/2) / 1 = 0.7213 of the peak (integral of exp by hand)
+    expect(Math.abs(g.areaMm2 - decay * Math.LN2 * H) / (decay * Math.LN2 * H)).toBeLessThan(0.3);
+    expect(Math.abs(g.contrastPct - 80 * 0.5 / Math.LN2) / (80 * 0.5 / Math.LN2)).toBeLessThan(0.25);
+    expect(r.notes.some((n) => /extrapolation/.test(n))).toBe(true);
+  });
+
+  it('finds a glow patch on part of an edge and a corner glow, each in its place', () => {
+    const r = run(
+      [
+        { kind: 'edge-glow', edge: 'bottom', decayMm: 8, contrastPct: 60, atMm: 150, fwhmAlongMm: 60 },
+        { kind: 'corner-glow', corner: 'top-right', decayMm: 15, contrastPct: 100 },
+      ],
+      22,
+    );
+    expect(r.blobs.length).toBe(2);
+    const patch = r.blobs.find((b) => b.kind === 'edge-glow');
+    const corner = r.blobs.find((b) => b.kind === 'corner-glow');
+    expect(patch?.detail.edge).toBe('bottom');
+    expect(Math.abs(patch!.xMm - 150)).toBeLessThan(5);
+    expect(corner?.detail.corner).toBe('top-right');
+    expect(corner!.u).toBeGreaterThan(0.9);
+    expect(corner!.v).toBeLessThan(0.1);
+  });
+
+  it('calls a bright cloud that does not touch an edge a cloud, not glow', () => {
+    const r = run([{ kind: 'gauss', xMm: 120, yMm: 70, sigmaMm: 25, contrastPct: 40 }], 23);
+    expect(r.blobs.length).toBe(1);
+    expect(r.blobs[0].kind).toBe('cloud');
+  });
+
+  it('does not look for glow on lit fields', () => {
+    const map = synthMap({
+      widthMm: W,
+      heightMm: H,
+      pxPerMm: 2,
+      noisePct: 0.5,
+      seed: 24,
+      features: [{ kind: 'edge-glow', edge: 'top', decayMm: 10, contrastPct: 5 }],
+    });
+    const r = analyseMura(map, { pattern: 'white' });
+    expect(r.blobs.length).toBeGreaterThan(0);
+    for (const b of r.blobs) expect(b.kind === 'edge-glow' || b.kind === 'corner-glow').toBe(false);
+    expect(r.notes.some((n) => /extrapolation/.test(n))).toBe(false);
+  });
+});

@@ -1,0 +1,111 @@
+// Found, right kind, contrast and area against analytical half-peak truths, on synthetic panel maps:
+// features multiply a smooth 2nd-order background, plus white noise. Acceptance tolerances of the
+// mura issue: mean contrast within +-25 %, area within +-30 % (for features of SEMU >= 2).
+import { describe, expect, it } from 'vitest';
+import { analyseMura, semu } from '../../lib/mura/index.js';
+import { FWHM_PER_SIGMA, synthMap, type SynthFeature } from '../../scripts/mura-synth.js';
+import { gaussTruth, meanOverHalfPeak, nearest, relErr } from './helpers.js';
+
+const W = 240;
+const H = 150;
+const SMOOTH = [
+  [0, 0.03, -0.05],
+  [0.04, 0.01],
+  [-0.06],
+];
+
+function run(features: SynthFeature[], seed: number, noisePct = 0.5) {
+  const map = synthMap({ widthMm: W, heightMm: H, pxPerMm: 2, noisePct, seed, smooth: SMOOTH, features });
+  return analyseMura(map, { pattern: 'gray' });
+}
+
+describe('round features', () => {
+  it('finds a bright Gaussian spot and a dark Gaussian cloud with the analytical half-peak figures', () => {
+    const spot = { sigma: 4, peak: 4, x: 60, y: 50 };
+    const cloud = { sigma: 24, peak: -2.5, x: 160, y: 85 };
+    const r = run(
+      [
+        { kind: 'gauss', xMm: spot.x, yMm: spot.y, sigmaMm: spot.sigma, contrastPct: spot.peak },
+        { kind: 'gauss', xMm: cloud.x, yMm: cloud.y, sigmaMm: cloud.sigma, contrastPct: cloud.peak },
+      ],
+      11,
+    );
+    expect(r.blobs.length).toBe(2);
+    const s = nearest(r.blobs, spot.x, spot.y)!;
+    const c = nearest(r.blobs, cloud.x, cloud.y)!;
+    expect(s).not.toBe(c);
+
+    const ts = gaussTruth(spot.sigma, spot.peak); // area 69.7 mm², mean 2.885 %
+    expect(s.kind).toBe('spot');
+    expect(s.polarity).toBe('bright');
+    expect(Math.hypot(s.xMm - spot.x, s.yMm - spot.y)).toBeLessThan(1);
+    expect(relErr(s.contrastPct, ts.contrastPct)).toBeLessThan(0.25);
+    expect(relErr(s.areaMm2, ts.areaMm2)).toBeLessThan(0.3);
+    expect(relErr(s.peakContrastPct, spot.peak)).toBeLessThan(0.25);
+
+    const tc = gaussTruth(cloud.sigma, cloud.peak); // area 2508 mm² (56.5 mm across), mean -1.803 %
+    expect(c.kind).toBe('cloud');
+    expect(c.polarity).toBe('dark');
+    expect(Math.hypot(c.xMm - cloud.x, c.yMm - cloud.y)).toBeLessThan(3);
+    expect(relErr(c.contrastPct, tc.contrastPct)).toBeLessThan(0.25);
+    expect(relErr(c.areaMm2, tc.areaMm2)).toBeLessThan(0.3);
+
+    // SEMU of each finding is the published form applied to its own figures, and the list is ranked
+    for (const b of r.blobs) expect(b.semu).toBeCloseTo(semu(b.contrastPct, b.areaMm2), 2);
+    expect(r.blobs[0].semu).toBeGreaterThanOrEqual(r.blobs[1].semu);
+    expect(r.blobs.map((b) => b.id)).toEqual([1, 2]);
+    expect(r.maxSemu).toBe(r.blobs[0].semu);
+  });
+});
+
+describe('lines and bands', () => {
+  it('finds a vertical band and a partial horizontal line with their half-peak figures', () => {
+    const bandW = 15; // raised-cosine FWHM, mm
+    const lineW = 1.5; // Gaussian FWHM, mm
+    const r = run(
+      [
+        { kind: 'band', axis: 'vertical', posMm: 170, fwhmMm: bandW, profile: 'cos', contrastPct: 1.5 },
+        { kind: 'band', axis: 'horizontal', posMm: 40, fwhmMm: lineW, profile: 'gauss', contrastPct: -3, fromMm: 30, toMm: 130 },
+      ],
+      12,
+    );
+    expect(r.blobs.length).toBe(2);
+    const band = nearest(r.blobs, 170, 75)!;
+    const line = nearest(r.blobs, 80, 40)!;
+
+    // raised cosine cos²(pi d / 2w): half-peak at |d| = w/2, mean over it 1/2 + 1/pi (integral by hand)
+    expect(band.kind).toBe('band');
+    expect(band.detail.axis).toBe('vertical');
+    expect(relErr(band.contrastPct, 1.5 * (0.5 + 1 / Math.PI))).toBeLessThan(0.25);
+    expect(relErr(band.areaMm2, bandW * H)).toBeLessThan(0.3);
+
+    // Gaussian line: mean over its FWHM by Simpson's rule (0.8101 of the peak); length 100 mm with soft
+    // ends centred on 30 and 130 mm (0.5 there)
+    const s = lineW / FWHM_PER_SIGMA;
+    const lineMean = -3 * meanOverHalfPeak((d) => Math.exp((-d * d) / (2 * s * s)), lineW);
+    expect(line.kind).toBe('line');
+    expect(line.polarity).toBe('dark');
+    expect(line.detail.axis).toBe('horizontal');
+    expect(relErr(line.contrastPct, lineMean)).toBeLessThan(0.25);
+    expect(relErr(line.areaMm2, lineW * 100)).toBeLessThan(0.3);
+    expect(Math.abs(line.xMm - 80)).toBeLessThan(3);
+    expect(Math.abs(line.yMm - 40)).toBeLessThan(0.5);
+  });
+
+  it('tells a band spanning the panel from a short elongated blob', () => {
+    const r = run(
+      [
+        { kind: 'band', axis: 'horizontal', posMm: 100, fwhmMm: 10, profile: 'cos', contrastPct: 2 },
+        { kind: 'gauss', xMm: 60, yMm: 40, sigmaMm: 5, sigmaYMm: 5, contrastPct: 3 },
+      ],
+      13,
+    );
+    const band = nearest(r.blobs, 120, 100)!;
+    expect(band.kind).toBe('band');
+    expect(band.detail.axis).toBe('horizontal');
+    // spans the panel: bbox from u ~ 0 to u ~ 1
+    expect(band.bbox[0]).toBeLessThan(0.05);
+    expect(band.bbox[2]).toBeGreaterThan(0.95);
+    expect(nearest(r.blobs, 60, 40)!.kind).toBe('spot');
+  });
+});

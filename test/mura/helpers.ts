@@ -1,0 +1,34 @@
+// Shared helpers of the mura tests: analytical half-peak truths and blob matching.
+import type { Blob } from '../../lib/types.js';
+
+/** Gaussian bump of sigma s (mm): the region phi >= 1/2 is a disc of radius s sqrt(2 ln 2), so its
+ *  area is pi 2 ln2 s²; the mean of phi over it is 1 / (2 ln 2) (derived in scripts/mura-synth.ts). */
+export function gaussTruth(sigmaMm: number, peakPct: number): { areaMm2: number; contrastPct: number } {
+  return { areaMm2: Math.PI * 2 * Math.LN2 * sigmaMm * sigmaMm, contrastPct: peakPct / (2 * Math.LN2) };
+}
+
+/** Mean of a 1-D cross-profile phi over its half-peak interval [-w/2, w/2], by Simpson's rule. */
+export function meanOverHalfPeak(phi: (d: number) => number, fwhm: number, n = 2000): number {
+  const h = fwhm / n;
+  let s = phi(-fwhm / 2) + phi(fwhm / 2);
+  for (let i = 1; i < n; i++) s += (i % 2 ? 4 : 2) * phi(-fwhm / 2 + i * h);
+  return (s * h) / 3 / fwhm;
+}
+
+/** The blob nearest to (xMm, yMm), or undefined. */
+export function nearest(blobs: Blob[], xMm: number, yMm: number): Blob | undefined {
+  let best: Blob | undefined;
+  let bd = Infinity;
+  for (const b of blobs) {
+    const d = Math.hypot(b.xMm - xMm, b.yMm - yMm);
+    if (d < bd) {
+      bd = d;
+      best = b;
+    }
+  }
+  return best;
+}
+
+export function relErr(measured: number, truth: number): number {
+  return Math.abs(measured - truth) / Math.abs(truth);
+}

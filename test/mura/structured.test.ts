@@ -1,0 +1,71 @@
+// Periodic and tiled structure: a backlight's hot-spot array is one finding with its pitch; a tiled
+// display's level steps and seams are reported per tile and per seam.
+import { describe, expect, it } from 'vitest';
+import { analyseMura } from '../../lib/mura/index.js';
+import { FWHM_PER_SIGMA, synthMap } from '../../scripts/mura-synth.js';
+import { meanOverHalfPeak, relErr } from './helpers.js';
+
+const W = 240;
+const H = 150;
+
+describe('hot-spot arrays', () => {
+  it('reports a lattice of bright zones as one finding with its pitch', () => {
+    const pitch = 40;
+    const map = synthMap({
+      widthMm: W,
+      heightMm: H,
+      pxPerMm: 2,
+      noisePct: 0.5,
+      seed: 31,
+      smooth: [[0, 0.02], [0.03], [-0.05]],
+      features: [{ kind: 'hotspots', pitchMm: pitch, fwhmMm: 14, contrastPct: 3 }],
+    });
+    const r = analyseMura(map, { pattern: 'white' });
+    const arrays = r.blobs.filter((b) => b.kind === 'hotspot-array');
+    expect(arrays.length).toBe(1);
+    // no zone is left over as a separate spot
+    expect(r.blobs.filter((b) => b.kind === 'spot').length).toBe(0);
+    const a = arrays[0];
+    expect(Math.abs(Number(a.detail.pitchUMm) - pitch)).toBeLessThan(2);
+    expect(Math.abs(Number(a.detail.pitchVMm) - pitch)).toBeLessThan(2);
+    // lattice centred on the panel: 6 x 4 nodes inside 240 x 150 mm at 40 mm pitch (x = 0 .. 240, y = 15 .. 135)
+    expect(Number(a.detail.zones)).toBeGreaterThanOrEqual(20);
+    // one zone: a Gaussian of FWHM 14 mm, half-peak area pi 7² = 154 mm² (neighbours add little at 40 mm)
+    expect(relErr(a.areaMm2, Math.PI * 49)).toBeLessThan(0.3);
+  });
+});
+
+describe('tiled displays', () => {
+  it('measures a tile step against the other tiles and the seams along the tile boundaries', () => {
+    const seamW = 1.5;
+    const map = synthMap({
+      widthMm: W,
+      heightMm: H,
+      pxPerMm: 2,
+      noisePct: 0.5,
+      seed: 32,
+      smooth: [[0, 0.02], [0.03], [-0.05]],
+      features: [{ kind: 'tiles', cols: 3, rows: 2, stepsPct: [0, 0, 0, 0, 2, 0], seamFwhmMm: seamW, seamContrastPct: -4 }],
+    });
+    const r = analyseMura(map, { pattern: 'white', tileGrid: [3, 2] });
+    const steps = r.blobs.filter((b) => b.detail.form === 'tile-step');
+    expect(steps.length).toBe(1);
+    expect(steps[0].detail.tile).toBe('r2c2');
+    expect(relErr(steps[0].contrastPct, 2)).toBeLessThan(0.1);
+    // the tile is the step's region: 80 x 75 mm
+    expect(relErr(steps[0].areaMm2, 80 * 75)).toBeLessThan(0.02);
+
+    const seams = r.blobs.filter((b) => b.detail.form === 'line');
+    expect(seams.map((b) => b.detail.seam).sort()).toEqual(['x=1/3', 'x=2/3', 'y=1/2']);
+    const s = seamW / FWHM_PER_SIGMA;
+    const truth = -4 * meanOverHalfPeak((d) => Math.exp((-d * d) / (2 * s * s)), seamW);
+    for (const b of seams) {
+      expect(b.kind).toBe('seam');
+      expect(b.polarity).toBe('dark');
+      expect(relErr(b.contrastPct, truth)).toBeLessThan(0.25);
+      expect(relErr(Number(b.detail.widthMm), seamW)).toBeLessThan(0.3);
+    }
+    // no line finding duplicates a seam
+    expect(r.blobs.filter((b) => b.kind === 'line').length).toBe(0);
+  });
+});
