@@ -30,6 +30,18 @@ import { checkPanelQuality, nearWhiteMask, type QualityLimits, DEFAULT_QUALITY_L
 /** default smallest mura feature, mm (the mura analysis's own default; see lib/mura/options.ts) */
 const DEFAULT_MIN_FEATURE_MM = 3;
 
+/** Width of the panel edge's transition in working-scale camera pixels, excluded from the mura analysis. */
+const EDGE_TRANSITION_CAMERA_PX = 3;
+
+function withoutBorder(valid: Uint8Array, w: number, h: number, border: number): Uint8Array {
+  const out = valid.slice();
+  for (let y = 0; y < h; y++) {
+    const inner = y >= border && y < h - border;
+    for (let x = 0; x < w; x++) if (!inner || x < border || x >= w - border) out[y * w + x] = 0;
+  }
+  return out;
+}
+
 /** Largest departure from right angles (degrees) of the back-projected outline for the pose to be used. */
 const MAX_ORTHOGONALITY_ERROR_DEG = 3;
 
@@ -455,7 +467,11 @@ async function measureInner(
   // 8. mura
   let contrastMap: Plane | null = null;
   if (opts.mura) {
-    const mura = analyseMura(map, { ...opts.muraOptions, pattern: opts.pattern });
+    // The outermost map pixels average camera pixels that straddle the active-area edge (part bezel),
+    // and the edge transition is a few camera pixels wide (optics, demosaicing, JPEG ringing): keep
+    // that border out of the mura analysis, or it reads as dark lines along every edge.
+    const border = Math.ceil(EDGE_TRANSITION_CAMERA_PX / Math.max(rect.cameraPxPerMapPx, 1e-3)) + 1;
+    const mura = analyseMura({ ...map, valid: withoutBorder(map.valid, map.width, map.height, border) }, { ...opts.muraOptions, pattern: opts.pattern });
     const { contrast, background, ...rest } = mura;
     void background;
     result.mura = rest;
