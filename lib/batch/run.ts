@@ -72,6 +72,34 @@ function panelSignature(group: PanelGroup, ctx: RunContext): string {
   return sha(JSON.stringify({ files, problems: group.problems, measure: ctx.measure, criteria: ctx.criteriaHash, pdf: ctx.pdf, version: ctx.toolVersion, lot: ctx.lot, date: ctx.date }));
 }
 
+/** writeFileAtomic's temporary names (lib/io/files.ts): `.<target name>.<pid>.<12 hex digits>.tmp`. */
+const TEMP_NAME = /^\..+\.(\d+)\.[0-9a-f]{12}\.tmp$/;
+
+function processAlive(pid: number): boolean {
+  try {
+    process.kill(pid, 0);
+    return true;
+  } catch (e) {
+    return (e as NodeJS.ErrnoException).code === 'EPERM';
+  }
+}
+
+/**
+ * Remove the temporary files a killed run left behind (a kill between creating a temporary file and
+ * renaming it leaves one; nothing can clean up after SIGKILL). Only names of writeFileAtomic's form,
+ * and only those of processes that are gone: a live writer's file is left alone.
+ */
+function removeStaleTemporaries(dir: string): void {
+  if (!existsSync(dir)) return;
+  for (const name of readdirSync(dir)) {
+    const m = TEMP_NAME.exec(name);
+    if (!m) continue;
+    const pid = Number(m[1]);
+    if (pid !== process.pid && processAlive(pid)) continue;
+    rmSync(join(dir, name), { force: true });
+  }
+}
+
 interface RunState {
   date: string;
   startedBy: string;
@@ -100,6 +128,8 @@ function prepareOutDir(outDir: string, opts: BatchOptions): string {
     for (const f of [RESULTS_JSON, RESULTS_CSV, SUMMARY_PDF]) rmSync(join(outDir, f), { force: true });
   }
   mkdirSync(work, { recursive: true });
+  removeStaleTemporaries(outDir);
+  removeStaleTemporaries(work);
   if (opts.resume && existsSync(statePath)) {
     try {
       const st = JSON.parse(readFileSync(statePath, 'utf8')) as RunState;
