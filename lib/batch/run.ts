@@ -230,7 +230,9 @@ export async function runBatch(opts: BatchOptions): Promise<BatchOutcome> {
     });
     await writeFileAtomic(join(outDir, SUMMARY_PDF), bytes);
   }
-  const anyError = panels.some((p) => p.verdict === 'error') || opts.grouping.unassigned.length > 0;
+  // a photo that could not be measured is unusable input even when its panel failed on another photo
+  const anyError =
+    panels.some((p) => p.verdict === 'error' || p.photos.some((ph) => ph.status === 'error')) || opts.grouping.unassigned.length > 0;
   const anyFail = panels.some((p) => p.verdict === 'fail');
   const exitStatus = anyError ? 2 : anyFail ? 1 : 0;
   return { doc, exitStatus, outcomes, ms: performance.now() - t0, skipped };
