@@ -252,7 +252,8 @@ export async function main(argv: string[]): Promise<number> {
     await parser.parseAsync(argv);
   } catch (e) {
     if (isEvenfieldError(e)) {
-      process.stderr.write(`evenfield: ${e.message}\n`);
+      // one line per problem (a criteria file can have several), each a whole message on its own
+      for (const line of e.message.split('\n')) process.stderr.write(`evenfield: ${line}\n`);
       return EXIT.unusable;
     }
     process.stderr.write(`evenfield: ${e instanceof Error ? e.message.split('\n')[0] : String(e)}\n`);
