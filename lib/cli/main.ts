@@ -164,8 +164,11 @@ async function inspect(a: InspectArgs): Promise<number> {
   });
   const s = out.doc.summary;
   if (!a.quiet) {
+    // files that could not be used, also those in panels that failed on another photo (exit status 2)
+    const unusable = out.doc.panels.reduce((n, p) => n + p.photos.filter((ph) => ph.status === 'error').length, 0) + out.doc.unassigned.length;
     process.stderr.write(
       `${s.panels} panels: ${s.passed} passed, ${s.failed} failed, ${s.errors} errors` +
+        (unusable ? `, ${unusable} unusable ${unusable === 1 ? 'file' : 'files'}` : '') +
         (out.skipped ? ` (${out.skipped} kept from the earlier run)` : '') +
         ` in ${(out.ms / 1000).toFixed(1)} s → ${a.out}\n`,
     );
