@@ -341,16 +341,39 @@ function reduceBlocks(
 
 /**
  * Scale 2, 8-bit: one pass over two input rows at a time, whole 2×2 blocks in the inner loop without
- * inner loops or allocation; a last odd column or row is finished by reduceBlocks' rule (the pixels the
- * block has). Sums (top pair) + (bottom pair) in double precision, as reduceBlocks does.
+ * inner loops or allocation; a last odd column or row is finished like reduceBlocks (the pixels the
+ * block has). Sums (top pair) + (bottom pair) in double precision, as reduceBlocks does. (The loop has
+ * no closure over its counters: captured variables would live in a heap context, not in registers.)
  */
 function reduce2x8(src: Uint8Array, W: number, H: number, lut: Float32Array, clipCode: number, darkCode: number): Reduced {
-  let clipped = 0;
-  let dark = 0;
   const w = (W + 1) >> 1;
   const h = (H + 1) >> 1;
   const out = new Float32Array(w * h * 3);
   const lum = new Float32Array(w * h);
+  const counts = new Float64Array(2); // clipped, dark
+  wholeBlocks2x8(src, W, H, lut, clipCode, darkCode, out, lum, counts);
+  // partial blocks: the last column when W is odd, the last row when H is odd
+  const wf = W >> 1;
+  const hf = H >> 1;
+  if (wf < w) for (let oy = 0; oy < hf; oy++) partialBlock2(src, W, H, lut, clipCode, darkCode, out, lum, counts, wf, oy, w);
+  if (hf < h) for (let ox = 0; ox < w; ox++) partialBlock2(src, W, H, lut, clipCode, darkCode, out, lum, counts, ox, hf, w);
+  return { data: out, luminance: lum, width: w, height: h, clipped: counts[0]!, dark: counts[1]!, pixels: W * H };
+}
+
+function wholeBlocks2x8(
+  src: Uint8Array,
+  W: number,
+  H: number,
+  lut: Float32Array,
+  clipCode: number,
+  darkCode: number,
+  out: Float32Array,
+  lum: Float32Array,
+  counts: Float64Array,
+): void {
+  let clipped = 0;
+  let dark = 0;
+  const w = (W + 1) >> 1;
   const row = W * 3;
   const wf = W >> 1; // whole blocks across
   const hf = H >> 1; // whole blocks down
@@ -397,47 +420,59 @@ function reduce2x8(src: Uint8Array, W: number, H: number, lut: Float32Array, cli
       if (m < darkCode) dark++;
     }
   }
-  // partial blocks: the last column when W is odd, the last row when H is odd
-  const edge = (ox: number, oy: number) => {
-    const x0 = 2 * ox;
-    const x1 = Math.min(W, x0 + 2);
-    const y0 = 2 * oy;
-    const y1 = Math.min(H, y0 + 2);
-    let s0 = 0;
-    let s1 = 0;
-    let s2 = 0;
-    for (let y = y0; y < y1; y++) {
-      let a0 = 0;
-      let a1 = 0;
-      let a2 = 0;
-      for (let x = x0, i = (y * W + x0) * 3; x < x1; x++, i += 3) {
-        const c0 = src[i]!;
-        const c1 = src[i + 1]!;
-        const c2 = src[i + 2]!;
-        const mx = c0 > c1 ? (c0 > c2 ? c0 : c2) : c1 > c2 ? c1 : c2;
-        if (mx >= clipCode) clipped++;
-        if (mx < darkCode) dark++;
-        a0 += lut[c0]!;
-        a1 += lut[c1]!;
-        a2 += lut[c2]!;
-      }
-      s0 += a0;
-      s1 += a1;
-      s2 += a2;
+  counts[0] = counts[0]! + clipped;
+  counts[1] = counts[1]! + dark;
+}
+
+function partialBlock2(
+  src: Uint8Array,
+  W: number,
+  H: number,
+  lut: Float32Array,
+  clipCode: number,
+  darkCode: number,
+  out: Float32Array,
+  lum: Float32Array,
+  counts: Float64Array,
+  ox: number,
+  oy: number,
+  w: number,
+): void {
+  const x0 = 2 * ox;
+  const x1 = Math.min(W, x0 + 2);
+  const y0 = 2 * oy;
+  const y1 = Math.min(H, y0 + 2);
+  let s0 = 0;
+  let s1 = 0;
+  let s2 = 0;
+  for (let y = y0; y < y1; y++) {
+    let a0 = 0;
+    let a1 = 0;
+    let a2 = 0;
+    for (let x = x0, i = (y * W + x0) * 3; x < x1; x++, i += 3) {
+      const c0 = src[i]!;
+      const c1 = src[i + 1]!;
+      const c2 = src[i + 2]!;
+      const mx = c0 > c1 ? (c0 > c2 ? c0 : c2) : c1 > c2 ? c1 : c2;
+      if (mx >= clipCode) counts[0]!++;
+      if (mx < darkCode) counts[1]!++;
+      a0 += lut[c0]!;
+      a1 += lut[c1]!;
+      a2 += lut[c2]!;
     }
-    const inv = 1 / ((y1 - y0) * (x1 - x0));
-    const r = Math.fround(s0 * inv);
-    const g = Math.fround(s1 * inv);
-    const b = Math.fround(s2 * inv);
-    const o = (oy * w + ox) * 3;
-    out[o] = r;
-    out[o + 1] = g;
-    out[o + 2] = b;
-    lum[oy * w + ox] = YR * r + YG * g + YB * b;
-  };
-  if (wf < w) for (let oy = 0; oy < hf; oy++) edge(wf, oy);
-  if (hf < h) for (let ox = 0; ox < w; ox++) edge(ox, hf);
-  return { data: out, luminance: lum, width: w, height: h, clipped, dark, pixels: W * H };
+    s0 += a0;
+    s1 += a1;
+    s2 += a2;
+  }
+  const inv = 1 / ((y1 - y0) * (x1 - x0));
+  const r = Math.fround(s0 * inv);
+  const g = Math.fround(s1 * inv);
+  const b = Math.fround(s2 * inv);
+  const o = (oy * w + ox) * 3;
+  out[o] = r;
+  out[o + 1] = g;
+  out[o + 2] = b;
+  lum[oy * w + ox] = YR * r + YG * g + YB * b;
 }
 
 /** Largest number of luminance values the exposure quantiles are taken over; larger images are sampled. */
