@@ -17,6 +17,7 @@ import type {
   Corners,
   FalloffRecord,
   GeometryRecord,
+  GridPoint,
   PanelMap,
   Pattern,
   PhotoResult,
@@ -271,6 +272,56 @@ async function measureInner(
   result: PhotoResult,
   partial: { thumbnail: ReportThumbnail | null },
 ): Promise<PhotoMeasurement> {
+  // Steps 1-7 work on camera-sized images. They run in their own function so that those images are
+  // unreachable (and can be freed) during the mura analysis: a local variable of a running function
+  // keeps its array alive until the function returns, even after its last use.
+  const { map, points, known, widthMm, heightMm, cameraPxPerMapPx, cornerStrength } = await measureCamera(file, opts, result, partial);
+
+  // 8. mura
+  let contrastMap: Plane | null = null;
+  if (opts.mura) {
+    // The outermost map pixels average camera pixels that straddle the active-area edge (part bezel),
+    // and the edge transition is a few camera pixels wide (optics, demosaicing, JPEG ringing): keep
+    // that border out of the mura analysis, or it reads as dark lines along every edge.
+    const border = Math.ceil(EDGE_TRANSITION_CAMERA_PX / Math.max(cameraPxPerMapPx, 1e-3)) + 1;
+    const mura = analyseMura({ ...map, valid: withoutBorder(map.valid, map.width, map.height, border) }, { ...opts.muraOptions, pattern: opts.pattern });
+    const { contrast, background, ...rest } = mura;
+    void background;
+    result.mura = rest;
+    result.blobs = rest.blobs;
+    contrastMap = contrast;
+    if (!known) result.warnings.push('mura areas and SEMU use the nominal panel size: give --panel-size for figures in mm² and true SEMU');
+  }
+
+  const centreY = points.find((p) => p.u === 0.5 && p.v === 0.5)?.Y ?? points[0].Y;
+  const artifacts: PhotoArtifacts | null = opts.artifacts
+    ? {
+        thumbnail: partial.thumbnail,
+        relMap: relativeMapOf(map, centreY, 600),
+        contrastMap: contrastMap ? downsamplePlane(contrastMap, 600) : null,
+        panelSizeMm: { width: widthMm, height: heightMm, known },
+      }
+    : null;
+  return { result, artifacts, cornerStrength };
+}
+
+interface CameraStage {
+  map: PanelMap;
+  points: GridPoint[];
+  known: boolean;
+  widthMm: number;
+  heightMm: number;
+  cameraPxPerMapPx: number;
+  cornerStrength: number;
+}
+
+/** Steps 1-7: decode, falloff, outline, pose, quality gates, rectification, grid; fills `result`. */
+async function measureCamera(
+  file: string,
+  opts: MeasureOptions,
+  result: PhotoResult,
+  partial: { thumbnail: ReportThumbnail | null },
+): Promise<CameraStage> {
   // 1. decode to linear light at working scale
   const buf = await readInputFile(file);
   // the decoder picks the scale from the header it reads anyway (the rule of chooseScale)
@@ -463,33 +514,7 @@ async function measureInner(
     points,
   };
   result.uniformity = uniformityFigures(points);
-
-  // 8. mura
-  let contrastMap: Plane | null = null;
-  if (opts.mura) {
-    // The outermost map pixels average camera pixels that straddle the active-area edge (part bezel),
-    // and the edge transition is a few camera pixels wide (optics, demosaicing, JPEG ringing): keep
-    // that border out of the mura analysis, or it reads as dark lines along every edge.
-    const border = Math.ceil(EDGE_TRANSITION_CAMERA_PX / Math.max(rect.cameraPxPerMapPx, 1e-3)) + 1;
-    const mura = analyseMura({ ...map, valid: withoutBorder(map.valid, map.width, map.height, border) }, { ...opts.muraOptions, pattern: opts.pattern });
-    const { contrast, background, ...rest } = mura;
-    void background;
-    result.mura = rest;
-    result.blobs = rest.blobs;
-    contrastMap = contrast;
-    if (!known) result.warnings.push('mura areas and SEMU use the nominal panel size: give --panel-size for figures in mm² and true SEMU');
-  }
-
-  const centreY = points.find((p) => p.u === 0.5 && p.v === 0.5)?.Y ?? points[0].Y;
-  const artifacts: PhotoArtifacts | null = opts.artifacts
-    ? {
-        thumbnail: partial.thumbnail,
-        relMap: relativeMapOf(map, centreY, 600),
-        contrastMap: contrastMap ? downsamplePlane(contrastMap, 600) : null,
-        panelSizeMm: { width: widthMm, height: heightMm, known },
-      }
-    : null;
-  return { result, artifacts, cornerStrength };
+  return { map, points, known, widthMm, heightMm, cameraPxPerMapPx: rect.cameraPxPerMapPx, cornerStrength };
 }
 
 function downsamplePlane(p: Plane, maxWidth: number): Plane {
