@@ -1,0 +1,315 @@
+// Speed and memory benchmark: `npm run bench` (builds, then runs dist/scripts/bench.js).
+//
+//   npm run bench -- [--runs N] [--sizes 12MP,24MP] [--lot-panels N] [--memory 20,200]
+//                    [--skip-lot] [--skip-memory] [--json FILE]
+//
+// On generated 12- and 24-megapixel JPEGs (cached under .cache/bench), in one run:
+//  (a) sharp alone decoding each photo to raw 8-bit RGB at full size (the lower bound of any per-photo work);
+//  (b) evenfield's full measurement of the same photo, as `inspect --no-pdf` does it: decode, falloff
+//      profile, panel, rectification, grid, mura (in this process, after one warm-up per size);
+//  (c) writing the panel's PDF (report rendering and the atomic write), per panel of three photos;
+//  (d) lot throughput of the command (`inspect`, PDFs included) with --jobs 1 and --jobs 2;
+//  (e) peak resident memory of the command (all threads) for lots of 20 and 200 photos.
+// (a) and (b) alternate photo by photo so that both see the same machine load. Wall time and CPU time
+// (process.cpuUsage: every thread of the process, libvips included) are both recorded; medians over
+// `runs` runs of every photo of a size. The load average is recorded with every figure: on a machine
+// busy with other work, wall times stretch and the CPU-time figures are the steadier ones.
+
+import { mkdirSync, readFileSync, writeFileSync } from 'node:fs';
+import { availableParallelism, cpus, loadavg } from 'node:os';
+import { dirname, join, resolve } from 'node:path';
+import { fileURLToPath } from 'node:url';
+import { execFileSync } from 'node:child_process';
+import sharp from 'sharp';
+import { ensureBenchPhotos, type BenchSet, type BenchSize } from './bench-photos.js';
+import { benchMeasureOptions } from './bench-measure-one.js';
+import { makeLot, runInspect, type CommandRun } from './bench-lot.js';
+import { decodePhotoBuffer, readInputFile, writeFileAtomic } from '../lib/io/index.js';
+import { measurePhoto } from '../lib/pipeline/index.js';
+import type { PhotoArtifacts } from '../lib/pipeline/index.js';
+import { criteriaSummary, judgePanel, loadCriteria } from '../lib/judge/index.js';
+import { renderPanelPdf } from '../lib/report/index.js';
+import type { PanelResult, PhotoResult } from '../lib/types.js';
+
+const here = dirname(fileURLToPath(import.meta.url));
+const root = resolve(here, '..', '..'); // dist/scripts -> package root
+
+interface Args {
+  runs: number;
+  sizes: string[] | null;
+  lotPanels: number;
+  memory: number[];
+  skipLot: boolean;
+  skipMemory: boolean;
+  json: string;
+  cache: string;
+}
+
+function parseArgs(argv: string[]): Args {
+  const a: Args = {
+    runs: 3,
+    sizes: null,
+    lotPanels: 6,
+    memory: [20, 200],
+    skipLot: false,
+    skipMemory: false,
+    json: join(root, '.cache', 'bench', 'results.json'),
+    cache: join(root, '.cache', 'bench'),
+  };
+  for (let i = 0; i < argv.length; i++) {
+    const k = argv[i]!;
+    const v = () => {
+      const x = argv[++i];
+      if (x === undefined) throw new Error(`${k} needs a value`);
+      return x;
+    };
+    if (k === '--runs') a.runs = Math.max(1, Number(v()));
+    else if (k === '--sizes') a.sizes = v().split(',');
+    else if (k === '--lot-panels') a.lotPanels = Math.max(2, Number(v()));
+    else if (k === '--memory') a.memory = v().split(',').map(Number);
+    else if (k === '--skip-lot') a.skipLot = true;
+    else if (k === '--skip-memory') a.skipMemory = true;
+    else if (k === '--json') a.json = resolve(v());
+    else throw new Error(`unknown option ${k}`);
+  }
+  return a;
+}
+
+const median = (xs: number[]): number => {
+  const s = [...xs].sort((x, y) => x - y);
+  const n = s.length;
+  return n === 0 ? NaN : n % 2 ? s[(n - 1) / 2]! : (s[n / 2 - 1]! + s[n / 2]!) / 2;
+};
+const load1 = () => Number(loadavg()[0]!.toFixed(2));
+const log = (s: string) => process.stderr.write(`${s}\n`);
+
+interface Timed {
+  wallMs: number;
+  cpuMs: number;
+}
+async function timed<T>(fn: () => Promise<T>): Promise<Timed & { value: T }> {
+  const c0 = process.cpuUsage();
+  const t0 = performance.now();
+  const value = await fn();
+  const c = process.cpuUsage(c0);
+  return { wallMs: performance.now() - t0, cpuMs: (c.user + c.system) / 1000, value };
+}
+
+interface PhotoRun {
+  photo: string;
+  run: number;
+  load1: number;
+  a: Timed;
+  decode: Timed;
+  b: Timed;
+  status: string;
+}
+
+interface SizeFigures {
+  size: string;
+  width: number;
+  height: number;
+  fileMB: number[];
+  runs: PhotoRun[];
+  medians: {
+    aWallMs: number;
+    aCpuMs: number;
+    decodeWallMs: number;
+    decodeCpuMs: number;
+    bWallMs: number;
+    bCpuMs: number;
+    /** median over photos and runs of (b)/(a), each pair measured back to back */
+    ratioWall: number;
+    ratioCpu: number;
+    decodeRatioWall: number;
+    decodeRatioCpu: number;
+  };
+  pdf: { panelPhotos: number; runs: Timed[]; medianWallMs: number; medianCpuMs: number; bytes: number; load1: number } | null;
+}
+
+async function perPhoto(set: BenchSet, size: BenchSize, runs: number): Promise<SizeFigures> {
+  const opts = (file: string, artifacts = false) => benchMeasureOptions(file, { profile: size.profile, mura: true, panelSizeMm: set.panelSizeMm, artifacts });
+  const prepared = new Map(size.photos.map((p) => [p.file, opts(p.file)]));
+  // warm-up: loads the modules, compiles the hot loops, fills the falloff model's cache
+  await measurePhoto(size.photos[0]!.file, prepared.get(size.photos[0]!.file)!);
+  const out: PhotoRun[] = [];
+  for (let r = 0; r < runs; r++) {
+    for (const p of size.photos) {
+      const o = prepared.get(p.file)!;
+      const l = load1();
+      const a = await timed(() => sharp(p.file).raw().toBuffer());
+      const decode = await timed(async () => decodePhotoBuffer(await readInputFile(p.file), p.file, { targetLongSide: o.workLongSide, transfer: o.transfer, maxPixels: o.maxPixels }));
+      const b = await timed(() => measurePhoto(p.file, o));
+      const res = b.value.result;
+      const status = res.status === 'ok' ? 'ok' : `${res.errorCode}: ${res.error}`;
+      out.push({ photo: p.file, run: r + 1, load1: l, a: { wallMs: a.wallMs, cpuMs: a.cpuMs }, decode: { wallMs: decode.wallMs, cpuMs: decode.cpuMs }, b: { wallMs: b.wallMs, cpuMs: b.cpuMs }, status });
+      log(
+        `  ${size.label} ${p.token.padEnd(6)} run ${r + 1}: (a) ${a.wallMs.toFixed(0)} ms [${a.cpuMs.toFixed(0)} CPU]  decode ${decode.wallMs.toFixed(0)} [${decode.cpuMs.toFixed(0)}]  (b) ${b.wallMs.toFixed(0)} [${b.cpuMs.toFixed(0)}]  load ${l}  ${status}`,
+      );
+    }
+  }
+  const m = (f: (r: PhotoRun) => number) => median(out.map(f));
+
+  // (c) the panel's PDF: measure its photos once with the report's images, judge, then render and write
+  let pdf: SizeFigures['pdf'] = null;
+  {
+    const photos: PhotoResult[] = [];
+    const artifacts: (PhotoArtifacts | null)[] = [];
+    for (const p of size.photos) {
+      const mm = await measurePhoto(p.file, opts(p.file, true));
+      photos.push(mm.result);
+      artifacts.push(mm.artifacts);
+    }
+    const crit = loadCriteria(null);
+    const judged = judgePanel(photos, crit.criteria);
+    const panel: PanelResult = { panel: size.photos[0]!.panel, verdict: judged.verdict, reasons: judged.reasons, reasonDetails: judged.reasonDetails, photos };
+    const outDir = join(set.dir, '..', 'pdf');
+    mkdirSync(outDir, { recursive: true });
+    const summary = criteriaSummary(crit);
+    const timings: Timed[] = [];
+    let bytes = 0;
+    const l = load1();
+    for (let r = 0; r < runs; r++) {
+      const t = await timed(async () => {
+        const buf = await renderPanelPdf({ panel, artifacts, criteria: summary, toolVersion: 'bench', generated: '2026-01-01T00:00:00Z', lot: null });
+        await writeFileAtomic(join(outDir, `${panel.panel}.pdf`), buf);
+        return buf.length;
+      });
+      bytes = t.value;
+      timings.push({ wallMs: t.wallMs, cpuMs: t.cpuMs });
+      log(`  ${size.label} PDF of ${panel.panel} (${photos.length} photos) run ${r + 1}: ${t.wallMs.toFixed(0)} ms [${t.cpuMs.toFixed(0)} CPU], ${(bytes / 1e6).toFixed(2)} MB`);
+    }
+    pdf = {
+      panelPhotos: photos.length,
+      runs: timings,
+      medianWallMs: median(timings.map((t) => t.wallMs)),
+      medianCpuMs: median(timings.map((t) => t.cpuMs)),
+      bytes,
+      load1: l,
+    };
+  }
+
+  return {
+    size: size.label,
+    width: size.width,
+    height: size.height,
+    fileMB: size.photos.map((p) => Number((readFileSync(p.file).length / 1e6).toFixed(2))),
+    runs: out,
+    medians: {
+      aWallMs: m((r) => r.a.wallMs),
+      aCpuMs: m((r) => r.a.cpuMs),
+      decodeWallMs: m((r) => r.decode.wallMs),
+      decodeCpuMs: m((r) => r.decode.cpuMs),
+      bWallMs: m((r) => r.b.wallMs),
+      bCpuMs: m((r) => r.b.cpuMs),
+      ratioWall: m((r) => r.b.wallMs / r.a.wallMs),
+      ratioCpu: m((r) => r.b.cpuMs / r.a.cpuMs),
+      decodeRatioWall: m((r) => r.decode.wallMs / r.a.wallMs),
+      decodeRatioCpu: m((r) => r.decode.cpuMs / r.a.cpuMs),
+    },
+    pdf,
+  };
+}
+
+function inspectArgs(size: BenchSize, set: BenchSet, jobs: number, pdf: boolean): string[] {
+  return ['--jobs', String(jobs), '--falloff', size.profile, '--panel-size', `${set.panelSizeMm.width}x${set.panelSizeMm.height}`, ...(pdf ? [] : ['--no-pdf'])];
+}
+
+function describeRun(label: string, r: CommandRun): string {
+  const rate = (r.photos / r.wallMs) * 60000;
+  return (
+    `  ${label}: ${r.photos} photos (${r.photoErrors} unmeasurable) in ${(r.wallMs / 1000).toFixed(1)} s = ${rate.toFixed(1)} photos/min; ` +
+    `CPU ${r.cpuMs === null ? '?' : (r.cpuMs / 1000).toFixed(1)} s; peak RSS ${r.maxRssMb === null ? '?' : r.maxRssMb.toFixed(0)} MB; load ${r.loadBefore[0]!.toFixed(2)} → ${r.loadAfter[0]!.toFixed(2)}`
+  );
+}
+
+function gitCommit(): string | null {
+  try {
+    return execFileSync('git', ['rev-parse', '--short', 'HEAD'], { cwd: root, stdio: ['ignore', 'pipe', 'ignore'] }).toString().trim();
+  } catch {
+    return null;
+  }
+}
+
+async function main(): Promise<void> {
+  const args = parseArgs(process.argv.slice(2));
+  const started = performance.now();
+  sharp.cache(false);
+  const env = {
+    date: new Date().toISOString(),
+    commit: gitCommit(),
+    node: process.version,
+    sharp: sharp.versions.sharp ?? null,
+    libvips: sharp.versions.vips,
+    sharpConcurrency: sharp.concurrency(),
+    cores: availableParallelism(),
+    cpu: cpus()[0]?.model ?? null,
+    loadAtStart: loadavg(),
+  };
+  log(`evenfield benchmark: node ${env.node}, sharp ${env.sharp}, libvips ${env.libvips}, ${env.cores} cores (${env.cpu}), load ${env.loadAtStart.map((x) => x.toFixed(2)).join(' ')}`);
+
+  const set = await ensureBenchPhotos(args.cache, (s) => log(`  ${s}`));
+  const sizes = set.sizes.filter((s) => !args.sizes || args.sizes.includes(s.label));
+
+  const photoFigures: SizeFigures[] = [];
+  for (const size of sizes) {
+    log(`\n(a) sharp full-size decode, (b) evenfield measurement (inspect --no-pdf), (c) PDF: ${size.label} ${size.width}×${size.height}`);
+    photoFigures.push(await perPhoto(set, size, args.runs));
+  }
+
+  const hook = join(root, 'dist', 'scripts', 'bench-usage-hook.js');
+  const lotSize = sizes[0]!;
+  const lots: Record<string, CommandRun> = {};
+  if (!args.skipLot) {
+    const n = args.lotPanels * lotSize.photos.length;
+    log(`\n(d) lot throughput: inspect of ${args.lotPanels} panels × ${lotSize.photos.length} photos (${lotSize.label}), PDFs included`);
+    const dir = makeLot(join(args.cache, 'lots', `${lotSize.label}-${n}`), lotSize.photos, n);
+    for (const jobs of [1, 2]) {
+      const r = await runInspect(root, hook, dir, join(args.cache, 'out', `lot-jobs${jobs}`), inspectArgs(lotSize, set, jobs, true));
+      lots[`jobs${jobs}`] = r;
+      log(describeRun(`--jobs ${jobs}`, r));
+    }
+  }
+  const memory: Record<string, CommandRun> = {};
+  if (!args.skipMemory) {
+    log(`\n(e) peak resident memory: inspect (--jobs 2, PDFs included) of lots of ${args.memory.join(' and ')} ${lotSize.label} photos`);
+    for (const n of args.memory) {
+      const dir = makeLot(join(args.cache, 'lots', `${lotSize.label}-${n}`), lotSize.photos, n);
+      const r = await runInspect(root, hook, dir, join(args.cache, 'out', `memory-${n}`), inspectArgs(lotSize, set, 2, true));
+      memory[`photos${n}`] = r;
+      log(describeRun(`${n} photos`, r));
+    }
+  }
+
+  // summary
+  log('\nsummary (medians; CPU time in brackets):');
+  for (const f of photoFigures) {
+    const m = f.medians;
+    log(
+      `  ${f.size}: (a) ${m.aWallMs.toFixed(0)} ms [${m.aCpuMs.toFixed(0)}]  evenfield decode ${m.decodeWallMs.toFixed(0)} ms [${m.decodeCpuMs.toFixed(0)}]  ` +
+        `(b) ${m.bWallMs.toFixed(0)} ms [${m.bCpuMs.toFixed(0)}]  (b)/(a) ${m.ratioWall.toFixed(2)} [${m.ratioCpu.toFixed(2)}]  decode/(a) ${m.decodeRatioWall.toFixed(2)} [${m.decodeRatioCpu.toFixed(2)}]` +
+        (f.pdf ? `  (c) PDF per panel ${f.pdf.medianWallMs.toFixed(0)} ms [${f.pdf.medianCpuMs.toFixed(0)}]` : ''),
+    );
+  }
+  const j1 = lots.jobs1;
+  const j2 = lots.jobs2;
+  const speedup = j1 && j2 ? j1.wallMs / j2.wallMs : null;
+  if (speedup !== null) log(`  (d) --jobs 2 throughput / --jobs 1: ${speedup.toFixed(2)}×`);
+  const memKeys = Object.keys(memory);
+  let memoryGrowth: number | null = null;
+  if (memKeys.length >= 2) {
+    const first = memory[memKeys[0]!]!;
+    const last = memory[memKeys[memKeys.length - 1]!]!;
+    if (first.maxRssMb && last.maxRssMb) memoryGrowth = last.maxRssMb / first.maxRssMb - 1;
+    log(`  (e) peak RSS ${memKeys.map((k) => `${k.slice(6)} photos ${memory[k]!.maxRssMb?.toFixed(0)} MB`).join(', ')}${memoryGrowth !== null ? ` (${(100 * memoryGrowth).toFixed(1)} % growth)` : ''}`);
+  }
+  const totalS = (performance.now() - started) / 1000;
+  log(`  bench time ${totalS.toFixed(0)} s, load at end ${loadavg().map((x) => x.toFixed(2)).join(' ')}`);
+
+  const doc = { env, args, photos: photoFigures, lots, lotSpeedup: speedup, memory, memoryGrowth, benchSeconds: totalS, loadAtEnd: loadavg() };
+  mkdirSync(dirname(args.json), { recursive: true });
+  writeFileSync(args.json, JSON.stringify(doc, null, 2) + '\n');
+  log(`figures written to ${args.json}`);
+}
+
+await main();
