@@ -7,7 +7,7 @@ import { existsSync, mkdirSync, readFileSync, readdirSync, rmSync, statSync } fr
 import { dirname, join, resolve } from 'node:path';
 import { fileURLToPath, pathToFileURL } from 'node:url';
 import { availableParallelism } from 'node:os';
-import { writeFileAtomic } from '../io/index.js';
+import { setDecoderThreads, writeFileAtomic } from '../io/index.js';
 import { EvenfieldError } from '../errors.js';
 import { renderLotPdf } from '../report/index.js';
 import type { PanelResult } from '../types.js';
@@ -191,6 +191,8 @@ export async function runBatch(opts: BatchOptions): Promise<BatchOutcome> {
     const { Piscina } = await import('piscina');
     const workerFile = join(packageRoot(), 'dist', 'lib', 'batch', 'panel-task.js');
     if (!existsSync(workerFile)) throw new EvenfieldError('internal', 'compiled worker missing: run "npm run build"', workerFile);
+    // one photo per worker at a time already fills the cores: libvips' own threads would only compete
+    const decoderThreads = setDecoderThreads(1);
     const pool = new Piscina({ filename: pathToFileURL(workerFile).href, minThreads: jobs, maxThreads: jobs, idleTimeout: 1000 });
     try {
       await Promise.all(
@@ -201,6 +203,7 @@ export async function runBatch(opts: BatchOptions): Promise<BatchOutcome> {
       );
     } finally {
       await pool.destroy();
+      setDecoderThreads(decoderThreads);
     }
   }
   progress.done();

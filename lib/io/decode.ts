@@ -89,6 +89,17 @@ export interface DecodedPhoto {
 export const DEFAULT_MAX_PIXELS = 100_000_000;
 const ACCEPTED_FORMATS = new Set(['jpeg', 'png', 'tiff', 'webp', 'gif', 'heif', 'jxl']);
 
+/**
+ * Sets the threads libvips may use for one image operation (sharp.concurrency: process-wide; sharp's
+ * default is the number of cores, or 1 with glibc's allocator) and returns the previous value. A pool
+ * that already decodes one photo per core sets 1, so the decoder's threads do not compete with it.
+ */
+export function setDecoderThreads(n: number): number {
+  const previous = sharp.concurrency();
+  sharp.concurrency(n);
+  return previous;
+}
+
 /** The largest power-of-two reduction (1 … 8) whose long side stays at least `longSide` pixels. */
 export function scaleForLongSide(width: number, height: number, longSide: number): 1 | 2 | 4 | 8 {
   const long = Math.max(width, height);

@@ -9,6 +9,7 @@ export {
   exposureQuantiles,
   reduceLinearBox,
   scaleForLongSide,
+  setDecoderThreads,
   toFullSize,
   toScaled,
   type DecodeOptions,

@@ -2,7 +2,8 @@
 // in the same pass, the sampled exposure quantiles and the scale chosen from the header.
 import { describe, expect, it } from 'vitest';
 import { quantile as ssQuantile } from 'simple-statistics';
-import { decodePhotoBuffer, exposureQuantiles, reduceLinearBox, scaleForLongSide, STATS_SAMPLE_LIMIT } from '../../lib/io/index.js';
+import sharp from 'sharp';
+import { decodePhotoBuffer, exposureQuantiles, reduceLinearBox, scaleForLongSide, setDecoderThreads, STATS_SAMPLE_LIMIT } from '../../lib/io/index.js';
 import { SRGB_LUT_8, luminancePlane } from '../../lib/photometry/index.js';
 import { lcg, rawImage, testPicture8 } from './helpers.js';
 
@@ -124,5 +125,15 @@ describe('scale from the header', () => {
     expect([d.image.width, d.image.height]).toEqual([10, 8]);
     const e = await decodePhotoBuffer(png, 't.png', { scale: 4 });
     expect(Buffer.from(d.image.data.buffer).equals(Buffer.from(e.image.data.buffer))).toBe(true);
+  });
+});
+
+describe('decoder threads', () => {
+  it('setDecoderThreads sets sharp.concurrency and returns the previous value, which restores it', () => {
+    const before = sharp.concurrency();
+    expect(setDecoderThreads(1)).toBe(before);
+    expect(sharp.concurrency()).toBe(1);
+    expect(setDecoderThreads(before)).toBe(1);
+    expect(sharp.concurrency()).toBe(before);
   });
 });
