@@ -340,6 +340,8 @@ async function measureCamera(
   // camera levels before any correction, for the exposure gates (made by the decoder in its pass)
   const rawLum = decoded.luminance;
   const clipMask = nearWhiteMask(img, opts.quality.clipLinear);
+  // the photo as taken (before any correction) for the report, kept for unmeasurable photos too
+  if (opts.artifacts) partial.thumbnail = thumbnailOf(img, scale, 900);
 
   // 2. lens falloff, in camera coordinates, before anything geometric
   const falloff: FalloffRecord = { applied: false, method: 'none', source: null, cornerFalloff: null, warnings: [] };
