@@ -1,0 +1,85 @@
+// One photo end to end against the generator's truth, which is computed from the emitted field, not
+// from the rendered photo (fixtures/generator does not import lib/).
+import { mkdtempSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { describe, expect, it } from 'vitest';
+import { randomScene, renderPhoto } from '../../fixtures/generator/index.js';
+import { DEFAULT_MEASURE_OPTIONS, measurePhoto, orientCorners } from '../../lib/pipeline/index.js';
+import type { Corners } from '../../lib/types.js';
+
+const dir = mkdtempSync(join(tmpdir(), 'ef-pipe-'));
+
+async function photo(seed: number, output: 'png16' | 'jpeg') {
+  const spec = randomScene(seed, { width: 1200, height: 900, features: [0, 0], k1: [0, 0], focal35: [50, 50] });
+  spec.camera.cos4 = false;
+  spec.noise = null;
+  if (output === 'png16') spec.output = { format: 'png', bitDepth: 16 };
+  const r = await renderPhoto(spec);
+  const file = join(dir, `S${seed}_white.${r.ext}`);
+  writeFileSync(file, r.buffer);
+  return { file, spec, truth: r.truth };
+}
+
+describe('measurePhoto', () => {
+  it('reproduces the true 25-point grid of a noise-free 16-bit photo (truth: disc means of the emitted field)', async () => {
+    const { file, spec, truth } = await photo(7, 'png16');
+    const m = await measurePhoto(file, {
+      ...DEFAULT_MEASURE_OPTIONS,
+      pattern: 'white',
+      patternLevel: null,
+      panelSizeMm: { width: spec.panel.widthMm, height: spec.panel.heightMm },
+      grid: { layout: 25, placement: 'cells', insetFraction: 0.1, spotRadiusPct: 2 },
+      mura: false,
+    });
+    expect(m.result.status).toBe('ok');
+    const tg = (truth.grids as unknown as { layout: number; placement: string; points: { relative: number; uprime: number; vprime: number }[] }[]).find(
+      (g) => g.layout === 25 && g.placement === 'cells',
+    )!;
+    m.result.grid!.points.forEach((p, k) => {
+      // 0.1 %: the rectified map averages camera pixels (area averaging), the truth integrates the
+      // emitted field exactly; on a smooth field the two differ by far less than this (measured 0.00x %)
+      expect(Math.abs(p.relative / tg.points[k].relative - 1)).toBeLessThan(0.001);
+      expect(Math.abs(p.uprime - tg.points[k].uprime)).toBeLessThan(0.0005);
+      expect(Math.abs(p.vprime - tg.points[k].vprime)).toBeLessThan(0.0005);
+    });
+    // corners within 0.2 % of the image diagonal (issue acceptance), here far better
+    const diag = Math.hypot(1200, 900);
+    m.result.corners!.forEach((c, k) => expect(Math.hypot(c[0] - truth.corners[k][0], c[1] - truth.corners[k][1]) / diag).toBeLessThan(0.002));
+    // the report gets the photo as taken and the panel map
+    expect(m.artifacts?.thumbnail?.width).toBeGreaterThan(100);
+    expect(m.artifacts?.relMap?.width).toBeGreaterThan(100);
+  });
+
+  it('keeps the thumbnail of a photo it refuses, so the report can show why', async () => {
+    const { file } = await photo(8, 'jpeg');
+    const m = await measurePhoto(file, {
+      ...DEFAULT_MEASURE_OPTIONS,
+      pattern: 'white',
+      patternLevel: null,
+      panelSizeMm: null,
+      grid: { layout: 9, placement: 'cells', insetFraction: 0.1, spotRadiusPct: 2 },
+      mura: false,
+      // an impossible viewing-angle limit refuses every photo with a known focal length
+      quality: { ...DEFAULT_MEASURE_OPTIONS.quality, maxViewAngleDeg: 0.01 },
+    });
+    expect(m.result.status).toBe('error');
+    expect(m.result.errorCode).toBe('too-oblique');
+    expect(m.artifacts?.thumbnail).toBeTruthy();
+  });
+
+  it('orders corners as the viewer sees the panel for each EXIF orientation (Exif 2.2 Orientation tag)', () => {
+    const c: Corners = [
+      [0, 0],
+      [10, 0],
+      [10, 5],
+      [0, 5],
+    ];
+    expect(orientCorners(c, 1)).toEqual(c);
+    // 6: shown after a 90° clockwise turn, so the stored bottom-left becomes the viewer's top-left
+    expect(orientCorners(c, 6)[0]).toEqual([0, 5]);
+    // 8: shown after a 90° counter-clockwise turn, so the stored top-right becomes the viewer's top-left
+    expect(orientCorners(c, 8)[0]).toEqual([10, 0]);
+    expect(orientCorners(c, 3)[0]).toEqual([10, 5]);
+  });
+});
