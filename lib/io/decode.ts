@@ -246,7 +246,9 @@ const YB = SRGB_TO_XYZ[5]!;
  * Code values (interleaved RGB) -> linear light through `lut`, averaged over s×s blocks in linear light,
  * counting clipped and dark pixels of the input in the same pass, and the luminance of each output pixel.
  * The scale-2 reduction of 8-bit codes (the pipeline's usual case) has its own loop over whole 2×2 blocks;
- * every path sums a block row by row and gives bit-identical results.
+ * every path sums a block row by row and gives bit-identical results. With `inPlace` that reduction may
+ * write its output over `src` (even width and height: the floats of an output row take exactly the bytes
+ * of its two input rows), so the decoder's buffer is not followed by a second one of the same size.
  */
 export function reduceLinearBox(
   src: Uint8Array | Uint16Array,
@@ -256,10 +258,11 @@ export function reduceLinearBox(
   lut: Float32Array,
   clipCode: number,
   darkCode: number,
+  inPlace = false,
 ): Reduced {
   if (src.length !== W * H * 3) throw new Error(`reduceLinearBox: ${src.length} codes for ${W}×${H}×3`);
   if (s === 1) return linearise(src, W, H, lut, clipCode, darkCode);
-  if (s === 2 && src instanceof Uint8Array) return reduce2x8(src, W, H, lut, clipCode, darkCode);
+  if (s === 2 && src instanceof Uint8Array) return reduce2x8(src, W, H, lut, clipCode, darkCode, inPlace);
   return reduceBlocks(src, W, H, s, lut, clipCode, darkCode);
 }
 
@@ -356,13 +359,14 @@ function reduceBlocks(
  * block has). Sums (top pair) + (bottom pair) in double precision, as reduceBlocks does. (The loop has
  * no closure over its counters: captured variables would live in a heap context, not in registers.)
  */
-function reduce2x8(src: Uint8Array, W: number, H: number, lut: Float32Array, clipCode: number, darkCode: number): Reduced {
+function reduce2x8(src: Uint8Array, W: number, H: number, lut: Float32Array, clipCode: number, darkCode: number, inPlace: boolean): Reduced {
   const w = (W + 1) >> 1;
   const h = (H + 1) >> 1;
-  const out = new Float32Array(w * h * 3);
+  const overwrite = inPlace && W % 2 === 0 && H % 2 === 0 && src.byteOffset % 4 === 0;
+  const out = overwrite ? new Float32Array(src.buffer, src.byteOffset, w * h * 3) : new Float32Array(w * h * 3);
   const lum = new Float32Array(w * h);
   const counts = new Float64Array(2); // clipped, dark
-  wholeBlocks2x8(src, W, H, lut, clipCode, darkCode, out, lum, counts);
+  wholeBlocks2x8(src, W, H, lut, clipCode, darkCode, out, lum, counts, overwrite);
   // partial blocks: the last column when W is odd, the last row when H is odd
   const wf = W >> 1;
   const hf = H >> 1;
@@ -381,6 +385,7 @@ function wholeBlocks2x8(
   out: Float32Array,
   lum: Float32Array,
   counts: Float64Array,
+  overwrite: boolean,
 ): void {
   let clipped = 0;
   let dark = 0;
@@ -388,24 +393,32 @@ function wholeBlocks2x8(
   const row = W * 3;
   const wf = W >> 1; // whole blocks across
   const hf = H >> 1; // whole blocks down
+  // writing over the input: each pair of input rows is copied aside before its output row replaces it
+  const rows = overwrite ? new Uint8Array(2 * row) : null;
   for (let oy = 0; oy < hf; oy++) {
     let i = 2 * oy * row;
+    let s = src;
+    if (rows) {
+      rows.set(src.subarray(i, i + 2 * row));
+      s = rows;
+      i = 0;
+    }
     let j = i + row;
     let o = oy * w * 3;
     let q = oy * w;
     for (let ox = 0; ox < wf; ox++, i += 6, j += 6, o += 3, q++) {
-      const a0 = src[i]!;
-      const a1 = src[i + 1]!;
-      const a2 = src[i + 2]!;
-      const b0 = src[i + 3]!;
-      const b1 = src[i + 4]!;
-      const b2 = src[i + 5]!;
-      const c0 = src[j]!;
-      const c1 = src[j + 1]!;
-      const c2 = src[j + 2]!;
-      const d0 = src[j + 3]!;
-      const d1 = src[j + 4]!;
-      const d2 = src[j + 5]!;
+      const a0 = s[i]!;
+      const a1 = s[i + 1]!;
+      const a2 = s[i + 2]!;
+      const b0 = s[i + 3]!;
+      const b1 = s[i + 4]!;
+      const b2 = s[i + 5]!;
+      const c0 = s[j]!;
+      const c1 = s[j + 1]!;
+      const c2 = s[j + 2]!;
+      const d0 = s[j + 3]!;
+      const d1 = s[j + 4]!;
+      const d2 = s[j + 5]!;
       const r = Math.fround((lut[a0]! + lut[b0]! + (lut[c0]! + lut[d0]!)) * 0.25);
       const g = Math.fround((lut[a1]! + lut[b1]! + (lut[c1]! + lut[d1]!)) * 0.25);
       const b = Math.fround((lut[a2]! + lut[b2]! + (lut[c2]! + lut[d2]!)) * 0.25);
@@ -595,7 +608,8 @@ export async function decodePhotoBuffer(buf: Buffer, name: string, opts: DecodeO
       ? new Uint16Array(data.buffer, data.byteOffset, data.length / 2)
       : new Uint8Array(data.buffer, data.byteOffset, data.length);
     const th = thresholds(plan.bitDepth, clipLevel, darkLevel);
-    reduced = reduceLinearBox(codes, out.width, out.height, scale, decodeLut(plan.bitDepth, transfer), th.clipCode, th.darkCode);
+    // the decoder's buffer is ours: the 2×2 reduction may write over it
+    reduced = reduceLinearBox(codes, out.width, out.height, scale, decodeLut(plan.bitDepth, transfer), th.clipCode, th.darkCode, true);
   }
 
   const image: RgbImage = { width: reduced.width, height: reduced.height, data: reduced.data };

@@ -47,6 +47,26 @@ describe('2×2 reduction of 8-bit codes', () => {
     }
   });
 
+  it('in place (even sizes) writes over the input and gives the same bits; odd sizes keep the input', () => {
+    for (const [w, h] of [
+      [64, 48],
+      [38, 22],
+      [37, 22],
+      [38, 23],
+    ] as const) {
+      const codes = codesWithExtremes(w, h, w + 7 * h);
+      const ref = reduceLinearBox(codes.slice(), w, h, 2, SRGB_LUT_8, 250, 2);
+      const input = codes.slice();
+      const r = reduceLinearBox(input, w, h, 2, SRGB_LUT_8, 250, 2, true);
+      const even = w % 2 === 0 && h % 2 === 0;
+      expect(r.data.buffer === input.buffer).toBe(even);
+      if (!even) expect(Buffer.from(input).equals(Buffer.from(codes))).toBe(true);
+      expect([r.clipped, r.dark]).toEqual([ref.clipped, ref.dark]);
+      expect(Buffer.from(r.data.buffer, r.data.byteOffset, r.data.byteLength).equals(Buffer.from(ref.data.buffer))).toBe(true);
+      expect(Buffer.from(r.luminance.buffer).equals(Buffer.from(ref.luminance.buffer))).toBe(true);
+    }
+  });
+
   it('counts every full-size pixel once, by its largest code (clip at ≥ 250, dark below 2)', () => {
     const w = 9;
     const h = 7;
