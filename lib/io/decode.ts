@@ -16,8 +16,8 @@
 //   so full-size x maps to (x + 0.5)/s − 0.5 (see toScaled / toFullSize). Edge blocks that do not
 //   fill s×s average the pixels they have.
 // - Exposure statistics: clipped and dark fractions count every full-size pixel; the median and the
-//   99.9th percentile of linear Y are exact up to about a million decoded pixels and taken on a regular
-//   lattice of them beyond (exposureQuantiles).
+//   99.9th percentile of linear Y are exact up to 2^18 decoded pixels and taken on a regular lattice of
+//   them beyond (exposureQuantiles).
 // - Speed: the file's bytes are hashed and its EXIF read while sharp decodes in the thread pool; codes
 //   become linear light, block means, luminance and the clip/dark counts in one pass without allocation
 //   per pixel (reduceLinearBox).
@@ -500,12 +500,13 @@ function partialBlock2(
 }
 
 /** Largest number of luminance values the exposure quantiles are taken over; larger images are sampled. */
-export const STATS_SAMPLE_LIMIT = 1 << 20;
+export const STATS_SAMPLE_LIMIT = 1 << 18;
 
 /**
  * Median and 99.9th percentile of a luminance plane: exact up to STATS_SAMPLE_LIMIT values, else over
  * the pixels of a regular lattice (every k-th pixel of every k-th row, k the smallest step that brings
- * the count under the limit), which leaves about a million values: plenty for these two figures.
+ * the count under the limit), which leaves a quarter of the limit or more (190 000 values at 12 MP, 240 000
+ * at 24 MP): plenty for these two figures.
  */
 export function exposureQuantiles(lum: Float32Array, width: number, height: number): { median: number; p999: number } {
   let sample = lum;
