@@ -6,11 +6,13 @@
 // Time in native code (sharp/libvips work in the thread pool is not sampled at all; the main
 // thread waiting for it shows as "(idle)") is listed under the V8 category names.
 
-import { readFileSync } from 'node:fs';
+import { existsSync, readFileSync } from 'node:fs';
+import { SourceMap } from 'node:module';
+import { fileURLToPath } from 'node:url';
 
 interface Node {
   id: number;
-  callFrame: { functionName: string; url: string; lineNumber: number };
+  callFrame: { functionName: string; url: string; lineNumber: number; columnNumber: number };
   children?: number[];
 }
 interface Profile {
@@ -19,6 +21,24 @@ interface Profile {
   timeDeltas: number[];
   startTime: number;
   endTime: number;
+}
+
+const maps = new Map<string, SourceMap | null>();
+
+/** The TypeScript source position of a compiled position, from the .js.map beside the file (tsc's sourceMap). */
+function sourcePosition(url: string, line0: number, col0: number): { file: string; line: number } | null {
+  if (!url.startsWith('file://')) return null;
+  let map = maps.get(url);
+  if (map === undefined) {
+    const path = `${fileURLToPath(url)}.map`;
+    map = existsSync(path) ? new SourceMap(JSON.parse(readFileSync(path, 'utf8')) as ConstructorParameters<typeof SourceMap>[0]) : null;
+    maps.set(url, map);
+  }
+  if (!map) return null;
+  const e = map.findEntry(line0, col0) as { originalSource?: string; originalLine?: number };
+  if (!e || e.originalSource === undefined || e.originalLine === undefined) return null;
+  const src = e.originalSource.replace(/^.*?\/(lib|scripts|fixtures)\//, '$1/');
+  return { file: src, line: e.originalLine + 1 };
 }
 
 function shortUrl(url: string): string {
@@ -44,7 +64,8 @@ export function summariseProfile(p: Profile, top = 25): string {
     const n = byId.get(id)!;
     const f = shortUrl(n.callFrame.url);
     const name = n.callFrame.functionName || '(anonymous)';
-    const key = n.callFrame.url ? `${name} ${f}:${n.callFrame.lineNumber + 1}` : name;
+    const ts = n.callFrame.url ? sourcePosition(n.callFrame.url, n.callFrame.lineNumber, n.callFrame.columnNumber) : null;
+    const key = n.callFrame.url ? (ts ? `${name} ${ts.file}:${ts.line}` : `${name} ${f}:${n.callFrame.lineNumber + 1}`) : name;
     byFile.set(n.callFrame.url ? f : name, (byFile.get(n.callFrame.url ? f : name) ?? 0) + us);
     byFn.set(key, (byFn.get(key) ?? 0) + us);
     total += us;
