@@ -3,7 +3,7 @@
 //
 //   npx tsc -p tsconfig.build.json && node dist/scripts/lot-verdicts.js [--panels 50] [--size 1600x1200]
 //       [--out reports/lot-verdicts] [--jobs 2] [--lens none|flat] [--bad 5] [--criteria FILE] [--pdf]
-//       [--regenerate] [--seed 50117]
+//       [--regenerate] [--reuse-run] [--no-mura] [--lot DIR] [--seed 50117]
 //
 // What it does:
 //  1. plans a lot with a realistic mix (ordinary panels; corner drop-off around the uniformity limit;
@@ -30,6 +30,7 @@ import { createHash } from 'node:crypto';
 import { existsSync, mkdirSync, readFileSync, readdirSync, rmSync, writeFileSync } from 'node:fs';
 import { join, resolve, basename } from 'node:path';
 import sharp from 'sharp';
+import { stringify as stringifyYaml } from 'yaml';
 import { fitInFrame, renderFlatFrame, renderPhoto, Rng } from '../fixtures/generator/index.js';
 import type { CameraSpec, ColourVariation, FeatureSpec, LuminanceTerm, PhotoSpec, PhotoTruth } from '../fixtures/generator/index.js';
 import { judgePanel, loadCriteria } from '../lib/judge/index.js';
@@ -50,11 +51,17 @@ interface Args {
   criteria: string | null;
   pdf: boolean;
   regenerate: boolean;
+  /** compare an earlier run of the command in <out>/run again instead of running it */
+  reuseRun: boolean;
+  /** pass --no-mura to the command (with criteria that set no mura limits) */
+  mura: boolean;
+  /** folder of the generated lot (default <out>/lot), so several studies can share one lot */
+  lotDir: string | null;
   seed: number;
 }
 
 function parseArgs(argv: string[]): Args {
-  const a: Args = { panels: 50, width: 1600, height: 1200, out: join('reports', 'lot-verdicts'), jobs: 2, lens: 'none', bad: 5, criteria: null, pdf: false, regenerate: false, seed: 50117 };
+  const a: Args = { panels: 50, width: 1600, height: 1200, out: join('reports', 'lot-verdicts'), jobs: 2, lens: 'none', bad: 5, criteria: null, pdf: false, regenerate: false, reuseRun: false, mura: true, lotDir: null, seed: 50117 };
   for (let i = 0; i < argv.length; i++) {
     const v = argv[i + 1];
     switch (argv[i]) {
@@ -99,6 +106,16 @@ function parseArgs(argv: string[]): Args {
         break;
       case '--regenerate':
         a.regenerate = true;
+        break;
+      case '--reuse-run':
+        a.reuseRun = true;
+        break;
+      case '--no-mura':
+        a.mura = false;
+        break;
+      case '--lot':
+        a.lotDir = v;
+        i++;
         break;
       default:
         throw new Error(`unknown argument ${argv[i]}`);
@@ -496,6 +513,32 @@ interface FigureDiff {
   borderline: boolean;
   measuredText: string | null;
   truthText: string | null;
+  /** for mura figures: the measured blobs behind the figure (kind, place, area, contrast, SEMU) */
+  measuredBlobs: string[];
+  /** for mura figures: the true features of the photo */
+  truthBlobs: string[];
+}
+
+function blobWords(b: Blob): string {
+  return `${b.kind} ${b.polarity} at u ${b.u.toFixed(3)} v ${b.v.toFixed(3)}, ${b.areaMm2.toFixed(1)} mm², C ${b.contrastPct.toFixed(2)} % (peak ${b.peakContrastPct.toFixed(2)} %), ${b.semu.toFixed(2)} SEMU`;
+}
+
+/** The blobs a mura figure was taken from, worst first (at most 3). */
+function blobsBehind(photo: PhotoResult | undefined, figure: string, pattern: Pattern, criteria: Criteria): Blob[] {
+  const blobs = photo?.mura?.blobs ?? [];
+  const glowKinds: BlobKind[] = ['edge-glow', 'corner-glow'];
+  const section = criteria.patterns[pattern];
+  const glowSet = section !== undefined && 'glow' in section && section.glow !== undefined;
+  let chosen: Blob[] = [];
+  if (figure === 'maxSemu') chosen = [...blobs].filter((b) => !(glowSet && glowKinds.includes(b.kind))).sort((x, y) => y.semu - x.semu);
+  else if (figure === 'glowSemu') chosen = blobs.filter((b) => glowKinds.includes(b.kind)).sort((x, y) => y.semu - x.semu);
+  else if (figure === 'glowContrastPct') chosen = blobs.filter((b) => glowKinds.includes(b.kind)).sort((x, y) => y.peakContrastPct - x.peakContrastPct);
+  else if (figure.startsWith('blobCount.')) {
+    const kind = figure.slice('blobCount.'.length);
+    const from = section?.blobs?.countFromSemu ?? 0;
+    chosen = blobs.filter((b) => (kind === 'any' || b.kind === kind) && b.semu >= from).sort((x, y) => y.semu - x.semu);
+  }
+  return chosen.slice(0, 3);
 }
 
 interface PanelComparison {
@@ -562,6 +605,8 @@ function comparePanel(truthDetails: readonly Judged[], measured: PanelResult, tr
       borderline,
       measuredText: mr?.text ?? null,
       truthText: tr?.text ?? null,
+      measuredBlobs: blobsBehind(measured.photos.find((p) => p.pattern === pattern), figure, pattern, criteria).map(blobWords),
+      truthBlobs: (truthPhotos.find((p) => p.pattern === pattern)?.blobs ?? []).map(blobWords),
     });
   }
   return diffs;
@@ -592,11 +637,24 @@ const fmt = (x: number | null, d = 3) => (x === null || !Number.isFinite(x) ? '�
 async function main(): Promise<void> {
   const a = parseArgs(process.argv.slice(2));
   const out = resolve(a.out);
-  const lotDir = join(out, 'lot');
+  const lotDir = a.lotDir ? resolve(a.lotDir) : join(out, 'lot');
   const runDir = join(out, 'run');
   mkdirSync(out, { recursive: true });
   const plans = planLot(a.panels, a.seed, a.lens, a.width, a.height);
   const { bad, flats } = await generate(a, plans, lotDir);
+  if (!a.mura && !a.criteria) {
+    // the built-in criteria without their mura limits, for both the truth and the command
+    const c = structuredClone(loadCriteria(null).criteria) as Criteria;
+    for (const section of Object.values(c.patterns) as Record<string, unknown>[]) {
+      delete section.maxSemu;
+      delete section.blobs;
+      delete section.glow;
+      section.reportOnly = (section.reportOnly as string[]).filter((k) => k !== 'maxSemu' && k !== 'blobs' && !k.startsWith('glow.'));
+    }
+    c.name = `${c.name}, mura limits removed`;
+    a.criteria = join(out, 'criteria-no-mura.yaml');
+    writeFileSync(a.criteria, stringifyYaml(c));
+  }
   const crit = loadCriteria(a.criteria);
   const criteria = crit.criteria;
 
@@ -617,10 +675,19 @@ async function main(): Promise<void> {
   const date = '2025-06-02T08:00:00.000Z';
   const cmd = ['inspect', join(lotDir, 'photos'), '--out', runDir, '--force', '--date', date, '--jobs', String(a.jobs), '--panel-size', `${WIDTH_MM}x${HEIGHT_MM}`, '--lot', 'lot-verdicts'];
   if (!a.pdf) cmd.push('--no-pdf');
+  if (!a.mura) cmd.push('--no-mura');
   if (a.criteria) cmd.push('--criteria', a.criteria);
   if (flats.length) cmd.push('--flat', ...flats);
-  process.stderr.write(`running: evenfield ${cmd.join(' ')}\n`);
-  const run = await runInspect(cmd);
+  const commandRecord = join(out, 'command.json');
+  let run: { status: number | null; stderr: string; ms: number };
+  if (a.reuseRun && existsSync(commandRecord)) {
+    run = JSON.parse(readFileSync(commandRecord, 'utf8')) as typeof run;
+    process.stderr.write(`comparing the earlier run in ${runDir}\n`);
+  } else {
+    process.stderr.write(`running: evenfield ${cmd.join(' ')}\n`);
+    run = await runInspect(cmd);
+    writeFileSync(commandRecord, JSON.stringify({ args: cmd, ...run }));
+  }
   const doc = JSON.parse(readFileSync(join(runDir, 'results.json'), 'utf8')) as { panels: PanelResult[]; summary: Record<string, number> };
   const measuredBy = new Map(doc.panels.map((p) => [p.panel, p]));
 
@@ -681,7 +748,7 @@ async function main(): Promise<void> {
   L.push(`# Lot verdict study`);
   L.push('');
   L.push(`${n} panels × white, gray50, black (${a.width}×${a.height} JPEG, q90), lens: ${a.lens === 'none' ? 'no falloff (cos⁴ and vignetting off)' : 'vignetting camera, falloff from 3 flat frames (--flat)'}; seed ${a.seed}.`);
-  L.push(`Criteria: ${crit.source} (sha256 ${crit.hash.slice(0, 16)}…); panel size ${WIDTH_MM}×${HEIGHT_MM} mm; --jobs ${a.jobs}${a.pdf ? '' : ', --no-pdf'}.`);
+  L.push(`Criteria: ${crit.source} (sha256 ${crit.hash.slice(0, 16)}…); panel size ${WIDTH_MM}×${HEIGHT_MM} mm; --jobs ${a.jobs}${a.pdf ? '' : ', --no-pdf'}${a.mura ? '' : ', --no-mura'}.`);
   L.push(`Command wall time ${(run.ms / 1000).toFixed(0)} s, exit status ${run.status} (expected ${expectedStatus}).`);
   L.push('');
   L.push(`Truth verdicts: ${truthCounts.pass} pass, ${truthCounts.fail} fail, ${truthCounts.error} error; measured: ${measCounts.pass} pass, ${measCounts.fail} fail, ${measCounts.error} error.`);
@@ -709,14 +776,45 @@ async function main(): Promise<void> {
       for (const e of c.measuredErrors) L.push(`  - photo error: ${e}`);
       for (const d of c.diffs) {
         L.push(
-          `  - ${d.pattern} ${d.figure}: truth ${fmt(d.truth, 4)} (${d.truthStatus}), measured ${fmt(d.measured, 4)} (${d.measuredStatus}), limit ${fmt(d.limit, 4)}, allowance ${d.allowance === null ? '—' : '±' + fmt(d.allowance, 4)}${d.borderline ? ' — borderline' : ''}`,
+          `  - ${d.pattern} ${d.figure}: truth ${fmt(d.truth, 5)} (${d.truthStatus}), measured ${fmt(d.measured, 5)} (${d.measuredStatus}), limit ${fmt(d.limit, 5)}, allowance ${d.allowance === null ? '—' : '±' + fmt(d.allowance, 4)}${d.borderline ? ' — borderline' : ''}`,
         );
         if (d.measuredText) L.push(`    - measured: ${d.measuredText}`);
         if (d.truthText && d.truthStatus === 'fail') L.push(`    - truth: ${d.truthText}`);
+        for (const b of d.measuredBlobs) L.push(`    - measured blob: ${b}`);
+        if (d.measuredBlobs.length || d.figure.startsWith('blobCount.') || d.figure.endsWith('Semu') || d.figure.startsWith('glow')) {
+          L.push(`    - true features: ${d.truthBlobs.length ? d.truthBlobs.join('; ') : 'none'}`);
+        }
       }
     }
     L.push('');
   };
+  // which figures turned the real disagreements, and in which direction
+  const causes = new Map<string, { falseFail: number; falsePass: number }>();
+  for (const c of real) {
+    for (const d of c.diffs) {
+      if (d.borderline) continue;
+      const key = `${d.pattern} · ${d.figure}`;
+      const e = causes.get(key) ?? { falseFail: 0, falsePass: 0 };
+      if (d.measuredStatus === 'fail') e.falseFail++;
+      else e.falsePass++;
+      causes.set(key, e);
+    }
+  }
+  if (causes.size) {
+    L.push('Figures outside their allowance that judged differently, over the real disagreements (a panel can have several):');
+    L.push('');
+    L.push('| pattern · figure | measured fail, truth pass | truth fail, measured pass |');
+    L.push('|---|---|---|');
+    for (const [k, e] of [...causes].sort((x, y) => y[1].falseFail + y[1].falsePass - (x[1].falseFail + x[1].falsePass))) L.push(`| ${k} | ${e.falseFail} | ${e.falsePass} |`);
+    L.push('');
+  }
+  L.push('| truth ↓ measured → | pass | fail | error |');
+  L.push('|---|---|---|---|');
+  for (const tv of ['pass', 'fail', 'error'] as Verdict[]) {
+    const row = (['pass', 'fail', 'error'] as Verdict[]).map((mv) => comparisons.filter((c) => c.truth === tv && c.measured === mv).length);
+    L.push(`| ${tv} | ${row.join(' | ')} |`);
+  }
+  L.push('');
   listDiffs('Real disagreements', real);
   listDiffs('Borderline disagreements', comparisons.filter((c) => c.kind === 'borderline'));
   L.push('## Figure accuracy (measured − truth, all panels)');
