@@ -240,11 +240,13 @@ function planLot(n: number, seed: number, lens: Args['lens'], width: number, hei
         break;
       }
     }
-    // one tripod position per panel, kept for its three photos
+    // one tripod position per panel, kept for its three photos; with a vignetting lens the station
+    // keeps one zoom setting (the flat frames' profile is for that setting only)
+    const focal35 = Math.round(r(28, 50));
     const camera: CameraSpec = {
       width,
       height,
-      focal35: Math.round(r(28, 50)),
+      focal35: lens === 'flat' ? 30 : focal35,
       cropFactor: 1.5,
       yawDeg: r(-10, 10),
       pitchDeg: r(-8, 8),
