@@ -1,4 +1,4 @@
-// Speed and memory benchmark: `npm run bench` (builds, then runs dist/scripts/bench.js).
+// Speed and memory benchmark: `npm run bench` (builds, then runs node --expose-gc dist/scripts/bench.js).
 //
 //   npm run bench -- [--runs N] [--sizes 12MP,24MP] [--lot-panels N] [--memory 20,200]
 //                    [--skip-lot] [--skip-memory] [--json FILE]
@@ -87,7 +87,20 @@ interface Timed {
   wallMs: number;
   cpuMs: number;
 }
+/**
+ * Starts every timing from a collected heap when the run has --expose-gc (npm run bench passes it), so a
+ * figure does not carry the previous measurement's garbage collection (process CPU time counts V8's
+ * background threads too).
+ */
+const collect = (globalThis as { gc?: () => void }).gc;
+async function settle(): Promise<void> {
+  if (!collect) return;
+  collect();
+  await new Promise((r) => setTimeout(r, 25));
+}
+
 async function timed<T>(fn: () => Promise<T>): Promise<Timed & { value: T }> {
+  await settle();
   const c0 = process.cpuUsage();
   const t0 = performance.now();
   const value = await fn();
@@ -245,8 +258,10 @@ async function main(): Promise<void> {
     cores: availableParallelism(),
     cpu: cpus()[0]?.model ?? null,
     loadAtStart: loadavg(),
+    exposeGc: collect !== undefined,
   };
   log(`evenfield benchmark: node ${env.node}, sharp ${env.sharp}, libvips ${env.libvips}, ${env.cores} cores (${env.cpu}), load ${env.loadAtStart.map((x) => x.toFixed(2)).join(' ')}`);
+  if (!collect) log('note: run with node --expose-gc (as npm run bench does) so each timing starts from a collected heap');
 
   const set = await ensureBenchPhotos(args.cache, (s) => log(`  ${s}`));
   const sizes = set.sizes.filter((s) => !args.sizes || args.sizes.includes(s.label));
@@ -259,6 +274,12 @@ async function main(): Promise<void> {
 
   const hook = join(root, 'dist', 'scripts', 'bench-usage-hook.js');
   const lotSize = sizes[0]!;
+  {
+    // what the lot runs will take at the measured rate (one photo per core at a time)
+    const b = photoFigures[0]!.medians.bWallMs / 1000;
+    const photos = (args.skipLot ? 0 : 1.5 * args.lotPanels * lotSize.photos.length) + (args.skipMemory ? 0 : args.memory.reduce((x, y) => x + y, 0) / 2);
+    log(`\nlot runs to come: about ${((photos * b) / 60).toFixed(0)} min at ${b.toFixed(1)} s per photo`);
+  }
   const lots: Record<string, CommandRun> = {};
   if (!args.skipLot) {
     const n = args.lotPanels * lotSize.photos.length;
