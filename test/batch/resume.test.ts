@@ -16,7 +16,10 @@ const TEMP_NAME = /^\..+\.\d+\.[0-9a-f]{12}\.tmp$/;
 let dir: string;
 let photos: string;
 let common: string[];
-let ref: { out: string; stderr: string; status: number | null; ms: number };
+type Run = { out: string; stderr: string; status: number | null; ms: number };
+/** uninterrupted runs with one worker and with two */
+let ref: Run;
+let ref2: Run;
 
 /** Every file below a folder, as paths relative to it, sorted. */
 function tree(root: string): string[] {
@@ -84,9 +87,8 @@ beforeAll(async () => {
   const criteria = join(dir, 'criteria.yaml');
   writeFileSync(criteria, 'name: resume test\npatterns:\n  white:\n    required: true\n    minOverMaxPctMin: 80\n    maxDuvFromCentreMax: 0.01\n');
   common = [photos, '--criteria', criteria, '--panel-size', '597.9x336.3', '--no-mura', '--date', '2025-03-17T09:00:00Z', '--lot', 'R-1'];
-  const out = join(dir, 'ref');
-  const r = runSync(['inspect', ...common, '--out', out, '--jobs', '1']);
-  ref = { out, ...r };
+  ref = { out: join(dir, 'ref'), ...runSync(['inspect', ...common, '--out', join(dir, 'ref'), '--jobs', '1']) };
+  ref2 = { out: join(dir, 'ref2'), ...runSync(['inspect', ...common, '--out', join(dir, 'ref2'), '--jobs', '2']) };
 });
 
 describe('interrupted runs', () => {
@@ -106,6 +108,13 @@ describe('interrupted runs', () => {
     expect(ref.status).toBe(s.failed > 0 ? 1 : 0);
   });
 
+  it('two workers write the same files as one, byte for byte', () => {
+    expect(ref2.status).toBe(ref.status);
+    const files = tree(ref.out);
+    expect(tree(ref2.out)).toEqual(files);
+    for (const f of files) expect(readFileSync(join(ref2.out, f)).equals(readFileSync(join(ref.out, f))), f).toBe(true);
+  });
+
   it('killed at 5 random moments and resumed, the output equals the uninterrupted run byte for byte', async () => {
     const refFiles = tree(ref.out);
     expect(refFiles).toContain('results.json');
@@ -114,11 +123,12 @@ describe('interrupted runs', () => {
     let interrupted = 0;
     for (let trial = 0; trial < 5; trial++) {
       const out = join(dir, `trial-${trial}`);
-      // spread over the first 60 % of the reference run's time (the trials use two workers, so they
-      // finish sooner than the one-worker reference): some kills land before any panel is done, some
-      // between panels, some while the results and the lot summary are written
-      const delay = (0.05 + (0.55 * (trial + rand())) / 5) * ref.ms;
-      const child = spawn(process.execPath, [BIN, 'inspect', ...common, '--out', out, '--jobs', '2', '--quiet'], { stdio: 'ignore' });
+      // one worker and two in turn; the delays spread over the uninterrupted run's time with as many
+      // workers: some kills land before any panel is done, some between panels, some while the
+      // results and the lot summary are written
+      const jobs = trial % 2 === 0 ? 1 : 2;
+      const delay = (0.05 + (0.9 * (trial + rand())) / 5) * (jobs === 1 ? ref.ms : ref2.ms);
+      const child = spawn(process.execPath, [BIN, 'inspect', ...common, '--out', out, '--jobs', String(jobs), '--quiet'], { stdio: 'ignore' });
       const exited = new Promise<NodeJS.Signals | null>((res) => child.on('exit', (_code, signal) => res(signal)));
       const timer = setTimeout(() => child.kill('SIGKILL'), delay);
       const signal = await exited;
@@ -131,9 +141,9 @@ describe('interrupted runs', () => {
       expect(problems, `trial ${trial} (killed after ${delay.toFixed(0)} ms)`).toEqual([]);
       const kept = left.filter((f) => /^\.evenfield-work\/R\d\.json$/.test(f)).length;
       const temps = left.filter((f) => TEMP_NAME.test(f.split('/').pop()!));
-      console.log(`trial ${trial}: ${signal === 'SIGKILL' ? `killed after ${delay.toFixed(0)} ms` : 'finished before the kill'}, ${kept} panels kept, ${left.length} files, temporary: ${temps.join(', ') || 'none'}`);
+      console.log(`trial ${trial} (${jobs} worker${jobs > 1 ? 's' : ''}): ${signal === 'SIGKILL' ? `killed after ${delay.toFixed(0)} ms` : 'finished before the kill'}, ${kept} panels kept, ${left.length} files, temporary: ${temps.join(', ') || 'none'}`);
 
-      const r = runSync(['inspect', ...common, '--out', out, '--jobs', '2', '--resume']);
+      const r = runSync(['inspect', ...common, '--out', out, '--jobs', String(jobs), '--resume']);
       expect(r.status, r.stderr).toBe(ref.status);
       if (kept > 0) expect(r.stderr).toContain(`resuming: ${kept} of ${PANELS} panels kept from the earlier run`);
       const files = tree(out);
@@ -146,6 +156,7 @@ describe('interrupted runs', () => {
     }
     // the delays are fractions of the reference run's time: most kills land before the end
     expect(interrupted).toBeGreaterThanOrEqual(3);
-    // 11 starts of the command: about 40 s on an idle 2-core machine, several minutes when it is shared
+    // 10 starts of the command after the two references: about 40 s on an idle 2-core machine,
+    // several minutes when it is shared
   }, 600_000);
 });
