@@ -58,6 +58,7 @@ export function summariseProfile(p: Profile, top = 25): string {
     self.set(p.samples[i]!, (self.get(p.samples[i]!) ?? 0) + dt);
   }
   const byFile = new Map<string, number>();
+  const byStage = new Map<string, number>();
   const byFn = new Map<string, number>();
   let total = 0;
   for (const [id, us] of self) {
@@ -68,6 +69,10 @@ export function summariseProfile(p: Profile, top = 25): string {
     const key = n.callFrame.url ? (ts ? `${name} ${ts.file}:${ts.line}` : `${name} ${f}:${n.callFrame.lineNumber + 1}`) : name;
     byFile.set(n.callFrame.url ? f : name, (byFile.get(n.callFrame.url ? f : name) ?? 0) + us);
     byFn.set(key, (byFn.get(key) ?? 0) + us);
+    const where = ts?.file ?? f;
+    const m = /^lib\/([a-z]+)\/(quality|measure-photo)?/.exec(where);
+    const stage = m ? (m[2] ? `lib/${m[1]}/${m[2]}` : `lib/${m[1]}`) : n.callFrame.url ? 'other code' : name;
+    byStage.set(stage, (byStage.get(stage) ?? 0) + us);
     total += us;
   }
   const fmt = (m: Map<string, number>) =>
@@ -76,7 +81,7 @@ export function summariseProfile(p: Profile, top = 25): string {
       .slice(0, top)
       .map(([k, us]) => `${(us / 1000).toFixed(0).padStart(7)} ms ${((100 * us) / total).toFixed(1).padStart(5)} %  ${k}`)
       .join('\n');
-  return `sampled ${(total / 1000).toFixed(0)} ms\n\nby file:\n${fmt(byFile)}\n\nby function:\n${fmt(byFn)}\n`;
+  return `sampled ${(total / 1000).toFixed(0)} ms\n\nby stage (lib folder):\n${fmt(byStage)}\n\nby file:\n${fmt(byFile)}\n\nby function:\n${fmt(byFn)}\n`;
 }
 
 if (process.argv[1] && process.argv[1].endsWith('bench-cpuprofile.js')) {
