@@ -148,6 +148,73 @@ export function insideQuad(c: Corners, x: number, y: number): boolean {
   return true;
 }
 
+/**
+ * The first and last x of the lattice x0, x0 + step, … ≤ x1 on row y that lie inside the convex
+ * quadrilateral `c` (as insideQuad decides, boundary included); null when none does. The run is found
+ * from the edges' crossings of the row and checked against insideQuad at its ends.
+ */
+export function quadRowRun(c: Corners, y: number, x0: number, x1: number, step: number): [number, number] | null {
+  let ylo = Infinity;
+  let yhi = -Infinity;
+  for (const p of c) {
+    if (p[1] < ylo) ylo = p[1];
+    if (p[1] > yhi) yhi = p[1];
+  }
+  if (y < ylo || y > yhi) return null;
+  // the row meets the quadrilateral in the span of its crossings with the edges
+  let xa = Infinity;
+  let xb = -Infinity;
+  for (let i = 0; i < 4; i++) {
+    const [ax, ay] = c[i];
+    const [bx, by] = c[(i + 1) % 4];
+    if ((y < ay && y < by) || (y > ay && y > by)) continue;
+    if (ay === by) {
+      xa = Math.min(xa, ax, bx);
+      xb = Math.max(xb, ax, bx);
+    } else {
+      const x = ax + ((y - ay) * (bx - ax)) / (by - ay);
+      xa = Math.min(xa, x);
+      xb = Math.max(xb, x);
+    }
+  }
+  if (!(xb >= xa)) return null;
+  let lo = Math.max(x0, x0 + Math.ceil((xa - x0) / step) * step);
+  let hi = Math.min(x0 + Math.floor((x1 - x0) / step) * step, x0 + Math.floor((xb - x0) / step) * step);
+  // rounding at the ends: move each end to the lattice point insideQuad agrees with
+  while (lo <= hi && !insideQuad(c, lo, y)) lo += step;
+  while (hi >= lo && !insideQuad(c, hi, y)) hi -= step;
+  if (lo > hi) return null;
+  while (lo - step >= x0 && insideQuad(c, lo - step, y)) lo -= step;
+  while (hi + step <= x1 && insideQuad(c, hi + step, y)) hi += step;
+  return [lo, hi];
+}
+
+/** The k-th smallest value (0-based) of `a`, which it reorders (Hoare's selection). */
+export function selectKth(a: Float32Array, k: number): number {
+  let l = 0;
+  let r = a.length - 1;
+  while (r > l) {
+    const pivot = a[(l + r) >> 1];
+    let i = l;
+    let j = r;
+    while (i <= j) {
+      while (a[i] < pivot) i++;
+      while (a[j] > pivot) j--;
+      if (i <= j) {
+        const t = a[i];
+        a[i] = a[j];
+        a[j] = t;
+        i++;
+        j--;
+      }
+    }
+    if (k <= j) r = j;
+    else if (k >= i) l = i;
+    else break;
+  }
+  return a[k];
+}
+
 export interface QualityInput {
   /** linear luminance at working scale, before the falloff correction */
   rawLum: Plane;
@@ -362,46 +429,56 @@ function monomials(order: number): [number, number][] {
 export function robustLogSurface(values: Float64Array, w: number, h: number, use: Uint8Array, order: number): Float64Array {
   const terms = monomials(order);
   const nt = terms.length;
-  const U = (i: number) => (2 * (i + 0.5)) / w - 1;
-  const V = (j: number) => (2 * (j + 0.5)) / h - 1;
-  const basis = (i: number, j: number, out: Float64Array) => {
-    const u = U(i);
-    const v = V(j);
-    for (let k = 0; k < nt; k++) out[k] = u ** terms[k][0] * v ** terms[k][1];
-  };
+  const n = w * h;
+  // the basis of every cell, made once: B[k * nt + r] = U^i V^j of term r at cell k
+  const B = new Float64Array(n * nt);
+  for (let j = 0; j < h; j++) {
+    const v = (2 * (j + 0.5)) / h - 1;
+    for (let i = 0; i < w; i++) {
+      const u = (2 * (i + 0.5)) / w - 1;
+      const o = (j * w + i) * nt;
+      for (let r = 0; r < nt; r++) B[o + r] = u ** terms[r][0] * v ** terms[r][1];
+    }
+  }
   const keep = use.slice();
-  const fit = new Float64Array(w * h);
-  const row = new Float64Array(nt);
+  const fit = new Float64Array(n);
+  const AtA = new Float64Array(nt * nt);
+  const Aty = new Float64Array(nt);
+  const res = new Float64Array(n);
   for (let round = 0; round < 5; round++) {
+    AtA.fill(0);
+    Aty.fill(0);
+    let m = 0;
+    for (let k = 0; k < n; k++) {
+      if (!keep[k]) continue;
+      m++;
+      const o = k * nt;
+      const val = values[k];
+      for (let r = 0; r < nt; r++) {
+        const br = B[o + r];
+        Aty[r] += br * val;
+        for (let c = 0; c < nt; c++) AtA[r * nt + c] += br * B[o + c];
+      }
+    }
+    if (m < nt * 2) break;
     const A = new Matrix(nt, nt);
     const y = new Matrix(nt, 1);
-    let n = 0;
-    for (let j = 0; j < h; j++)
-      for (let i = 0; i < w; i++) {
-        const k = j * w + i;
-        if (!keep[k]) continue;
-        n++;
-        basis(i, j, row);
-        for (let r = 0; r < nt; r++) {
-          y.set(r, 0, y.get(r, 0) + row[r] * values[k]);
-          for (let c = 0; c < nt; c++) A.set(r, c, A.get(r, c) + row[r] * row[c]);
-        }
-      }
-    if (n < nt * 2) break;
+    for (let r = 0; r < nt; r++) {
+      y.set(r, 0, Aty[r]);
+      for (let c = 0; c < nt; c++) A.set(r, c, AtA[r * nt + c]);
+    }
     const coef = solve(A, y).to1DArray();
-    const res: number[] = [];
-    for (let j = 0; j < h; j++)
-      for (let i = 0; i < w; i++) {
-        const k = j * w + i;
-        basis(i, j, row);
-        let s = 0;
-        for (let r = 0; r < nt; r++) s += coef[r] * row[r];
-        fit[k] = s;
-        if (use[k]) res.push(Math.abs(values[k] - s));
-      }
-    const sigma = Math.max(0.003, 1.4826 * medianOf(res));
+    let nr = 0;
+    for (let k = 0; k < n; k++) {
+      const o = k * nt;
+      let s = 0;
+      for (let r = 0; r < nt; r++) s += coef[r] * B[o + r];
+      fit[k] = s;
+      if (use[k]) res[nr++] = Math.abs(values[k] - s);
+    }
+    const sigma = Math.max(0.003, 1.4826 * medianOfSorted(res.subarray(0, nr).sort()));
     let changed = false;
-    for (let k = 0; k < w * h; k++) {
+    for (let k = 0; k < n; k++) {
       const next = use[k] && Math.abs(values[k] - fit[k]) <= 3 * sigma ? 1 : 0;
       if (next !== keep[k]) changed = true;
       keep[k] = next;
@@ -409,6 +486,12 @@ export function robustLogSurface(values: Float64Array, w: number, h: number, use
     if (!changed) break;
   }
   return fit;
+}
+
+/** Median of ascending values (mean of the middle two for an even count). */
+function medianOfSorted(s: Float64Array): number {
+  const n = s.length;
+  return n % 2 ? s[(n - 1) / 2] : 0.5 * (s[n / 2 - 1] + s[n / 2]);
 }
 
 /**
@@ -421,7 +504,12 @@ export function findGlare(q: QualityInput, limits: QualityLimits): GlareFinding 
   const w = aspect >= 1 ? 64 : Math.max(8, Math.round(64 * aspect));
   const h = aspect >= 1 ? Math.max(8, Math.round(64 / aspect)) : 64;
   const rect = rectifyPlane(q.rawLum, q.corners, w, h);
-  const clipRect = rectifyPlane({ width: q.rawLum.width, height: q.rawLum.height, data: Float32Array.from(q.clipMask) }, q.corners, w, h);
+  // which cells hold clipped camera pixels: only asked about when a region stands out (rare)
+  let clipCells: Float32Array | null = null;
+  const clipAt = (k: number): boolean => {
+    clipCells ??= rectifyPlane({ width: q.rawLum.width, height: q.rawLum.height, data: Float32Array.from(q.clipMask) }, q.corners, w, h).plane.data;
+    return clipCells[k] > 0;
+  };
   const n = w * h;
   const logv = new Float64Array(n);
   const use = new Uint8Array(n);
@@ -463,7 +551,7 @@ export function findGlare(q: QualityInput, limits: QualityLimits): GlareFinding 
         peak = e;
         peakK = k;
       }
-      if (clipRect.plane.data[k] > 0) clipped = true;
+      if (!clipped && clipAt(k)) clipped = true;
       const i = k % w;
       const j = (k - i) / w;
       for (let dj = -1; dj <= 1; dj++)
@@ -489,6 +577,23 @@ export function findGlare(q: QualityInput, limits: QualityLimits): GlareFinding 
   return best;
 }
 
+/** cos and sin of −2πk/n for k < n/2, per n (the FFT's twiddle factors), made once per size. */
+const twiddleCache = new Map<number, { cos: Float64Array; sin: Float64Array }>();
+function twiddles(n: number): { cos: Float64Array; sin: Float64Array } {
+  let t = twiddleCache.get(n);
+  if (!t) {
+    const cos = new Float64Array(Math.max(1, n >> 1));
+    const sin = new Float64Array(Math.max(1, n >> 1));
+    for (let k = 0; k < n >> 1; k++) {
+      cos[k] = Math.cos((-2 * Math.PI * k) / n);
+      sin[k] = Math.sin((-2 * Math.PI * k) / n);
+    }
+    t = { cos, sin };
+    twiddleCache.set(n, t);
+  }
+  return t;
+}
+
 /** In-place iterative radix-2 FFT of (re, im), length a power of two. */
 export function fft(re: Float64Array, im: Float64Array): void {
   const n = re.length;
@@ -505,58 +610,191 @@ export function fft(re: Float64Array, im: Float64Array): void {
       im[j] = t;
     }
   }
+  const { cos, sin } = twiddles(n);
   for (let len = 2; len <= n; len <<= 1) {
-    const ang = (-2 * Math.PI) / len;
-    const wr = Math.cos(ang);
-    const wi = Math.sin(ang);
+    const half = len >> 1;
+    const stride = n / len;
     for (let i = 0; i < n; i += len) {
-      let cr = 1;
-      let ci = 0;
-      for (let k = 0; k < len / 2; k++) {
+      for (let k = 0, t = 0; k < half; k++, t += stride) {
+        const cr = cos[t];
+        const ci = sin[t];
         const a = i + k;
-        const b = a + len / 2;
+        const b = a + half;
         const xr = re[b] * cr - im[b] * ci;
         const xi = re[b] * ci + im[b] * cr;
         re[b] = re[a] - xr;
         im[b] = im[a] - xi;
         re[a] += xr;
         im[a] += xi;
-        const nr = cr * wr - ci * wi;
-        ci = cr * wi + ci * wr;
-        cr = nr;
       }
     }
   }
 }
 
-/** 2-D FFT of an N×N real array (row-major); returns interleaved-free (re, im). */
-function fft2(data: Float64Array, N: number): { re: Float64Array; im: Float64Array } {
-  const re = Float64Array.from(data);
-  const im = new Float64Array(N * N);
+/** In-place 2-D FFT of an N×N complex array (row-major). */
+function fft2InPlace(re: Float64Array, im: Float64Array, N: number): void {
   const rr = new Float64Array(N);
   const ri = new Float64Array(N);
   for (let y = 0; y < N; y++) {
-    rr.set(re.subarray(y * N, y * N + N));
-    ri.fill(0);
+    const a = y * N;
+    rr.set(re.subarray(a, a + N));
+    ri.set(im.subarray(a, a + N));
     fft(rr, ri);
-    re.set(rr, y * N);
-    im.set(ri, y * N);
+    re.set(rr, a);
+    im.set(ri, a);
   }
   for (let x = 0; x < N; x++) {
-    for (let y = 0; y < N; y++) {
-      rr[y] = re[y * N + x];
-      ri[y] = im[y * N + x];
+    for (let y = 0, k = x; y < N; y++, k += N) {
+      rr[y] = re[k];
+      ri[y] = im[k];
     }
     fft(rr, ri);
-    for (let y = 0; y < N; y++) {
-      re[y * N + x] = rr[y];
-      im[y * N + x] = ri[y];
+    for (let y = 0, k = x; y < N; y++, k += N) {
+      re[k] = rr[y];
+      im[k] = ri[y];
     }
   }
-  return { re, im };
+}
+
+/**
+ * 2-D FFTs of one or two real N×N arrays (row-major) with one complex transform: Z = FFT(a + i b), then
+ * A_k = (Z_k + conj Z_−k)/2 and B_k = (Z_k − conj Z_−k)/(2i).
+ */
+function fft2Real(a: Float64Array, b: Float64Array | null, N: number): { re: Float64Array; im: Float64Array }[] {
+  const zr = Float64Array.from(a);
+  const zi = b ? Float64Array.from(b) : new Float64Array(N * N);
+  fft2InPlace(zr, zi, N);
+  if (!b) return [{ re: zr, im: zi }];
+  const ar = new Float64Array(N * N);
+  const ai = new Float64Array(N * N);
+  const br = new Float64Array(N * N);
+  const bi = new Float64Array(N * N);
+  for (let y = 0; y < N; y++) {
+    const my = ((N - y) % N) * N;
+    for (let x = 0; x < N; x++) {
+      const k = y * N + x;
+      const m = my + ((N - x) % N);
+      const pr = zr[k];
+      const pi = zi[k];
+      const qr = zr[m];
+      const qi = zi[m];
+      ar[k] = 0.5 * (pr + qr);
+      ai[k] = 0.5 * (pi - qi);
+      br[k] = 0.5 * (pi + qi);
+      bi[k] = -0.5 * (pr - qr);
+    }
+  }
+  return [
+    { re: ar, im: ai },
+    { re: br, im: bi },
+  ];
 }
 
 const sinc = (t: number) => (t === 0 ? 1 : Math.sin(Math.PI * t) / (Math.PI * t));
+
+/** Copies the N×N window at (x0, y0) of each channel into c0, c1, c2; returns the channel means. */
+function windowChannels(img: RgbImage, x0: number, y0: number, N: number, c0: Float64Array, c1: Float64Array, c2: Float64Array): number[] {
+  const d = img.data;
+  let m0 = 0;
+  let m1 = 0;
+  let m2 = 0;
+  for (let j = 0; j < N; j++) {
+    let k = ((y0 + j) * img.width + x0) * 3;
+    for (let i = 0, o = j * N; i < N; i++, o++, k += 3) {
+      const r = d[k];
+      const g = d[k + 1];
+      const b = d[k + 2];
+      c0[o] = r;
+      c1[o] = g;
+      c2[o] = b;
+      m0 += r;
+      m1 += g;
+      m2 += b;
+    }
+  }
+  return [m0 / (N * N), m1 / (N * N), m2 / (N * N)];
+}
+
+/**
+ * The strongest ripple of one window that survives into the map: over the frequencies with periods from
+ * 2 to N/minK pixels (each real ripple once), the luminance ripple (spectra weighted by `weights`) and
+ * the largest difference between two channels' ripples (its colour), attenuated by the map's box
+ * average of width fw (none when 0).
+ */
+function scanSpectra(
+  spectra: { re: Float64Array; im: Float64Array }[],
+  weights: number[],
+  N: number,
+  minK: number,
+  sumW: number,
+  fw: number,
+  colourTestPeriodPx: number,
+): MoireFinding | null {
+  const nU = spectra.length;
+  // unused channels get weight 0 (and are left out of the colour test)
+  const R0 = spectra[0].re;
+  const I0 = spectra[0].im;
+  const R1 = nU > 1 ? spectra[1].re : R0;
+  const I1 = nU > 1 ? spectra[1].im : I0;
+  const R2 = nU > 2 ? spectra[2].re : R0;
+  const I2 = nU > 2 ? spectra[2].im : I0;
+  const w0 = weights[0];
+  const w1 = nU > 1 ? weights[1] : 0;
+  const w2 = nU > 2 ? weights[2] : 0;
+  const canColour = nU >= 2;
+  const half = N / 2;
+  // the box average's attenuation factors along x and y
+  const attX = new Float64Array(half + 1);
+  const attY = new Float64Array(N + 1);
+  for (let k = 0; k <= half; k++) attX[k] = fw > 0 ? sinc((k / N) * fw) : 1;
+  for (let k = -half; k <= half; k++) attY[k + half] = fw > 0 ? sinc((k / N) * fw) : 1;
+  let best: MoireFinding | null = null;
+  let bestAmp = -Infinity;
+  const toAmp = 2 / sumW;
+  for (let ky = -half + 1; ky < half; ky++) {
+    const row = ((ky + N) % N) * N;
+    const ay = attY[ky + half];
+    for (let kx = 0; kx < half; kx++) {
+      if (kx === 0 && ky <= 0) continue; // each real ripple once
+      const kk = Math.sqrt(kx * kx + ky * ky);
+      if (kk < minK || kk > half) continue;
+      const idx = row + kx;
+      const r0 = R0[idx];
+      const i0 = I0[idx];
+      const r1 = R1[idx];
+      const i1 = I1[idx];
+      const r2 = R2[idx];
+      const i2 = I2[idx];
+      const lr = w0 * r0 + w1 * r1 + w2 * r2;
+      const li = w0 * i0 + w1 * i1 + w2 * i2;
+      const aY = toAmp * Math.sqrt(lr * lr + li * li);
+      let aC = 0;
+      if (canColour) {
+        let dr = r0 - r1;
+        let di = i0 - i1;
+        aC = toAmp * Math.sqrt(dr * dr + di * di);
+        if (nU > 2) {
+          dr = r0 - r2;
+          di = i0 - i2;
+          aC = Math.max(aC, toAmp * Math.sqrt(dr * dr + di * di));
+          dr = r1 - r2;
+          di = i1 - i2;
+          aC = Math.max(aC, toAmp * Math.sqrt(dr * dr + di * di));
+        }
+      }
+      const coloured = canColour && aC >= 0.5 * aY;
+      // beyond the colour test's reach (fine chroma is lost to JPEG chroma subsampling) any ripple counts
+      if (canColour && !coloured && N / kk > colourTestPeriodPx) continue;
+      const cam = aY > aC ? aY : aC;
+      const amp = cam * Math.abs(attX[kx] * ay);
+      if (amp > bestAmp) {
+        bestAmp = amp;
+        best = { amplitude: amp, cameraAmplitude: cam, periodPx: N / kk, angleDeg: (Math.atan2(ky, kx) * 180) / Math.PI, coloured };
+      }
+    }
+  }
+  return best;
+}
 
 /**
  * Moiré: square windows (Hann-tapered) inside the panel; per window the spectra of each usable colour
@@ -603,67 +841,28 @@ export function findMoire(q: QualityInput, limits: QualityLimits): MoireFinding 
     ];
     if (!box.every(([x, y]) => insideQuad(inner, x, y) && x >= 0 && y >= 0 && x < img.width && y < img.height)) continue;
     const ch = [new Float64Array(N * N), new Float64Array(N * N), new Float64Array(N * N)];
-    const mean = [0, 0, 0];
-    for (let j = 0; j < N; j++)
-      for (let i = 0; i < N; i++) {
-        const k = ((y0 + j) * img.width + x0 + i) * 3;
-        for (let c = 0; c < 3; c++) {
-          const val = img.data[k + c];
-          ch[c][j * N + i] = val;
-          mean[c] += val;
-        }
-      }
-    for (let c = 0; c < 3; c++) mean[c] /= N * N;
+    const mean = windowChannels(img, x0, y0, N, ch[0], ch[1], ch[2]);
     const top = Math.max(...mean);
     if (!(top > 0)) continue;
     const usable = [0, 1, 2].filter((c) => mean[c] >= 0.05 * top);
-    // relative ripple per channel, windowed, with its windowed mean removed
-    const spectra = usable.map((c) => {
+    // relative ripple per channel, windowed, with its windowed mean removed (in place over ch)
+    const ripples = usable.map((c) => {
       const s = ch[c];
       let wm = 0;
       for (let j = 0; j < N; j++) for (let i = 0; i < N; i++) wm += hann[i] * hann[j] * s[j * N + i];
       wm /= sumW;
-      const r = new Float64Array(N * N);
-      for (let j = 0; j < N; j++) for (let i = 0; i < N; i++) r[j * N + i] = (hann[i] * hann[j] * (s[j * N + i] - wm)) / mean[c];
-      return fft2(r, N);
+      for (let j = 0; j < N; j++) for (let i = 0; i < N; i++) s[j * N + i] = (hann[i] * hann[j] * (s[j * N + i] - wm)) / mean[c];
+      return s;
     });
+    // two real channels per complex transform
+    const spectra: { re: Float64Array; im: Float64Array }[] = [];
+    for (let s = 0; s < ripples.length; s += 2) spectra.push(...fft2Real(ripples[s], ripples[s + 1] ?? null, N));
     // luminance weights of the usable channels (BT.709), renormalised
     const wY = [0.2126, 0.7152, 0.0722];
     const lw = usable.map((c) => wY[c] * mean[c]);
-    const lsum = lw.reduce((a, b) => a + b, 0);
-    for (let ky = -N / 2 + 1; ky < N / 2; ky++) {
-      for (let kx = 0; kx < N / 2; kx++) {
-        if (kx === 0 && ky <= 0) continue; // each real ripple once
-        const kk = Math.hypot(kx, ky);
-        if (kk < minK || kk > N / 2) continue;
-        const idx = ((ky + N) % N) * N + kx;
-        let lr = 0;
-        let li = 0;
-        for (let s = 0; s < usable.length; s++) {
-          lr += (lw[s] / lsum) * spectra[s].re[idx];
-          li += (lw[s] / lsum) * spectra[s].im[idx];
-        }
-        const aY = (2 * Math.hypot(lr, li)) / sumW;
-        let aC = 0;
-        for (let s = 0; s < usable.length; s++)
-          for (let t = s + 1; t < usable.length; t++) {
-            const d = Math.hypot(spectra[s].re[idx] - spectra[t].re[idx], spectra[s].im[idx] - spectra[t].im[idx]);
-            aC = Math.max(aC, (2 * d) / sumW);
-          }
-        const canColour = usable.length >= 2;
-        const coloured = canColour && aC >= 0.5 * aY;
-        // beyond the colour test's reach (fine chroma is lost to JPEG chroma subsampling) any ripple counts
-        if (canColour && !coloured && N / kk > limits.moireColourTestPeriodPx) continue;
-        const cam = Math.max(aY, aC);
-        const fx = kx / N;
-        const fy = ky / N;
-        const att = fw > 0 ? Math.abs(sinc(fx * fw) * sinc(fy * fw)) : 1;
-        const amp = cam * att;
-        if (!best || amp > best.amplitude) {
-          best = { amplitude: amp, cameraAmplitude: cam, periodPx: N / kk, angleDeg: (Math.atan2(ky, kx) * 180) / Math.PI, coloured };
-        }
-      }
-    }
+    const lsum = lw.reduce((x, y) => x + y, 0);
+    const found = scanSpectra(spectra, lw.map((x) => x / lsum), N, minK, sumW, fw, limits.moireColourTestPeriodPx);
+    if (found && (!best || found.amplitude > best.amplitude)) best = found;
   }
   return best;
 }
@@ -705,14 +904,15 @@ export function assessPanelQuality(q: QualityInput, limits: QualityLimits): Qual
   const step = Math.max(1, Math.floor(Math.sqrt(((x1 - x0) * (y1 - y0)) / 250_000)));
   let n = 0;
   let clipped = 0;
-  const sample: number[] = [];
+  const sample = new Float32Array(Math.floor((x1 - x0) / step + 1) * Math.floor((y1 - y0) / step + 1));
+  const lumData = rawLum.data;
   for (let y = y0; y <= y1; y += step) {
-    for (let x = x0; x <= x1; x += step) {
-      if (!insideQuad(inner, x, y)) continue;
-      const k = y * w + x;
-      n++;
+    // the lattice points of this row inside the quadrilateral: one run (it is convex)
+    const run = quadRowRun(inner, y, x0, x1, step);
+    if (run === null) continue;
+    for (let x = run[0], k = y * w + run[0]; x <= run[1]; x += step, k += step) {
       if (clipMask[k]) clipped++;
-      sample.push(rawLum.data[k]);
+      sample[n++] = lumData[k];
     }
   }
   if (n === 0) {
@@ -722,8 +922,7 @@ export function assessPanelQuality(q: QualityInput, limits: QualityLimits): Qual
       warnings,
     };
   }
-  sample.sort((a, b) => a - b);
-  const median = sample[Math.floor(sample.length / 2)];
+  const median = selectKth(sample.subarray(0, n), Math.floor(n / 2));
   const medianCode = srgbEncode(Math.max(0, median));
   const clippedFraction = clipped / n;
   const dark = medianCode < limits.minPanelCode;
