@@ -14,6 +14,7 @@ export {
   PROFILE_FORMAT,
   PROFILE_VERSION,
   applyTransmission,
+  applyTransmissionWithLuminance,
   applyTransmissionToPlane,
   channelTransmissionFromProfile,
   cornerTransmission,

@@ -14,6 +14,7 @@
 import { z } from 'zod';
 import { EvenfieldError } from '../errors.js';
 import type { ExposureRecord, Plane, RgbImage } from '../types.js';
+import { SRGB_TO_XYZ } from '../photometry/index.js';
 import {
   type FrameGeometry,
   type SurfaceTerm,
@@ -292,6 +293,54 @@ export function applyTransmission(img: RgbImage, T: Transmission, opts: ApplyOpt
     }
   }
   return clamped;
+}
+
+/**
+ * applyTransmission and then the luminance plane of the corrected image (luminancePlane's weights and
+ * values), in one pass over the pixels. Returns the clamped count and the luminance.
+ */
+export function applyTransmissionWithLuminance(img: RgbImage, T: Transmission, opts: ApplyOptions = {}): { clamped: number; luminance: Plane } {
+  const floor = opts.floor ?? 0.02;
+  const planes = isChannelTransmission(T) ? [T.r, T.g, T.b] : [T, T, T];
+  for (const p of planes) {
+    if (p.width !== img.width || p.height !== img.height) {
+      throw new EvenfieldError('falloff', `transmission is ${p.width}×${p.height} but the image is ${img.width}×${img.height}`);
+    }
+  }
+  const n = img.width * img.height;
+  const d = img.data;
+  const t0 = planes[0].data;
+  const t1 = planes[1].data;
+  const t2 = planes[2].data;
+  const [, , , yr, yg, yb] = SRGB_TO_XYZ as [number, number, number, number, number, number];
+  const lum = new Float32Array(n);
+  let clamped = 0;
+  for (let i = 0, k = 0; i < n; i++, k += 3) {
+    let g0 = t0[i];
+    let g1 = t1[i];
+    let g2 = t2[i];
+    if (!(g0 >= floor)) {
+      g0 = floor;
+      clamped++;
+    }
+    if (!(g1 >= floor)) {
+      g1 = floor;
+      clamped++;
+    }
+    if (!(g2 >= floor)) {
+      g2 = floor;
+      clamped++;
+    }
+    // the values as stored (float32), as luminancePlane would read them back
+    const r = Math.fround(d[k] / g0);
+    const g = Math.fround(d[k + 1] / g1);
+    const b = Math.fround(d[k + 2] / g2);
+    d[k] = r;
+    d[k + 1] = g;
+    d[k + 2] = b;
+    lum[i] = yr * r + yg * g + yb * b;
+  }
+  return { clamped, luminance: { width: img.width, height: img.height, data: lum } };
 }
 
 /** Divides a single plane (e.g. linear luminance) by a transmission plane, in place. */

@@ -65,6 +65,11 @@ export interface DecodeOptions {
   clipLevel?: number;
   /** A pixel counts as dark when its largest channel code < darkLevel × white (default 2/255; common practice). */
   darkLevel?: number;
+  /**
+   * Also return `clipMask`: 1 where any channel of the decoded (reduced) linear image is at or above this
+   * linear level, made in the decoding pass (the pipeline's clipping gate). Default: none.
+   */
+  clipMaskLinear?: number;
 }
 
 export interface DecodedPhoto {
@@ -77,6 +82,8 @@ export interface DecodedPhoto {
   exposure: ExposureRecord;
   sha256: string;
   stats: ExposureStats;
+  /** with DecodeOptions.clipMaskLinear: 1 where any channel of `image` (as decoded) is at or above it */
+  clipMask: Uint8Array | null;
   /** EXIF Orientation tag (1..8) as stored in the file; the pixels are NOT rotated by it */
   orientation: number | null;
   /** the reduction actually used ('full' at scale 1; 'linear-box' when 'jpeg-shrink' does not apply) */
@@ -235,6 +242,17 @@ export interface Reduced {
   clipped: number;
   dark: number;
   pixels: number;
+  /** with a clip level: 1 where any channel of the OUTPUT pixel is at or above it (else null) */
+  clipMask: Uint8Array | null;
+}
+
+/** 1 where any channel of interleaved linear RGB is at or above `level` (nearWhiteMask's rule). */
+function clipMaskOf(d: Float32Array, n: number, level: number): Uint8Array {
+  const out = new Uint8Array(n);
+  for (let i = 0, k = 0; i < n; i++, k += 3) {
+    if (d[k]! >= level || d[k + 1]! >= level || d[k + 2]! >= level) out[i] = 1;
+  }
+  return out;
 }
 
 // Luminance weights: the second row of SRGB_TO_XYZ, as luminancePlane uses them.
@@ -259,11 +277,13 @@ export function reduceLinearBox(
   clipCode: number,
   darkCode: number,
   inPlace = false,
+  clipLinear: number | null = null,
 ): Reduced {
   if (src.length !== W * H * 3) throw new Error(`reduceLinearBox: ${src.length} codes for ${W}×${H}×3`);
-  if (s === 1) return linearise(src, W, H, lut, clipCode, darkCode);
-  if (s === 2 && src instanceof Uint8Array) return reduce2x8(src, W, H, lut, clipCode, darkCode, inPlace);
-  return reduceBlocks(src, W, H, s, lut, clipCode, darkCode);
+  if (s === 2 && src instanceof Uint8Array) return reduce2x8(src, W, H, lut, clipCode, darkCode, inPlace, clipLinear);
+  const r = s === 1 ? linearise(src, W, H, lut, clipCode, darkCode) : reduceBlocks(src, W, H, s, lut, clipCode, darkCode);
+  if (clipLinear !== null) r.clipMask = clipMaskOf(r.data, r.width * r.height, clipLinear);
+  return r;
 }
 
 function linearise(src: Uint8Array | Uint16Array, W: number, H: number, lut: Float32Array, clipCode: number, darkCode: number): Reduced {
@@ -287,7 +307,7 @@ function linearise(src: Uint8Array | Uint16Array, W: number, H: number, lut: Flo
     out[i + 2] = b;
     lum[k] = YR * r + YG * g + YB * b;
   }
-  return { data: out, luminance: lum, width: W, height: H, clipped, dark, pixels: n };
+  return { data: out, luminance: lum, width: W, height: H, clipped, dark, pixels: n, clipMask: null };
 }
 
 /** Any block size; blocks at the right and bottom edges that do not fill s×s average the pixels they have. */
@@ -350,7 +370,7 @@ function reduceBlocks(
       lum[oy * w + ox] = YR * r + YG * g + YB * b;
     }
   }
-  return { data: out, luminance: lum, width: w, height: h, clipped, dark, pixels: W * H };
+  return { data: out, luminance: lum, width: w, height: h, clipped, dark, pixels: W * H, clipMask: null };
 }
 
 /**
@@ -359,20 +379,48 @@ function reduceBlocks(
  * block has). Sums (top pair) + (bottom pair) in double precision, as reduceBlocks does. (The loop has
  * no closure over its counters: captured variables would live in a heap context, not in registers.)
  */
-function reduce2x8(src: Uint8Array, W: number, H: number, lut: Float32Array, clipCode: number, darkCode: number, inPlace: boolean): Reduced {
+function reduce2x8(
+  src: Uint8Array,
+  W: number,
+  H: number,
+  lut: Float32Array,
+  clipCode: number,
+  darkCode: number,
+  inPlace: boolean,
+  clipLinear: number | null,
+): Reduced {
   const w = (W + 1) >> 1;
   const h = (H + 1) >> 1;
   const overwrite = inPlace && W % 2 === 0 && H % 2 === 0 && src.byteOffset % 4 === 0;
   const out = overwrite ? new Float32Array(src.buffer, src.byteOffset, w * h * 3) : new Float32Array(w * h * 3);
   const lum = new Float32Array(w * h);
   const counts = new Float64Array(2); // clipped, dark
-  wholeBlocks2x8(src, W, H, lut, clipCode, darkCode, out, lum, counts, overwrite);
+  const clipMask = clipLinear !== null ? new Uint8Array(w * h) : null;
+  wholeBlocks2x8(src, W, H, lut, clipCode, darkCode, out, lum, counts, overwrite, clipMask, clipLinear ?? Infinity);
   // partial blocks: the last column when W is odd, the last row when H is odd
   const wf = W >> 1;
   const hf = H >> 1;
-  if (wf < w) for (let oy = 0; oy < hf; oy++) partialBlock2(src, W, H, lut, clipCode, darkCode, out, lum, counts, wf, oy, w);
-  if (hf < h) for (let ox = 0; ox < w; ox++) partialBlock2(src, W, H, lut, clipCode, darkCode, out, lum, counts, ox, hf, w);
-  return { data: out, luminance: lum, width: w, height: h, clipped: counts[0]!, dark: counts[1]!, pixels: W * H };
+  const edge = (ox: number, oy: number): void => {
+    partialBlock2(src, W, H, lut, clipCode, darkCode, out, lum, counts, ox, oy, w);
+    const k = (oy * w + ox) * 3;
+    if (clipMask && (out[k]! >= clipLinear! || out[k + 1]! >= clipLinear! || out[k + 2]! >= clipLinear!)) clipMask[oy * w + ox] = 1;
+  };
+  if (wf < w) for (let oy = 0; oy < hf; oy++) edge(wf, oy);
+  if (hf < h) for (let ox = 0; ox < w; ox++) edge(ox, hf);
+  return { data: out, luminance: lum, width: w, height: h, clipped: counts[0]!, dark: counts[1]!, pixels: W * H, clipMask };
+}
+
+/** Sums of two table entries, pairs[(a << 8) | b] = lut[a] + lut[b], the same double-precision sum the
+ *  block loop would form, made once per table: a 2×2 block's row pair is one look-up, not two. */
+const pairTables = new WeakMap<Float32Array, Float64Array>();
+function pairTable(lut: Float32Array): Float64Array {
+  let t = pairTables.get(lut);
+  if (!t) {
+    t = new Float64Array(65536);
+    for (let a = 0; a < 256; a++) for (let b = 0; b < 256; b++) t[(a << 8) | b] = lut[a]! + lut[b]!;
+    pairTables.set(lut, t);
+  }
+  return t;
 }
 
 function wholeBlocks2x8(
@@ -386,9 +434,12 @@ function wholeBlocks2x8(
   lum: Float32Array,
   counts: Float64Array,
   overwrite: boolean,
+  clipMask: Uint8Array | null,
+  clipLinear: number,
 ): void {
   let clipped = 0;
   let dark = 0;
+  const pairs = pairTable(lut);
   const w = (W + 1) >> 1;
   const row = W * 3;
   const wf = W >> 1; // whole blocks across
@@ -419,13 +470,15 @@ function wholeBlocks2x8(
       const d0 = s[j + 3]!;
       const d1 = s[j + 4]!;
       const d2 = s[j + 5]!;
-      const r = Math.fround((lut[a0]! + lut[b0]! + (lut[c0]! + lut[d0]!)) * 0.25);
-      const g = Math.fround((lut[a1]! + lut[b1]! + (lut[c1]! + lut[d1]!)) * 0.25);
-      const b = Math.fround((lut[a2]! + lut[b2]! + (lut[c2]! + lut[d2]!)) * 0.25);
+      // (lut[a] + lut[b]) + (lut[c] + lut[d]), as partialBlock2 and reduceBlocks sum a block
+      const r = Math.fround((pairs[(a0 << 8) | b0]! + pairs[(c0 << 8) | d0]!) * 0.25);
+      const g = Math.fround((pairs[(a1 << 8) | b1]! + pairs[(c1 << 8) | d1]!) * 0.25);
+      const b = Math.fround((pairs[(a2 << 8) | b2]! + pairs[(c2 << 8) | d2]!) * 0.25);
       out[o] = r;
       out[o + 1] = g;
       out[o + 2] = b;
       lum[q] = YR * r + YG * g + YB * b;
+      if (clipMask !== null && (r >= clipLinear || g >= clipLinear || b >= clipLinear)) clipMask[q] = 1;
       let m = a0 > a1 ? a0 : a1;
       if (a2 > m) m = a2;
       if (m >= clipCode) clipped++;
@@ -600,7 +653,7 @@ export async function decodePhotoBuffer(buf: Buffer, name: string, opts: DecodeO
   if (useShrink) {
     const codes = new Uint8Array(data.buffer, data.byteOffset, data.length);
     const th = thresholds(8, clipLevel, darkLevel);
-    reduced = reduceLinearBox(codes, out.width, out.height, 1, decodeLut(8, transfer), th.clipCode, th.darkCode);
+    reduced = reduceLinearBox(codes, out.width, out.height, 1, decodeLut(8, transfer), th.clipCode, th.darkCode, false, opts.clipMaskLinear ?? null);
   } else {
     if (out.channels !== 3 || out.width !== plan.width || out.height !== plan.height) {
       throw new EvenfieldError('internal', `decoder returned ${out.width}×${out.height}×${out.channels}, expected ${plan.width}×${plan.height}×3`, name);
@@ -610,7 +663,7 @@ export async function decodePhotoBuffer(buf: Buffer, name: string, opts: DecodeO
       : new Uint8Array(data.buffer, data.byteOffset, data.length);
     const th = thresholds(plan.bitDepth, clipLevel, darkLevel);
     // the decoder's buffer is ours: the 2×2 reduction may write over it
-    reduced = reduceLinearBox(codes, out.width, out.height, scale, decodeLut(plan.bitDepth, transfer), th.clipCode, th.darkCode, true);
+    reduced = reduceLinearBox(codes, out.width, out.height, scale, decodeLut(plan.bitDepth, transfer), th.clipCode, th.darkCode, true, opts.clipMaskLinear ?? null);
   }
 
   const image: RgbImage = { width: reduced.width, height: reduced.height, data: reduced.data };
@@ -639,6 +692,7 @@ export async function decodePhotoBuffer(buf: Buffer, name: string, opts: DecodeO
     exposure: exif.exposure,
     sha256,
     stats,
+    clipMask: reduced.clipMask,
     orientation: exif.orientation ?? plan.orientationFromHeader,
     method,
     iccProfile: plan.icc,

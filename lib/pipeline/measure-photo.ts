@@ -3,9 +3,9 @@
 
 import { decodePhotoBuffer, readInputFile } from '../io/index.js';
 import type { DecodedPhoto } from '../io/index.js';
-import { SRGB_TO_XYZ, luminancePlane, srgbEncode } from '../photometry/index.js';
+import { SRGB_TO_XYZ, srgbEncode } from '../photometry/index.js';
 import { findPanel, rectifyRgb, estimatePose } from '../geometry/index.js';
-import { applyTransmission, channelTransmissionFromProfile, cornerTransmission, cos4Transmission, isChannelTransmission, profileMismatch } from '../falloff/index.js';
+import { applyTransmissionWithLuminance, channelTransmissionFromProfile, cornerTransmission, cos4Transmission, isChannelTransmission, profileMismatch } from '../falloff/index.js';
 import type { Transmission } from '../falloff/index.js';
 import type { FalloffProfile } from '../falloff/index.js';
 import { analyseMura } from '../mura/index.js';
@@ -325,7 +325,12 @@ async function measureCamera(
   // 1. decode to linear light at working scale
   const buf = await readInputFile(file);
   // the decoder picks the scale from the header it reads anyway (the rule of chooseScale)
-  const decoded = await decodePhotoBuffer(buf, file, { transfer: opts.transfer, maxPixels: opts.maxPixels, targetLongSide: opts.workLongSide });
+  const decoded = await decodePhotoBuffer(buf, file, {
+    transfer: opts.transfer,
+    maxPixels: opts.maxPixels,
+    targetLongSide: opts.workLongSide,
+    clipMaskLinear: opts.quality.clipLinear,
+  });
   const scale = decoded.info.scale;
   result.sha256 = decoded.sha256;
   result.decode = decoded.info;
@@ -339,7 +344,8 @@ async function measureCamera(
   const img = decoded.image;
   // camera levels before any correction, for the exposure gates (made by the decoder in its pass)
   const rawLum = decoded.luminance;
-  const clipMask = nearWhiteMask(img, opts.quality.clipLinear);
+  // (the decoder makes it in its pass; nearWhiteMask's rule)
+  const clipMask = decoded.clipMask ?? nearWhiteMask(img, opts.quality.clipLinear);
   // the photo as taken (before any correction) for the report, kept for unmeasurable photos too
   if (opts.artifacts) partial.thumbnail = thumbnailOf(img, scale, 900);
 
@@ -372,8 +378,10 @@ async function measureCamera(
     falloff.method = 'cos4-model';
     falloff.source = `cos⁴ law, ${f35} mm equivalent focal length`;
   }
+  // luminance of the corrected image for the panel finder, made in the correcting pass
+  let correctedLum: Plane | null = null;
   if (transmission) {
-    applyTransmission(img, transmission);
+    correctedLum = applyTransmissionWithLuminance(img, transmission).luminance;
     falloff.applied = true;
     falloff.cornerFalloff = cornerTransmission(isChannelTransmission(transmission) ? transmission.g : transmission);
   }
@@ -383,7 +391,7 @@ async function measureCamera(
   }
 
   // 3. panel location
-  const lum = transmission ? luminancePlane(img) : rawLum;
+  const lum = correctedLum ?? rawLum;
   let cornersWork: Corners;
   let cornerStrength = 0;
   let geometrySource: GeometryRecord['cornersSource'];

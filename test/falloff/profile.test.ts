@@ -2,6 +2,7 @@ import { describe, expect, it } from 'vitest';
 import {
   PROFILE_FORMAT,
   applyTransmission,
+  applyTransmissionWithLuminance,
   channelTransmissionFromProfile,
   legendreInto,
   profileFromJson,
@@ -11,6 +12,7 @@ import {
 } from '../../lib/falloff/index.js';
 import type { FalloffProfile } from '../../lib/falloff/index.js';
 import { EvenfieldError } from '../../lib/errors.js';
+import { luminancePlane } from '../../lib/photometry/index.js';
 import type { ExposureRecord } from '../../lib/types.js';
 
 function makeProfile(over: Partial<FalloffProfile['model']> = {}): FalloffProfile {
@@ -148,6 +150,18 @@ describe('profile evaluation', () => {
     applyTransmission(img, T);
     for (const v of img.data) expect(v).toBeCloseTo(0.5, 6);
     expect(() => applyTransmission({ width: 10, height: 10, data: new Float32Array(300) }, T)).toThrow(/transmission is 40×30/);
+  });
+
+  it('corrects and makes the luminance in one pass: the same bits as applyTransmission then luminancePlane', () => {
+    const T = channelTransmissionFromProfile(makeProfile(), 40, 30, 10);
+    const img = { width: 40, height: 30, data: new Float32Array(40 * 30 * 3) };
+    for (let i = 0; i < img.data.length; i++) img.data[i] = 0.05 + ((i * 7919) % 1000) / 1100;
+    const ref = { ...img, data: img.data.slice() };
+    const clampedRef = applyTransmission(ref, T, { floor: 0.9 });
+    const out = applyTransmissionWithLuminance(img, T, { floor: 0.9 });
+    expect(out.clamped).toBe(clampedRef);
+    expect(Buffer.from(img.data.buffer).equals(Buffer.from(ref.data.buffer))).toBe(true);
+    expect(Buffer.from(out.luminance.data.buffer).equals(Buffer.from(luminancePlane(ref).data.buffer))).toBe(true);
   });
 });
 

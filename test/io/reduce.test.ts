@@ -67,6 +67,31 @@ describe('2×2 reduction of 8-bit codes', () => {
     }
   });
 
+  it('makes the clip mask of its output in the same pass, as nearWhiteMask would (every path, odd and even sizes)', () => {
+    const level = SRGB_LUT_8[240]!;
+    for (const [w, h] of [
+      [64, 48],
+      [37, 23],
+      [2, 5],
+    ] as const) {
+      const codes = codesWithExtremes(w, h, 3 * w + h);
+      for (const [s, src, lut] of [
+        [2, codes, SRGB_LUT_8],
+        [2, Uint16Array.from(codes), LUT_WIDE],
+        [1, codes, SRGB_LUT_8],
+        [4, codes, SRGB_LUT_8],
+      ] as const) {
+        const r = reduceLinearBox(src, w, h, s, lut, 250, 2, false, level);
+        const n = r.width * r.height;
+        const expected = new Uint8Array(n);
+        for (let i = 0; i < n; i++) if (r.data[3 * i]! >= level || r.data[3 * i + 1]! >= level || r.data[3 * i + 2]! >= level) expected[i] = 1;
+        expect(r.clipMask).not.toBeNull();
+        expect(Buffer.from(r.clipMask!).equals(Buffer.from(expected))).toBe(true);
+        expect(reduceLinearBox(src, w, h, s, lut, 250, 2).clipMask).toBeNull();
+      }
+    }
+  });
+
   it('counts every full-size pixel once, by its largest code (clip at ≥ 250, dark below 2)', () => {
     const w = 9;
     const h = 7;
