@@ -68,7 +68,8 @@ function rectifyInterleaved(
   checkSize(outWidth, outHeight);
   const scale = opts.footprintScale ?? 1;
   if (!(scale > 0)) throw new EvenfieldError('internal', 'rectify: footprintScale must be positive');
-  const H = panelToCamera(corners);
+  // typed, so the per-pixel reads of its entries stay cheap
+  const H = Float64Array.from(panelToCamera(corners));
   const out = new Float32Array(outWidth * outHeight * nc);
   const valid = new Uint8Array(outWidth * outHeight);
   let wxs = new Float64Array(64);
@@ -103,6 +104,57 @@ function rectifyInterleaved(
       const l1 = Math.min(Hh - 1, Math.floor(y1 + 0.5));
       const nk = k1 - k0 + 1;
       const nl = l1 - l0 + 1;
+      if (nc === 3 && nk <= 3 && nl <= 3) {
+        // the usual box of up to 3 × 3 camera pixels, written out: the same weights and sums in the same
+        // order as the general loops below (so the same bits), without their weight arrays
+        let c0 = Math.min(k0 + 0.5, x1) - Math.max(k0 - 0.5, x0);
+        if (!(c0 > 0)) c0 = 0;
+        let c1 = 0;
+        let c2 = 0;
+        if (nk > 1) {
+          c1 = Math.min(k0 + 1.5, x1) - Math.max(k0 + 0.5, x0);
+          if (!(c1 > 0)) c1 = 0;
+        }
+        if (nk > 2) {
+          c2 = Math.min(k0 + 2.5, x1) - Math.max(k0 + 1.5, x0);
+          if (!(c2 > 0)) c2 = 0;
+        }
+        const sx = c0 + c1 + c2;
+        let sy = 0;
+        let a0 = 0;
+        let a1 = 0;
+        let a2 = 0;
+        for (let l = l0; l <= l1; l++) {
+          let wl = Math.min(l + 0.5, y1) - Math.max(l - 0.5, y0);
+          if (!(wl > 0)) wl = 0;
+          sy += wl;
+          if (wl === 0) continue;
+          const b = (l * W + k0) * 3;
+          let r0 = c0 * data[b];
+          let r1 = c0 * data[b + 1];
+          let r2 = c0 * data[b + 2];
+          if (nk > 1) {
+            r0 += c1 * data[b + 3];
+            r1 += c1 * data[b + 4];
+            r2 += c1 * data[b + 5];
+          }
+          if (nk > 2) {
+            r0 += c2 * data[b + 6];
+            r1 += c2 * data[b + 7];
+            r2 += c2 * data[b + 8];
+          }
+          a0 += wl * r0;
+          a1 += wl * r1;
+          a2 += wl * r2;
+        }
+        const norm = 1 / (sx * sy);
+        const o = (j * outWidth + i) * 3;
+        out[o] = a0 * norm;
+        out[o + 1] = a1 * norm;
+        out[o + 2] = a2 * norm;
+        valid[j * outWidth + i] = 1;
+        continue;
+      }
       if (nk > wxs.length) wxs = new Float64Array(2 * nk);
       if (nl > wys.length) wys = new Float64Array(2 * nl);
       let sx = 0;
@@ -171,7 +223,7 @@ function rectifyInterleaved(
       valid[j * outWidth + i] = 1;
     }
   }
-  return { out, valid, cameraPxPerMapPx: footprintAt(H, 0.5, 0.5, outWidth, outHeight) };
+  return { out, valid, cameraPxPerMapPx: footprintAt(Array.from(H), 0.5, 0.5, outWidth, outHeight) };
 }
 
 /**
