@@ -7,14 +7,12 @@
 import { EvenfieldError } from '../errors.js';
 import type { Blob, MuraResult, PanelMap, Plane } from '../types.js';
 import { fitBackground, type BackgroundFit, type WorkRaster } from './background.js';
-import { buildScaleSet, correlationFactor, findBlobs, scaleGeometry, type ScaleGeometry } from './blobs.js';
+import { buildLevels, detectFeatures, noiseCorrelation } from './detect.js';
 import { classify, round } from './classify.js';
-import type { Ctx, Found } from './context.js';
+import { panelEdges, type Ctx, type Found } from './context.js';
 import { groupHotspots, type Finding } from './hotspots.js';
 import { resolveMuraOptions, type MuraOptions, type MuraOptionsInput } from './options.js';
-import { findProfiles } from './profiles.js';
 import { chamfer, robustSigma, sampleIndices } from './raster.js';
-import { buildPyramid } from './scalespace.js';
 import { semu } from './semu.js';
 import { analyseTiles } from './tiles.js';
 
@@ -37,6 +35,7 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
   const work = workRaster(map, opts.maxWorkPixels);
   const factor = Math.round((work.mmPerPx * map.pxPerMm) * 1e6) / 1e6;
   const black = opts.pattern === 'black';
+  const edges = panelEdges(work.wt, work.w, work.h);
   const N = work.w * work.h;
 
   let mask: Uint8Array | null = null;
@@ -45,7 +44,6 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
   let fit: BackgroundFit | null = null;
   let ctx: Ctx | null = null;
   let C: Float32Array = new Float32Array(N);
-  let geometry: ScaleGeometry | null = null;
   for (let round = 1; round <= opts.background.rounds; round++) {
     fit = fitBackground(work, mask, opts.background, rho * noisePct, opts.tileGrid, black);
     C = contrastOf(work, fit);
@@ -63,15 +61,13 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
       opts,
       black,
       label: new Int32Array(N),
+      edges,
       found: [],
     };
-    const pyr = buildPyramid(Cdet, work.wt, work.w, work.h);
-    geometry ??= scaleGeometry(ctx, pyr);
-    const set = buildScaleSet(ctx, pyr, geometry);
-    rho = correlationFactor(set);
+    const levels = buildLevels(ctx);
+    rho = noiseCorrelation(levels);
     ctx.rho = rho;
-    findProfiles(ctx);
-    findBlobs(ctx, set);
+    detectFeatures(ctx, levels);
     if (round === opts.background.rounds) break;
     const next = featureMask(ctx, opts);
     if (mask ? sameMask(mask, next) : countOf(next) === 0) break;

@@ -20,10 +20,37 @@ export interface Ctx {
   black: boolean;
   /** working-raster labels: 0 = free, k = found[k - 1] */
   label: Int32Array;
+  /** where the panel's data begins and ends on each row (x) and column (y) */
+  edges: PanelEdges;
   found: Found[];
 }
 
 export type Axis = 'horizontal' | 'vertical';
+
+export interface PanelEdges {
+  rowFirst: Int32Array;
+  rowLast: Int32Array;
+  colFirst: Int32Array;
+  colLast: Int32Array;
+}
+
+/** First and last pixel with data on each row and column (-1 where none). */
+export function panelEdges(wt: Float32Array, w: number, h: number): PanelEdges {
+  const rowFirst = new Int32Array(h).fill(-1);
+  const rowLast = new Int32Array(h).fill(-1);
+  const colFirst = new Int32Array(w).fill(-1);
+  const colLast = new Int32Array(w).fill(-1);
+  for (let y = 0; y < h; y++) {
+    for (let x = 0; x < w; x++) {
+      if (wt[y * w + x] <= 0) continue;
+      if (rowFirst[y] < 0) rowFirst[y] = x;
+      rowLast[y] = x;
+      if (colFirst[x] < 0) colFirst[x] = y;
+      colLast[x] = y;
+    }
+  }
+  return { rowFirst, rowLast, colFirst, colLast };
+}
 
 /** A found region with its measured figures, before kinds and reporting. */
 export interface Found {
@@ -93,7 +120,7 @@ export function measureRegion(
   let y1 = -Infinity;
   const touch = { top: 0, bottom: 0, left: 0, right: 0 };
   const edgeSum = { top: 0, bottom: 0, left: 0, right: 0 };
-  const m = 2;
+  const m = Math.max(2, Math.round(2 / ctx.mmPerPx));
   for (let k = 0; k < pixels.length; k++) {
     const i = pixels[k];
     const q = wt[i];
@@ -118,19 +145,20 @@ export function measureRegion(
     if (x > x1) x1 = x;
     if (y < y0) y0 = y;
     if (y > y1) y1 = y;
-    if (x < m) {
+    // near the panel's own edge on this row / column (the map's first and last pixels with data)
+    if (x - ctx.edges.rowFirst[y] < m) {
       touch.left++;
       edgeSum.left += c;
     }
-    if (x >= w - m) {
+    if (ctx.edges.rowLast[y] - x < m) {
       touch.right++;
       edgeSum.right += c;
     }
-    if (y < m) {
+    if (y - ctx.edges.colFirst[x] < m) {
       touch.top++;
       edgeSum.top += c;
     }
-    if (y >= h - m) {
+    if (ctx.edges.colLast[x] - y < m) {
       touch.bottom++;
       edgeSum.bottom += c;
     }

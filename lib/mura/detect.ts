@@ -1,0 +1,602 @@
+// Detection of features across scales on a pyramid of the contrast map.
+//
+//   contrast map C (%) -> pyramid of 2x2 weighted means (level l: 2^l working px per level px)
+//   -> each level lightly smoothed (Gaussian, sigma 1 level px, normalised over the pixels with data)
+//   -> the level's own noise (neighbour differences, robust) -> regions beyond thresholdSigma x noise
+//   and beyond fitSigma x the background model's error -> each region's half-peak region on its level
+//   -> one candidate per feature and level -> the candidates of one feature grouped across levels, and
+//   the feature measured on the finest level that resolves it with a clear margin over the noise.
+//
+// Why a pyramid: a feature of diameter d is seen best where it spans a few level pixels; every level
+// costs a quarter of the one below, so all scales together cost about 4/3 of the finest one, and each
+// level's smoothing kernel stays 7 taps wide whatever the feature size.
+//
+// The half-peak region found on a smoothed level is larger than the feature's own by the blur of the
+// level's box and kernel (sigma^2 = 1 + 1/12 level px^2); with the feature's extent along each axis
+// taken as a Gaussian's, the blur adds in quadrature and is taken out of the area (and, as the flux
+// over the region is nearly kept, the mean contrast goes up by the square root of the same factor).
+// The feature is measured where that correction stays small (the region at least 6 level px wide).
+
+import type { Axis, Ctx, Found } from './context.js';
+import { isDuplicate, measureRegion, register } from './context.js';
+import { robustSigma } from './raster.js';
+
+interface Level {
+  l: number;
+  w: number;
+  h: number;
+  /** working px per level px */
+  f: number;
+  /** mean contrast, % */
+  m: Float32Array;
+  /** data weight (sum of working-pixel weights) */
+  n: Float32Array;
+  /** smoothed contrast (NaN where there is too little data) */
+  s: Float32Array;
+  /** 1-sigma noise of s, % */
+  noiseS: number;
+  /** 1-sigma noise of m for full pixels, % */
+  noiseM: number;
+  /** flood-fill marks and the last mark used */
+  stamp: Int32Array;
+  gen: number;
+}
+
+/** A feature seen on one level: its half-peak region there. */
+interface Candidate {
+  level: Level;
+  sign: 1 | -1;
+  peak: number;
+  peakIdx: number;
+  pedestal: number;
+  region: Int32Array;
+  /** centroid, working px */
+  cx: number;
+  cy: number;
+  /** smaller and larger extent (2 sqrt(4 lambda)), level px */
+  minor: number;
+  major: number;
+  /** peak over the noise of the smoothed level */
+  snr: number;
+  /** the region's bounding box is taller than wide */
+  vertical: boolean;
+}
+
+/** most candidates kept per level and sign (the strongest): a guard against pathological maps */
+const MAX_CANDIDATES = 400;
+
+const SMOOTH_SIGMA = 1;
+const KERNEL = gaussian(SMOOTH_SIGMA);
+/** variance of the level's blur, level px² (box of one level pixel plus the smoothing kernel) */
+const BLUR_VAR = SMOOTH_SIGMA * SMOOTH_SIGMA + 1 / 12;
+/** FWHM² of that blur */
+const BLUR_FWHM2 = 8 * Math.LN2 * BLUR_VAR;
+
+function gaussian(sigma: number): Float32Array {
+  const r = Math.ceil(3 * sigma);
+  const k = new Float32Array(2 * r + 1);
+  let s = 0;
+  for (let i = -r; i <= r; i++) s += k[i + r] = Math.exp(-(i * i) / (2 * sigma * sigma));
+  for (let i = 0; i < k.length; i++) k[i] /= s;
+  return k;
+}
+
+/** Pyramid levels of the contrast map down to about 8 pixels on the short side. */
+export function buildLevels(ctx: Ctx): Level[] {
+  const levels: Level[] = [];
+  let m = new Float32Array(ctx.C);
+  let n = new Float32Array(ctx.wt);
+  let w = ctx.w;
+  let h = ctx.h;
+  let f = 1;
+  const maxFeaturePx = ctx.opts.maxFeatureMm / ctx.mmPerPx;
+  for (let l = 0; ; l++) {
+    for (let i = 0; i < m.length; i++) if (!(n[i] > 0)) m[i] = 0;
+    levels.push(finishLevel({ l, w, h, f, m, n, s: m, noiseS: 0, noiseM: 0, stamp: new Int32Array(w * h), gen: 0 }));
+    // a feature maxFeatureMm across spans 3 px two levels up: no need to go coarser
+    if (Math.min(w, h) < 16 || f > maxFeaturePx / 2) break;
+    const w2 = Math.ceil(w / 2);
+    const h2 = Math.ceil(h / 2);
+    const m2 = new Float32Array(w2 * h2);
+    const n2 = new Float32Array(w2 * h2);
+    for (let y = 0; y < h; y++) {
+      const row = (y >> 1) * w2;
+      for (let x = 0; x < w; x++) {
+        const q = n[y * w + x];
+        if (q <= 0) continue;
+        const j = row + (x >> 1);
+        m2[j] += q * m[y * w + x];
+        n2[j] += q;
+      }
+    }
+    for (let j = 0; j < m2.length; j++) if (n2[j] > 0) m2[j] /= n2[j];
+    m = m2;
+    n = n2;
+    w = w2;
+    h = h2;
+    f *= 2;
+  }
+  // noise can only average down as fast as white noise does: the finer level bounds the coarser
+  for (let k = 1; k < levels.length; k++) {
+    const a = levels[k];
+    const b = levels[k - 1];
+    if (a.noiseM < b.noiseM / 2) {
+      const g = (b.noiseM / 2) / Math.max(a.noiseM, 1e-12);
+      a.noiseM *= g;
+      a.noiseS *= g;
+    }
+  }
+  return levels;
+}
+
+function finishLevel(lv: Level): Level {
+  const { w, h, m, n, f } = lv;
+  const full = f * f;
+  // normalised convolution: smooth m*n and n, divide
+  const num = new Float32Array(w * h);
+  const den = new Float32Array(w * h);
+  const tmpA = new Float32Array(w * h);
+  const tmpB = new Float32Array(w * h);
+  const r = (KERNEL.length - 1) >> 1;
+  for (let y = 0; y < h; y++) {
+    const row = y * w;
+    for (let x = 0; x < w; x++) {
+      let a = 0;
+      let b = 0;
+      const lo = Math.max(0, x - r);
+      const hi = Math.min(w - 1, x + r);
+      for (let xx = lo; xx <= hi; xx++) {
+        const q = n[row + xx];
+        if (q <= 0) continue;
+        const k = KERNEL[xx - x + r];
+        a += k * q * m[row + xx];
+        b += k * q;
+      }
+      tmpA[row + x] = a;
+      tmpB[row + x] = b;
+    }
+  }
+  for (let y = 0; y < h; y++) {
+    const lo = Math.max(0, y - r);
+    const hi = Math.min(h - 1, y + r);
+    for (let x = 0; x < w; x++) {
+      let a = 0;
+      let b = 0;
+      for (let yy = lo; yy <= hi; yy++) {
+        const k = KERNEL[yy - y + r];
+        a += k * tmpA[yy * w + x];
+        b += k * tmpB[yy * w + x];
+      }
+      num[y * w + x] = a;
+      den[y * w + x] = b;
+    }
+  }
+  const s = new Float32Array(w * h);
+  const minDen = 0.35 * full;
+  for (let i = 0; i < s.length; i++) s[i] = den[i] >= minDen ? num[i] / den[i] : NaN;
+
+  // noise of m from full pixels: m_i minus the mean of its four neighbours (white noise: sqrt(1.25) sigma)
+  const diffs: number[] = [];
+  const step = Math.max(1, Math.floor((w * h) / 60000));
+  for (let i = w + 1; i < w * h - w - 1; i += step) {
+    const x = i % w;
+    if (x === 0 || x === w - 1) continue;
+    if (n[i] < 0.999 * full || n[i - 1] < 0.999 * full || n[i + 1] < 0.999 * full || n[i - w] < 0.999 * full || n[i + w] < 0.999 * full) continue;
+    diffs.push(m[i] - 0.25 * (m[i - 1] + m[i + 1] + m[i - w] + m[i + w]));
+  }
+  const noiseM = diffs.length >= 30 ? robustSigma(diffs) / Math.sqrt(1.25) : 0;
+  // white noise through the 2-D kernel: sigma x sum(k^2) (separable: (sum k_i^2)^2 under a square root)
+  let k2 = 0;
+  for (let i = 0; i < KERNEL.length; i++) k2 += KERNEL[i] * KERNEL[i];
+  // the noise that survives the smoothing, measured on the smoothed level itself: s_i minus the mean of
+  // the values D px away on either side (beyond the kernel's reach, so correlated noise at the pixel
+  // scale - JPEG blocks, demosaicing, resampling - is counted); for white noise through the kernel the
+  // difference has variance (1.5 - 2 rho(D) + 0.5 rho(2D)) sigma_s^2, rho(d) = exp(-d^2 / (4 sigma^2))
+  const D = 3;
+  const rho = (d: number): number => Math.exp(-(d * d) / (4 * SMOOTH_SIGMA * SMOOTH_SIGMA));
+  const gain = Math.sqrt(1.5 - 2 * rho(D) + 0.5 * rho(2 * D));
+  const sd: number[] = [];
+  for (let i = 0; i < w * h; i += step) {
+    const x = i % w;
+    const y = (i - x) / w;
+    const v = s[i];
+    if (!Number.isFinite(v)) continue;
+    if (x >= D && x < w - D) {
+      const a = s[i - D];
+      const b = s[i + D];
+      if (Number.isFinite(a) && Number.isFinite(b)) sd.push(v - 0.5 * (a + b));
+    }
+    if (y >= D && y < h - D) {
+      const a = s[i - D * w];
+      const b = s[i + D * w];
+      if (Number.isFinite(a) && Number.isFinite(b)) sd.push(v - 0.5 * (a + b));
+    }
+  }
+  const measured = sd.length >= 30 ? robustSigma(sd) / gain : 0;
+  return { ...lv, s, noiseM, noiseS: Math.max(noiseM * k2, measured) };
+}
+
+/** Find features on all levels and register them (measured at working resolution) in ctx.found. */
+export function detectFeatures(ctx: Ctx, levels: Level[]): void {
+  const o = ctx.opts;
+  const floor = o.fitSigma * ctx.fitErrorPct;
+  const cands: Candidate[] = [];
+  for (const lv of levels) {
+    const thr = Math.max(o.thresholdSigma * lv.noiseS, floor);
+    const before = cands.length;
+    for (const sign of [1, -1] as const) candidatesOn(lv, sign, thr, cands);
+    if (process.env.MURA_DBG) console.log(`level ${lv.l} ${lv.w}x${lv.h} noiseM ${lv.noiseM.toFixed(4)} noiseS ${lv.noiseS.toFixed(4)} thr ${thr.toFixed(3)} candidates ${cands.length - before}`);
+  }
+  // group across levels: the same feature is seen on neighbouring levels at about the same place
+  cands.sort((a, b) => a.level.l - b.level.l || b.snr - a.snr);
+  const groups: Candidate[][] = [];
+  for (const c of cands) {
+    let home: Candidate[] | null = null;
+    for (const g of groups) {
+      if (g.some((d) => sameFeature(c, d))) {
+        home = g;
+        break;
+      }
+    }
+    if (home) home.push(c);
+    else groups.push([c]);
+  }
+  const chosen = groups.map(pick);
+  if (process.env.MURA_DBG) for (const g of groups) console.log('group', g.map((c) => `L${c.level.l} pk${c.peak.toFixed(2)} ped${c.pedestal.toFixed(2)} at ${peakOf(c).map((v) => (v * ctx.mmPerPx).toFixed(0))} minor ${c.minor.toFixed(1)} snr ${c.snr.toFixed(0)}`).join(' ; '));
+  // strongest first, so that a weaker re-detection of the same pixels is the one dropped
+  chosen.sort((a, b) => Math.abs(b.peak - b.pedestal) * Math.sqrt(b.region.length * b.level.f ** 2) - Math.abs(a.peak - a.pedestal) * Math.sqrt(a.region.length * a.level.f ** 2));
+  for (const c of chosen) {
+    const f = toFound(ctx, c);
+    if (!f) continue;
+    if (Math.abs(f.contrastPct) < floor) continue;
+    if (f.zNoise < o.thresholdSigma) continue;
+    if (isDuplicate(ctx, f)) continue;
+    register(ctx, f);
+  }
+}
+
+/** How much more noise survives averaging than white noise would, from the levels' own noise. */
+export function noiseCorrelation(levels: Level[]): number {
+  const base = levels[0].noiseM;
+  if (!(base > 0)) return 1;
+  let rho = 1;
+  for (const lv of levels.slice(1, 4)) if (lv.noiseM > 0) rho = Math.max(rho, (lv.noiseM * lv.f) / base);
+  return rho;
+}
+
+function candidatesOn(lv: Level, sign: 1 | -1, thr: number, out: Candidate[]): void {
+  const { w, h, s } = lv;
+  const seen = new Uint8Array(w * h);
+  const stack: number[] = [];
+  const comp: number[] = [];
+  const peaks: number[] = [];
+  for (let i0 = 0; i0 < w * h; i0++) {
+    if (seen[i0] || !(sign * s[i0] > thr)) continue;
+    // connected component above threshold
+    comp.length = 0;
+    stack.push(i0);
+    seen[i0] = 1;
+    while (stack.length) {
+      const i = stack.pop() as number;
+      comp.push(i);
+      const x = i % w;
+      if (x > 0) push(i - 1);
+      if (x < w - 1) push(i + 1);
+      if (i >= w) push(i - w);
+      if (i < w * h - w) push(i + w);
+    }
+    if (comp.length < 2) continue;
+    // several peaks in one component (features touching above the threshold): each peak standing
+    // clearly above its saddle gets its own half-peak region
+    peaks.push(...peaksOf(lv, comp, sign, thr));
+  }
+  peaks.sort((a, b) => sign * s[b] - sign * s[a]);
+  for (const p of peaks.slice(0, MAX_CANDIDATES)) {
+    const c = halfPeak(lv, p, sign, thr);
+    if (c) out.push(c);
+  }
+  function push(j: number): void {
+    if (!seen[j] && sign * s[j] > thr) {
+      seen[j] = 1;
+      stack.push(j);
+    }
+  }
+}
+
+/**
+ * The peaks of a component that stand on their own: pixels taken from the highest down and joined
+ * into regions (union-find); where two regions meet, the lower peak is kept as a feature of its own
+ * when the meeting level (the saddle) is at most half of its height, i.e. its half-peak region does not
+ * reach the higher one. The highest peak is always kept.
+ */
+function peaksOf(lv: Level, comp: number[], sign: 1 | -1, thr: number): number[] {
+  const { w, s } = lv;
+  const order = comp.slice().sort((a, b) => sign * s[b] - sign * s[a]);
+  const parent = new Map<number, number>();
+  const peakOf = new Map<number, number>();
+  const find = (i: number): number => {
+    let r = i;
+    while (parent.get(r) !== r) r = parent.get(r) as number;
+    let j = i;
+    while (j !== r) {
+      const nx = parent.get(j) as number;
+      parent.set(j, r);
+      j = nx;
+    }
+    return r;
+  };
+  const kept: number[] = [order[0]];
+  for (const i of order) {
+    const v = sign * s[i];
+    parent.set(i, i);
+    peakOf.set(i, i);
+    const x = i % w;
+    const nbs = [x > 0 ? i - 1 : -1, x < w - 1 ? i + 1 : -1, i - w, i + w];
+    for (const j of nbs) {
+      if (j < 0 || !parent.has(j)) continue;
+      const a = find(i);
+      const b = find(j);
+      if (a === b) continue;
+      const pa = peakOf.get(a) as number;
+      const pb = peakOf.get(b) as number;
+      const [hi, lo] = sign * s[pa] >= sign * s[pb] ? [pa, pb] : [pb, pa];
+      const loV = sign * s[lo];
+      if (lo !== i && v <= 0.5 * loV && loV >= 2 * thr && kept.length < 50) kept.push(lo);
+      parent.set(a, b);
+      peakOf.set(b, hi);
+    }
+  }
+  return kept;
+}
+
+function topOf(lv: Level, region: Int32Array, peakIdx: number, sign: 1 | -1): boolean {
+  const top = sign * lv.s[peakIdx];
+  for (let k = 0; k < region.length; k++) if (sign * lv.s[region[k]] > top) return false;
+  return true;
+}
+
+/** Pixels 4-connected to start where sign * s >= level; marks them with a fresh stamp on the level. */
+function flood(lv: Level, start: number, sign: 1 | -1, level: number): { region: Int32Array; gen: number } {
+  const { w, h, s, stamp } = lv;
+  const gen = ++lv.gen;
+  const out: number[] = [start];
+  stamp[start] = gen;
+  for (let k = 0; k < out.length; k++) {
+    const i = out[k];
+    const x = i % w;
+    if (x > 0) visit(i - 1);
+    if (x < w - 1) visit(i + 1);
+    if (i >= w) visit(i - w);
+    if (i < w * h - w) visit(i + w);
+  }
+  return { region: Int32Array.from(out), gen };
+  function visit(j: number): void {
+    if (stamp[j] === gen || !(sign * s[j] >= level)) return;
+    stamp[j] = gen;
+    out.push(j);
+  }
+}
+
+/** The half-peak region around a peak on a level, against the local surround. */
+function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number): Candidate | null {
+  const { w, s } = lv;
+  const peak = s[peakIdx];
+  // First against the global background. A feature sitting on a plateau of the same sign (a spot on a
+  // cloud) is measured against the plateau: the ring around the region is well above the background,
+  // and so is a ring twice as far out (a feature's own tail, an exponential glow say, falls away
+  // between the two rings instead). A peak that does not stand out of its surround by the threshold is
+  // part of something larger, found on a coarser level.
+  let fl = flood(lv, peakIdx, sign, 0.5 * sign * peak);
+  // a peak that is not the top of its own half-peak region is a noise bump on the flank of something
+  // larger (a glow's tail, a cloud's shoulder): that something is found from its own top
+  if (!topOf(lv, fl.region, peakIdx, sign)) return null;
+  let pedestal = 0;
+  const near = surround(lv, fl.region, fl.gen, 1.5, 2.5);
+  if (near !== null && sign * near > 0) {
+    if (sign * (peak - near) < thr) return null;
+    const far = surround(lv, fl.region, fl.gen, 3, 4);
+    if (sign * near > 3 * lv.noiseS && far !== null && sign * far >= 0.6 * sign * near) {
+      pedestal = near;
+      fl = flood(lv, peakIdx, sign, sign * (pedestal + 0.5 * (peak - pedestal)));
+    }
+  }
+  const region = fl.region.sort();
+  let sx = 0;
+  let sy = 0;
+  let sxx = 0;
+  let syy = 0;
+  let sxy = 0;
+  let bx0 = Infinity;
+  let bx1 = -Infinity;
+  let by0 = Infinity;
+  let by1 = -Infinity;
+  for (const i of region) {
+    const x = i % w;
+    const y = (i - x) / w;
+    if (x < bx0) bx0 = x;
+    if (x > bx1) bx1 = x;
+    if (y < by0) by0 = y;
+    if (y > by1) by1 = y;
+    sx += x;
+    sy += y;
+    sxx += x * x;
+    syy += y * y;
+    sxy += x * y;
+  }
+  const n = region.length;
+  const mx = sx / n;
+  const my = sy / n;
+  const vxx = sxx / n - mx * mx + 1 / 12;
+  const vyy = syy / n - my * my + 1 / 12;
+  const vxy = sxy / n - mx * my;
+  const tr = vxx + vyy;
+  const disc = Math.sqrt(Math.max(0, (tr * tr) / 4 - (vxx * vyy - vxy * vxy)));
+  const major = 4 * Math.sqrt(tr / 2 + disc);
+  const minor = 4 * Math.sqrt(Math.max(tr / 2 - disc, 1 / 12));
+  const f = lv.f;
+  return {
+    level: lv,
+    sign,
+    peak,
+    peakIdx,
+    pedestal,
+    region,
+    cx: (mx + 0.5) * f - 0.5,
+    cy: (my + 0.5) * f - 0.5,
+    minor,
+    major,
+    snr: (sign * (peak - pedestal)) / Math.max(lv.noiseS, 1e-9),
+    vertical: by1 - by0 > bx1 - bx0,
+  };
+}
+
+/**
+ * Median of the smoothed level over a ring around a region (from inner to outer times its equivalent
+ * radius from its centre, the region itself left out), or null when the ring has too little data.
+ */
+function surround(lv: Level, region: Int32Array, gen: number, inner: number, outer: number): number | null {
+  const { w, h, s, stamp } = lv;
+  let sx = 0;
+  let sy = 0;
+  for (const i of region) {
+    sx += i % w;
+    sy += Math.floor(i / w);
+  }
+  const n = region.length;
+  const cx = sx / n;
+  const cy = sy / n;
+  const r = Math.max(1.5, Math.sqrt(n / Math.PI));
+  const r0 = inner * r;
+  const r1 = outer * r + 1;
+  const vals: number[] = [];
+  const x0 = Math.max(0, Math.floor(cx - r1));
+  const x1 = Math.min(w - 1, Math.ceil(cx + r1));
+  const y0 = Math.max(0, Math.floor(cy - r1));
+  const y1 = Math.min(h - 1, Math.ceil(cy + r1));
+  // a few thousand samples are plenty for a median: stride through large rings
+  const stride = Math.max(1, Math.floor(Math.sqrt(((x1 - x0 + 1) * (y1 - y0 + 1)) / 4000)));
+  const a0 = r0 * r0;
+  const a1 = r1 * r1;
+  for (let y = y0; y <= y1; y += stride) {
+    for (let x = x0; x <= x1; x += stride) {
+      const d2 = (x - cx) * (x - cx) + (y - cy) * (y - cy);
+      if (d2 < a0 || d2 > a1) continue;
+      const v = s[y * w + x];
+      if (Number.isFinite(v) && stamp[y * w + x] !== gen) vals.push(v);
+    }
+  }
+  if (vals.length < 8) return null;
+  const sorted = Float64Array.from(vals).sort();
+  return sorted[sorted.length >> 1];
+}
+
+/**
+ * Same feature seen on two levels: same sign, and either the finer one's peak lies in the coarser
+ * one's half-peak region without a plateau of its own under it (a peaked feature - glow - whose
+ * half-peak region grows with the blur of coarser levels), or each peak lies in the other's region, or
+ * each centre lies within the other's extent with sizes alike.
+ */
+function sameFeature(a: Candidate, b: Candidate): boolean {
+  if (a.sign !== b.sign) return false;
+  // the finer one's peak in the coarser one's region, not on a plateau of its own: it is the top of
+  // that coarser structure
+  const [fine, coarse] = a.level.l <= b.level.l ? [a, b] : [b, a];
+  if (fine.level.l < coarse.level.l && fine.pedestal === 0 && contains(coarse, peakOf(fine))) return true;
+  if (Math.abs(a.level.l - b.level.l) > 2) return false;
+  if (contains(a, peakOf(b)) && contains(b, peakOf(a))) return true;
+  const sizeA = a.minor * a.level.f;
+  const sizeB = b.minor * b.level.f;
+  const ratio = Math.max(sizeA, sizeB) / Math.max(Math.min(sizeA, sizeB), 1e-9);
+  if (ratio > 3) return false;
+  const r = 0.5 * Math.min(sizeA, sizeB);
+  // elongated features: distance across their axis only
+  const d = Math.hypot(a.cx - b.cx, a.cy - b.cy);
+  return d <= Math.max(r, 1.5 * Math.max(a.level.f, b.level.f)) || (a.major > 3 * a.minor && b.major > 3 * b.minor && crossDistance(a, b) <= r);
+}
+
+/** Peak position of a candidate, working px. */
+function peakOf(c: Candidate): [number, number] {
+  const x = c.peakIdx % c.level.w;
+  const y = (c.peakIdx - x) / c.level.w;
+  return [(x + 0.5) * c.level.f - 0.5, (y + 0.5) * c.level.f - 0.5];
+}
+
+/** Is a working-px position in (or next to) the candidate's region? */
+function contains(c: Candidate, [wx, wy]: [number, number]): boolean {
+  const { w, h, f } = c.level;
+  const lx = Math.floor((wx + 0.5) / f);
+  const ly = Math.floor((wy + 0.5) / f);
+  for (let dy = -1; dy <= 1; dy++) {
+    for (let dx = -1; dx <= 1; dx++) {
+      const x = lx + dx;
+      const y = ly + dy;
+      if (x < 0 || y < 0 || x >= w || y >= h) continue;
+      if (sortedHas(c.region, y * w + x)) return true;
+    }
+  }
+  return false;
+}
+
+function sortedHas(a: Int32Array, v: number): boolean {
+  let lo = 0;
+  let hi = a.length - 1;
+  while (lo <= hi) {
+    const mid = (lo + hi) >> 1;
+    if (a[mid] === v) return true;
+    if (a[mid] < v) lo = mid + 1;
+    else hi = mid - 1;
+  }
+  return false;
+}
+
+function crossDistance(a: Candidate, b: Candidate): number {
+  if (a.vertical !== b.vertical) return Infinity;
+  return a.vertical ? Math.abs(a.cx - b.cx) : Math.abs(a.cy - b.cy);
+}
+
+/**
+ * The level a feature is measured on: the finest one where its half-peak region is at least 6 level
+ * px across its narrow way and its peak stands 10 sigmas over that level's noise; failing that, the one
+ * with the best margin over the noise among those at least 3 px across (or simply the best margin).
+ */
+function pick(g: Candidate[]): Candidate {
+  const byLevel = [...g].sort((a, b) => a.level.l - b.level.l);
+  for (const c of byLevel) if (c.minor >= 6 && c.snr >= 10) return c;
+  const wide = byLevel.filter((c) => c.minor >= 3);
+  const pool = wide.length ? wide : byLevel;
+  return pool.reduce((a, b) => (b.snr > a.snr ? b : a));
+}
+
+function toFound(ctx: Ctx, c: Candidate): Found | null {
+  const lv = c.level;
+  const f = lv.f;
+  const { w: W, h: H } = ctx;
+  const px: number[] = [];
+  for (const i of c.region) {
+    const lx = i % lv.w;
+    const ly = (i - lx) / lv.w;
+    const x0 = lx * f;
+    const y0 = ly * f;
+    const x1 = Math.min(W, x0 + f);
+    const y1 = Math.min(H, y0 + f);
+    for (let y = y0; y < y1; y++) for (let x = x0; x < x1; x++) if (ctx.wt[y * W + x] > 0) px.push(y * W + x);
+  }
+  if (px.length === 0) return null;
+  const pixels = Int32Array.from(px);
+  const pkx = c.peakIdx % lv.w;
+  const pky = (c.peakIdx - pkx) / lv.w;
+  const axis: Axis | null = null;
+  const found = measureRegion(ctx, pixels, c.pedestal, c.peak, [(pkx + 0.5) * f - 0.5, (pky + 0.5) * f - 0.5], c.sign, 'blob', axis);
+  if (!found) return null;
+  // take the level's blur out of the extent (quadrature, per axis, as for a Gaussian profile)
+  const a2 = c.major * c.major;
+  const b2 = c.minor * c.minor;
+  const ca = Math.sqrt(Math.max(a2 - BLUR_FWHM2, 0.25 * a2) / a2);
+  const cb = Math.sqrt(Math.max(b2 - BLUR_FWHM2, 0.25 * b2) / b2);
+  const k = ca * cb;
+  found.areaMm2 *= k;
+  found.contrastPct /= Math.sqrt(k);
+  found.lengthMm *= ca;
+  found.widthMm *= cb;
+  return found;
+}
