@@ -98,10 +98,11 @@ function rectifyInterleaved(
       const y0 = y - wy / 2;
       const y1 = y + wy / 2;
       if (!(x0 >= xMin && x1 <= xMax && y0 >= yMin && y1 <= yMax)) continue;
-      const k0 = Math.max(0, Math.floor(x0 + 0.5));
-      const k1 = Math.min(W - 1, Math.floor(x1 + 0.5));
-      const l0 = Math.max(0, Math.floor(y0 + 0.5));
-      const l1 = Math.min(Hh - 1, Math.floor(y1 + 0.5));
+      // x0 + 0.5 and y0 + 0.5 are ≥ 0 here and far below 2^31, so truncation is the floor
+      const k0 = (x0 + 0.5) | 0;
+      const k1 = Math.min(W - 1, (x1 + 0.5) | 0);
+      const l0 = (y0 + 0.5) | 0;
+      const l1 = Math.min(Hh - 1, (y1 + 0.5) | 0);
       const nk = k1 - k0 + 1;
       const nl = l1 - l0 + 1;
       if (nc === 3 && nk <= 3 && nl <= 3) {

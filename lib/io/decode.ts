@@ -19,8 +19,9 @@
 //   99.9th percentile of linear Y are exact up to 2^18 decoded pixels and taken on a regular lattice of
 //   them beyond (exposureQuantiles).
 // - Speed: the file's bytes are hashed and its EXIF read while sharp decodes in the thread pool; codes
-//   become linear light, block means, luminance and the clip/dark counts in one pass without allocation
-//   per pixel (reduceLinearBox).
+//   become linear light, block means, luminance and the clip/dark counts (and, when asked, the clip mask
+//   of the reduced image) in one pass without allocation per pixel (reduceLinearBox); the 8-bit 2×2
+//   path looks up the sum of each pair of codes in one table.
 
 import sharp from 'sharp';
 import type { Metadata, OutputInfo, Sharp } from 'sharp';
