@@ -633,25 +633,43 @@ export function fft(re: Float64Array, im: Float64Array): void {
 
 /** In-place 2-D FFT of an N×N complex array (row-major). */
 function fft2InPlace(re: Float64Array, im: Float64Array, N: number): void {
-  const rr = new Float64Array(N);
-  const ri = new Float64Array(N);
-  for (let y = 0; y < N; y++) {
-    const a = y * N;
-    rr.set(re.subarray(a, a + N));
-    ri.set(im.subarray(a, a + N));
-    fft(rr, ri);
-    re.set(rr, a);
-    im.set(ri, a);
-  }
-  for (let x = 0; x < N; x++) {
-    for (let y = 0, k = x; y < N; y++, k += N) {
-      rr[y] = re[k];
-      ri[y] = im[k];
+  for (let y = 0; y < N; y++) fft(re.subarray(y * N, y * N + N), im.subarray(y * N, y * N + N));
+  // Columns: the same radix-2 steps as fft, each applied to whole rows at once (contiguous memory
+  // instead of gathering every column), so every column gets exactly fft's arithmetic.
+  const tmp = new Float64Array(N);
+  for (let i = 1, j = 0; i < N; i++) {
+    let bit = N >> 1;
+    for (; j & bit; bit >>= 1) j ^= bit;
+    j ^= bit;
+    if (i < j) {
+      for (const p of [re, im]) {
+        tmp.set(p.subarray(i * N, i * N + N));
+        p.copyWithin(i * N, j * N, j * N + N);
+        p.set(tmp, j * N);
+      }
     }
-    fft(rr, ri);
-    for (let y = 0, k = x; y < N; y++, k += N) {
-      re[k] = rr[y];
-      im[k] = ri[y];
+  }
+  const { cos, sin } = twiddles(N);
+  for (let len = 2; len <= N; len <<= 1) {
+    const half = len >> 1;
+    const stride = N / len;
+    for (let i = 0; i < N; i += len) {
+      for (let k = 0, t = 0; k < half; k++, t += stride) {
+        const cr = cos[t];
+        const ci = sin[t];
+        const a = (i + k) * N;
+        const b = a + half * N;
+        for (let x = 0; x < N; x++) {
+          const br = re[b + x];
+          const bi = im[b + x];
+          const xr = br * cr - bi * ci;
+          const xi = br * ci + bi * cr;
+          re[b + x] = re[a + x] - xr;
+          im[b + x] = im[a + x] - xi;
+          re[a + x] += xr;
+          im[a + x] += xi;
+        }
+      }
     }
   }
 }
