@@ -239,13 +239,10 @@ function filledComponent(
     const k = stack[--sp];
     const x = k % bw;
     const y = (k / bw) | 0;
-    const nb = [
-      [x - 1, y],
-      [x + 1, y],
-      [x, y - 1],
-      [x, y + 1],
-    ];
-    for (const [xx, yy] of nb) {
+    // the 4 neighbours, in the order left, right, up, down
+    for (let n = 0; n < 4; n++) {
+      const xx = n === 0 ? x - 1 : n === 1 ? x + 1 : x;
+      const yy = n === 2 ? y - 1 : n === 3 ? y + 1 : y;
       if (xx < 0 || yy < 0 || xx >= bw || yy >= bh) continue;
       const kk = yy * bw + xx;
       if (outside[kk] || inComp(xx, yy)) continue;
