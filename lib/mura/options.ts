@@ -48,6 +48,12 @@ export interface MuraOptions {
   hotspotMinCount: number;
   /** largest working raster, pixels; larger maps are box-averaged down (default 4e6) */
   maxWorkPixels: number;
+  /** side on the panel (mm) of one 8 x 8 pixel block of the JPEG the map was made from, or null
+   *  (default; not a JPEG). JPEG rounds each block's mean on its own, and on smooth, quiet fields a
+   *  block can come out a code value or two off its neighbours: a few % of contrast in a square one
+   *  block wide. A finding must reach across two blocks along its longer dimension to be told from
+   *  that. */
+  jpegBlockMm: number | null;
 }
 
 export type MuraOptionsInput = Partial<Omit<MuraOptions, 'background' | 'semuConstants'>> & {
@@ -82,6 +88,7 @@ export function resolveMuraOptions(input: MuraOptionsInput): MuraOptions {
     bandMinSpan: input.bandMinSpan ?? 0.6,
     hotspotMinCount: input.hotspotMinCount ?? 6,
     maxWorkPixels: input.maxWorkPixels ?? 4e6,
+    jpegBlockMm: input.jpegBlockMm ?? null,
   };
   validate(o);
   return o;
@@ -113,6 +120,7 @@ function validate(o: MuraOptions): void {
   if (!(o.bandMinSpan > 0 && o.bandMinSpan <= 1)) bad(`bandMinSpan must be in (0, 1], got ${o.bandMinSpan}`);
   if (!(Number.isInteger(o.hotspotMinCount) && o.hotspotMinCount >= 3)) bad('hotspotMinCount must be an integer >= 3');
   if (!(o.maxWorkPixels >= 10_000)) bad('maxWorkPixels must be at least 10000');
+  if (o.jpegBlockMm !== null) positive('jpegBlockMm', o.jpegBlockMm);
   const b = o.background;
   if (!(Number.isInteger(b.order) && b.order >= 0 && b.order <= 6)) bad(`background.order must be an integer 0..6, got ${b.order}`);
   if (b.cellMm !== null) positive('background.cellMm', b.cellMm);

@@ -284,7 +284,13 @@ async function measureInner(
     // and the edge transition is a few camera pixels wide (optics, demosaicing, JPEG ringing): keep
     // that border out of the mura analysis, or it reads as dark lines along every edge.
     const border = Math.ceil(EDGE_TRANSITION_CAMERA_PX / Math.max(cameraPxPerMapPx, 1e-3)) + 1;
-    const mura = analyseMura({ ...map, valid: withoutBorder(map.valid, map.width, map.height, border) }, { ...opts.muraOptions, pattern: opts.pattern });
+    // JPEG rounds each 8 x 8 block on its own: tell the analysis how large a block is on the panel
+    const camPerMap = result.geometry?.cameraPxPerMapPx ?? null;
+    const jpegBlockMm = result.decode?.format === 'jpeg' && camPerMap ? 8 / (camPerMap * map.pxPerMm) : null;
+    const mura = analyseMura(
+      { ...map, valid: withoutBorder(map.valid, map.width, map.height, border) },
+      { jpegBlockMm, ...opts.muraOptions, pattern: opts.pattern },
+    );
     const { contrast, background, ...rest } = mura;
     void background;
     result.mura = rest;

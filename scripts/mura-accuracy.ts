@@ -1,0 +1,284 @@
+// Accuracy study of the full-field mura analysis on generated photos, through the whole pipeline
+// (decode, cos⁴ falloff correction, rectification, mura). The acceptance figures of the mura issue:
+//
+//  - gray fields with 1-4 features each (spots 5-40 mm, clouds 50-200 mm, bands 5-60 mm across at half
+//    peak, contrast 0.5-20 % log-uniform, either polarity, random poses): recall >= 95 % for features
+//    of SEMU >= 1.5; kind right for >= 90 % of the found ones; mean contrast within +-25 % and area
+//    within +-30 % of the truth for features of SEMU >= 2;
+//  - clean gray fields (smooth variation only): at most 0.2 false findings of SEMU >= 1 per photo;
+//  - black fields with edge or corner glow: each glow found, as glow, on its edge or corner.
+//
+// Truth is the generator's (per feature part in isolation, half-peak region of C = 100 (L - B) / B).
+// The generator's cloud size is an envelope; its half-peak region is about 0.5-0.65 of it, so each
+// cloud's envelope is scaled until its half-peak region has the drawn diameter (equal-area disc).
+// Corners are the generator's true ones, so that a geometry miss does not count as a mura miss.
+//
+//   npx tsc -p tsconfig.build.json && node dist/scripts/mura-accuracy.js [gray] [clean] [black] [width] [height] [--big] [--render]
+//
+// Rendered photos and their truth are kept under .cache/ and reused (--render draws them again).
+
+import { existsSync, mkdirSync, readFileSync, writeFileSync } from 'node:fs';
+import { join } from 'node:path';
+import { renderPhoto } from '../fixtures/generator/index.js';
+import type { FeatureTruth, PhotoSpec, PhotoTruth } from '../fixtures/generator/index.js';
+import { blackSpec, graySpec } from './mura-scenes.js';
+import { DEFAULT_MEASURE_OPTIONS, DEFAULT_QUALITY_LIMITS, measurePhoto } from '../lib/pipeline/index.js';
+import type { Blob, MuraResult } from '../lib/types.js';
+
+const args = process.argv.slice(2).filter((a) => !a.startsWith('--'));
+const nGray = Number(args[0] ?? 60);
+const nClean = Number(args[1] ?? 30);
+const nBlack = Number(args[2] ?? 20);
+const width = Number(args[3] ?? 2400);
+const height = Number(args[4] ?? 1600);
+const big = process.argv.includes('--big');
+const cloudSizes = process.argv.includes('--nominal') ? 'nominal' : 'half-peak';
+const dir = join('.cache', process.argv.includes('--nominal') ? 'mura-accuracy-nominal' : 'mura-accuracy');
+mkdirSync(dir, { recursive: true });
+
+interface Measured {
+  truth: FeatureTruth[];
+  mura: MuraResult | null;
+  error: string | null;
+  ms: number;
+  rssMb: number;
+}
+
+async function measure(name: string, spec: PhotoSpec): Promise<Measured> {
+  // rendered photos are kept (with their truth) and reused: the scenes are deterministic from the seed
+  const cached = join(dir, `${name}.jpg`);
+  const cachedTruth = join(dir, `${name}.truth.json`);
+  let file: string;
+  let truth: PhotoTruth;
+  if (!process.argv.includes('--render') && existsSync(cached) && existsSync(cachedTruth)) {
+    file = cached;
+    truth = JSON.parse(readFileSync(cachedTruth, 'utf8')) as PhotoTruth;
+  } else {
+    const r = await renderPhoto(spec);
+    file = join(dir, `${name}.${r.ext}`);
+    truth = r.truth;
+    writeFileSync(file, r.buffer);
+    writeFileSync(join(dir, `${name}.truth.json`), JSON.stringify(truth));
+  }
+  const t0 = Date.now();
+  let peakRss = process.memoryUsage().rss;
+  const timer = setInterval(() => {
+    peakRss = Math.max(peakRss, process.memoryUsage().rss);
+  }, 50);
+  const m = await measurePhoto(file, {
+    ...DEFAULT_MEASURE_OPTIONS,
+    pattern: spec.panel.pattern,
+    patternLevel: spec.panel.pattern === 'gray' ? 50 : null,
+    panelSizeMm: { width: spec.panel.widthMm, height: spec.panel.heightMm },
+    grid: { layout: 9, placement: 'cells', insetFraction: 0.1, spotRadiusPct: 2 },
+    corners: truth.corners,
+    falloff: { kind: 'cos4', focal35mm: spec.camera.focal35 },
+    // the generator renders no angular emission unless asked; the viewing-angle gate is about that
+    quality: { ...DEFAULT_QUALITY_LIMITS, maxViewAngleDeg: 90, warnViewAngleDeg: 90 },
+    mura: true,
+    muraOptions: process.env.MURA_OPTS ? JSON.parse(process.env.MURA_OPTS) : {},
+    artifacts: false,
+  });
+  clearInterval(timer);
+  peakRss = Math.max(peakRss, process.memoryUsage().rss);
+  return {
+    truth: truth.features.filter((f) => f.visible),
+    mura: m.result.mura,
+    error: m.result.status === 'ok' ? null : m.result.error,
+    ms: Date.now() - t0,
+    rssMb: peakRss / 1e6,
+  };
+}
+
+/** Does a reported blob stand for this truth part? Same polarity and place. */
+function matches(b: Blob, t: FeatureTruth, W: number, H: number): boolean {
+  if (b.polarity !== t.polarity) return false;
+  if (t.kind === 'band' || t.kind === 'line') {
+    const vertical = t.detail.axis === 'vertical';
+    const across = vertical ? Math.abs(b.xMm - t.xMm) : Math.abs(b.yMm - t.yMm);
+    const w = Number(t.detail.widthMm);
+    // the blob must lie on the band and run along it
+    const along = vertical ? (b.bbox[3] - b.bbox[1]) * H : (b.bbox[2] - b.bbox[0]) * W;
+    return across <= Math.max(5, w / 2) && along >= 0.3 * (vertical ? H : W);
+  }
+  const r = Math.sqrt(t.areaMm2 / Math.PI);
+  return Math.hypot(b.xMm - t.xMm, b.yMm - t.yMm) <= Math.max(10, 0.5 * r);
+}
+
+interface Pair {
+  t: FeatureTruth;
+  b: Blob | null;
+}
+
+function pairUp(truth: FeatureTruth[], blobs: Blob[], W: number, H: number): { pairs: Pair[]; extra: Blob[] } {
+  const used = new Set<Blob>();
+  const pairs: Pair[] = [];
+  for (const t of [...truth].sort((a, b) => b.semu - a.semu)) {
+    let best: Blob | null = null;
+    for (const b of blobs) {
+      if (used.has(b) || !matches(b, t, W, H)) continue;
+      if (!best || b.semu > best.semu) best = b;
+    }
+    if (best) used.add(best);
+    pairs.push({ t, b: best });
+  }
+  return { pairs, extra: blobs.filter((b) => !used.has(b)) };
+}
+
+const pct = (a: number, b: number): string => (b > 0 ? `${((100 * a) / b).toFixed(1)} % (${a}/${b})` : 'n/a');
+const quant = (xs: number[], q: number): number => {
+  const s = [...xs].sort((a, b) => a - b);
+  return s.length ? s[Math.min(s.length - 1, Math.floor(q * s.length))] : NaN;
+};
+
+async function main(): Promise<void> {
+  const summary: Record<string, unknown> = {};
+  const lines: string[] = [];
+  const log = (s: string): void => {
+    lines.push(s);
+    console.log(s);
+  };
+
+  // 1. gray fields with features
+  let recallN = 0;
+  let recallHit = 0;
+  let kindN = 0;
+  let kindOk = 0;
+  let accN = 0;
+  let contrastOk = 0;
+  let areaOk = 0;
+  const cErr: number[] = [];
+  const aErr: number[] = [];
+  let falseSemu1 = 0;
+  const misses: string[] = [];
+  const wrongKinds: string[] = [];
+  const badAcc: string[] = [];
+  const errors: string[] = [];
+  const ms: number[] = [];
+  for (let k = 0; k < nGray; k++) {
+    const seed = 1000 + k;
+    const spec = graySpec(seed, false, width, height, cloudSizes);
+    const r = await measure(`gray-${seed}`, spec);
+    ms.push(r.ms);
+    if (!r.mura) {
+      errors.push(`gray ${seed}: ${r.error}`);
+      continue;
+    }
+    const { pairs, extra } = pairUp(r.truth, r.mura.blobs, spec.panel.widthMm, spec.panel.heightMm);
+    falseSemu1 += extra.filter((b) => b.semu >= 1).length;
+    for (const { t, b } of pairs) {
+      const tag = `seed ${seed} ${t.kind} ${t.polarity} ${t.kind === 'band' ? `w ${Number(t.detail.widthMm).toFixed(0)} mm` : `d ${(2 * Math.sqrt(t.areaMm2 / Math.PI)).toFixed(0)} mm`} C ${t.contrastPct.toFixed(2)} % SEMU ${t.semu.toFixed(2)}`;
+      if (t.semu >= 1.5) {
+        recallN++;
+        if (b) recallHit++;
+        else misses.push(tag);
+      }
+      if (b) {
+        kindN++;
+        if (b.kind === t.kind) kindOk++;
+        else wrongKinds.push(`${tag} -> ${b.kind} (${JSON.stringify(b.detail)})`);
+        if (t.semu >= 2) {
+          accN++;
+          const ce = (b.contrastPct - t.contrastPct) / Math.abs(t.contrastPct);
+          const ae = (b.areaMm2 - t.areaMm2) / t.areaMm2;
+          cErr.push(ce);
+          aErr.push(ae);
+          if (Math.abs(ce) <= 0.25) contrastOk++;
+          if (Math.abs(ae) <= 0.3) areaOk++;
+          if (Math.abs(ce) > 0.25 || Math.abs(ae) > 0.3) {
+            badAcc.push(`${tag}: measured C ${b.contrastPct.toFixed(2)} (${(100 * ce).toFixed(0)} %), area ${b.areaMm2.toFixed(0)} vs ${t.areaMm2.toFixed(0)} (${(100 * ae).toFixed(0)} %)`);
+          }
+        }
+      }
+    }
+    process.stderr.write(`gray ${k + 1}/${nGray}\r`);
+  }
+  log(`gray fields: ${nGray} photos, ${width}x${height}, cloud sizes ${cloudSizes}, median ${quant(ms, 0.5)} ms per photo (pipeline)`);
+  log(`  recall, SEMU >= 1.5:       ${pct(recallHit, recallN)}   (acceptance >= 95 %)`);
+  log(`  kind right, found:         ${pct(kindOk, kindN)}   (acceptance >= 90 %)`);
+  log(`  contrast within 25 %, SEMU >= 2: ${pct(contrastOk, accN)}; error median ${(100 * quant(cErr, 0.5)).toFixed(1)} %, 5-95 % ${(100 * quant(cErr, 0.05)).toFixed(1)} .. ${(100 * quant(cErr, 0.95)).toFixed(1)} %`);
+  log(`  area within 30 %, SEMU >= 2:     ${pct(areaOk, accN)}; error median ${(100 * quant(aErr, 0.5)).toFixed(1)} %, 5-95 % ${(100 * quant(aErr, 0.05)).toFixed(1)} .. ${(100 * quant(aErr, 0.95)).toFixed(1)} %`);
+  log(`  unmatched findings of SEMU >= 1: ${falseSemu1} (${(falseSemu1 / Math.max(1, nGray)).toFixed(2)} per photo)`);
+  for (const m of misses) log(`  missed: ${m}`);
+  for (const m of wrongKinds) log(`  kind: ${m}`);
+  for (const m of badAcc) log(`  accuracy: ${m}`);
+  for (const e of errors) log(`  error: ${e}`);
+  summary.gray = { photos: nGray, recallN, recallHit, kindN, kindOk, accN, contrastOk, areaOk, falseSemu1, misses, wrongKinds, badAcc, errors };
+
+  // 2. clean gray fields
+  let cleanFalse = 0;
+  let cleanFalseAny = 0;
+  const cleanMax: number[] = [];
+  const cleanList: string[] = [];
+  for (let k = 0; k < nClean; k++) {
+    const seed = 5000 + k;
+    const r = await measure(`clean-${seed}`, graySpec(seed, true, width, height));
+    if (!r.mura) {
+      cleanList.push(`clean ${seed}: ${r.error}`);
+      continue;
+    }
+    const f = r.mura.blobs.filter((b) => b.semu >= 1);
+    cleanFalse += f.length;
+    cleanFalseAny += r.mura.blobs.length;
+    cleanMax.push(r.mura.maxSemu);
+    for (const b of f) cleanList.push(`clean ${seed}: ${b.kind} ${b.polarity} at (${b.xMm}, ${b.yMm}) C ${b.contrastPct} % A ${b.areaMm2} mm² SEMU ${b.semu}`);
+    process.stderr.write(`clean ${k + 1}/${nClean}\r`);
+  }
+  log(`clean gray fields: ${nClean} photos`);
+  log(`  findings of SEMU >= 1: ${cleanFalse} (${(cleanFalse / Math.max(1, nClean)).toFixed(2)} per photo; acceptance <= 0.2); all reported (SEMU >= 0.5): ${cleanFalseAny}`);
+  log(`  largest SEMU per photo: median ${quant(cleanMax, 0.5).toFixed(2)}, max ${quant(cleanMax, 1).toFixed(2)}`);
+  for (const m of cleanList) log(`  ${m}`);
+  summary.clean = { photos: nClean, cleanFalse, cleanFalseAny, cleanList };
+
+  // 3. black fields with glow
+  let glowN = 0;
+  let glowOk = 0;
+  let blackExtra = 0;
+  const glowList: string[] = [];
+  for (let k = 0; k < nBlack; k++) {
+    const seed = 8000 + k;
+    const spec = blackSpec(seed, width, height);
+    const r = await measure(`black-${seed}`, spec);
+    if (!r.mura) {
+      glowList.push(`black ${seed}: ${r.error}`);
+      continue;
+    }
+    const used = new Set<Blob>();
+    for (const t of r.truth) {
+      glowN++;
+      const where = t.kind === 'edge-glow' ? t.detail.edge : t.detail.corner;
+      const b = r.mura.blobs.find((x) => !used.has(x) && x.kind === t.kind && (x.detail.edge ?? x.detail.corner) === where);
+      if (b) {
+        used.add(b);
+        glowOk++;
+      } else {
+        const seen = r.mura.blobs.map((x) => `${x.kind} ${x.detail.edge ?? x.detail.corner ?? ''} (${x.xMm}, ${x.yMm})`).join('; ');
+        glowList.push(`black ${seed}: ${t.kind} ${where} (decay ${t.detail.decayMm} mm, C ${t.contrastPct.toFixed(0)} %) not found as such; reported: ${seen || 'nothing'}`);
+      }
+    }
+    blackExtra += r.mura.blobs.filter((x) => !used.has(x) && x.semu >= 1).length;
+    process.stderr.write(`black ${k + 1}/${nBlack}\r`);
+  }
+  log(`black fields with glow: ${nBlack} photos`);
+  log(`  glows found as glow on the right edge/corner: ${pct(glowOk, glowN)}`);
+  log(`  other findings of SEMU >= 1: ${blackExtra}`);
+  for (const m of glowList) log(`  ${m}`);
+  summary.black = { photos: nBlack, glowN, glowOk, blackExtra, glowList };
+
+  // 4. a 25-megapixel photo
+  if (big) {
+    const spec = graySpec(9001, false, width, height);
+    spec.camera.width = 6120;
+    spec.camera.height = 4080;
+    const r = await measure('big-9001', spec);
+    log(`25 MP photo (6120x4080): ${r.mura ? `${r.mura.blobs.length} findings` : r.error}; ${r.ms} ms; peak RSS ${r.rssMb.toFixed(0)} MB`);
+    summary.big = { ms: r.ms, rssMb: r.rssMb, findings: r.mura?.blobs.length ?? null };
+  }
+  writeFileSync(join(dir, 'summary.json'), JSON.stringify(summary, null, 1));
+  writeFileSync(join(dir, 'summary.txt'), lines.join('\n') + '\n');
+}
+
+main().catch((e) => {
+  console.error(e);
+  process.exit(1);
+});
