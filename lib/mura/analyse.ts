@@ -229,7 +229,12 @@ export function neighbourNoise(C: Float32Array, work: WorkRaster): number {
 function featureMask(ctx: Ctx, opts: MuraOptions): Uint8Array {
   const { w, h } = ctx;
   const mask = new Uint8Array(w * h);
-  const strong = ctx.found.filter((f) => semu(f.contrastPct, f.areaMm2, opts.semuConstants) >= 0.5 * opts.semuFloor);
+  // On lit fields a finding against the panel's edge is left in the next fit: it is as likely the
+  // whole-panel surface missing the edge (where it has the least support) as a feature, and masking it
+  // would keep the surface from ever reaching there. A true feature there is still found, partly
+  // absorbed. On black fields glow is at the edges by nature and is masked like any feature.
+  const atEdge = (f: Found): boolean => !ctx.black && f.touch.left + f.touch.right + f.touch.top + f.touch.bottom > 0;
+  const strong = ctx.found.filter((f) => semu(f.contrastPct, f.areaMm2, opts.semuConstants) >= 0.5 * opts.semuFloor && !atEdge(f));
   if (strong.length === 0) return mask;
   let valid = 0;
   for (let i = 0; i < w * h; i++) if (ctx.wt[i] > 0) valid++;

@@ -37,6 +37,9 @@ interface Level {
   noiseS: number;
   /** 1-sigma noise of m for full pixels, % */
   noiseM: number;
+  /** local noise of s on a grid of tiles (TILE level px square), never below noiseS; null = noiseS everywhere */
+  tileNoise: Float32Array | null;
+  tilesX: number;
   /** flood-fill marks and the last mark used */
   stamp: Int32Array;
   gen: number;
@@ -66,6 +69,8 @@ interface Candidate {
 const MAX_CANDIDATES = 400;
 
 const SMOOTH_SIGMA = 1;
+/** side of the tiles local noise is measured on, level px */
+const TILE = 48;
 const KERNEL = gaussian(SMOOTH_SIGMA);
 /** variance of the level's blur, level px² (box of one level pixel plus the smoothing kernel) */
 const BLUR_VAR = SMOOTH_SIGMA * SMOOTH_SIGMA + 1 / 12;
@@ -92,7 +97,7 @@ export function buildLevels(ctx: Ctx): Level[] {
   const maxFeaturePx = ctx.opts.maxFeatureMm / ctx.mmPerPx;
   for (let l = 0; ; l++) {
     for (let i = 0; i < m.length; i++) if (!(n[i] > 0)) m[i] = 0;
-    levels.push(finishLevel({ l, w, h, f, m, n, s: m, noiseS: 0, noiseM: 0, stamp: new Int32Array(w * h), gen: 0 }));
+    levels.push(finishLevel({ l, w, h, f, m, n, s: m, noiseS: 0, noiseM: 0, tileNoise: null, tilesX: 0, stamp: new Int32Array(w * h), gen: 0 }));
     // a feature maxFeatureMm across spans 3 px two levels up: no need to go coarser
     if (Math.min(w, h) < 16 || f > maxFeaturePx / 2) break;
     const w2 = Math.ceil(w / 2);
@@ -124,6 +129,7 @@ export function buildLevels(ctx: Ctx): Level[] {
       const g = (b.noiseM / 2) / Math.max(a.noiseM, 1e-12);
       a.noiseM *= g;
       a.noiseS *= g;
+      if (a.tileNoise) for (let t = 0; t < a.tileNoise.length; t++) a.tileNoise[t] = Math.max(a.tileNoise[t], a.noiseS);
     }
   }
   return levels;
@@ -196,21 +202,32 @@ function finishLevel(lv: Level): Level {
   const rho = (d: number): number => Math.exp(-(d * d) / (4 * SMOOTH_SIGMA * SMOOTH_SIGMA));
   const gain = Math.sqrt(1.5 - 2 * rho(D) + 0.5 * rho(2 * D));
   const sd: number[] = [];
+  // local figures on tiles where the level is large enough for them
+  const tilesX = Math.ceil(w / TILE);
+  const tilesY = Math.ceil(h / TILE);
+  const local = tilesX >= 3 && tilesY >= 3 ? Array.from({ length: tilesX * tilesY }, () => [] as number[]) : null;
   // every pixel: the far tail needs them all
   for (let i = 0; i < w * h; i++) {
     const x = i % w;
     const y = (i - x) / w;
     const v = s[i];
     if (!Number.isFinite(v)) continue;
+    const bucket = local ? local[Math.floor(y / TILE) * tilesX + Math.floor(x / TILE)] : null;
     if (x >= D && x < w - D) {
       const a = s[i - D];
       const b = s[i + D];
-      if (Number.isFinite(a) && Number.isFinite(b)) sd.push(v - 0.5 * (a + b));
+      if (Number.isFinite(a) && Number.isFinite(b)) {
+        sd.push(v - 0.5 * (a + b));
+        bucket?.push(v - 0.5 * (a + b));
+      }
     }
     if (y >= D && y < h - D) {
       const a = s[i - D * w];
       const b = s[i + D * w];
-      if (Number.isFinite(a) && Number.isFinite(b)) sd.push(v - 0.5 * (a + b));
+      if (Number.isFinite(a) && Number.isFinite(b)) {
+        sd.push(v - 0.5 * (a + b));
+        bucket?.push(v - 0.5 * (a + b));
+      }
     }
   }
   // Two figures of the same sigma, the larger taken: the 90th percentile of |difference| / 1.645 and
@@ -219,8 +236,23 @@ function finishLevel(lv: Level): Level {
   // whose mean was rounded by a code value - is missed by the median and gives the differences heavy
   // tails; those tails are what would otherwise pass the threshold as features. Features themselves
   // cover too few of the pixels that have large differences on any one level to move either figure.
-  const measured = sd.length >= 30 ? Math.max(quantileAbs(sd, 0.9) / 1.645, quantileAbs(sd, 0.9999) / 3.89) / gain : 0;
-  return { ...lv, s, noiseM, noiseS: Math.max(noiseM * k2, measured) };
+  const bulk = sd.length >= 30 ? quantileAbs(sd, 0.9) / 1.645 / gain : 0;
+  const measured = sd.length >= 30 ? Math.max(bulk, quantileAbs(sd, 0.9999) / 3.89 / gain) : 0;
+  const noiseS = Math.max(noiseM * k2, measured);
+  // Noise is not the same everywhere: after the falloff correction the dim corners of the photo carry
+  // more shot noise and coarser 8-bit steps than the centre. Each tile's bulk figure (75th percentile
+  // of |difference| / 1.15, which a line or spot covering under a quarter of the tile does not move),
+  // scaled by the level's ratio of tail to bulk, where that exceeds the level's own figure.
+  let tileNoise: Float32Array | null = null;
+  if (local && bulk > 0) {
+    const ratio = noiseS / bulk;
+    tileNoise = new Float32Array(local.length);
+    for (let t = 0; t < local.length; t++) {
+      const b = local[t].length >= 100 ? (quantileAbs(local[t], 0.75) / 1.15 / gain) * ratio : 0;
+      tileNoise[t] = Math.max(noiseS, b);
+    }
+  }
+  return { ...lv, s, noiseM, noiseS, tileNoise, tilesX };
 }
 
 /** Find features on all levels and register them (measured at working resolution) in ctx.found. */
@@ -258,7 +290,13 @@ export function detectFeatures(ctx: Ctx, levels: Level[]): void {
     if (Math.abs(f.contrastPct) < floor) continue;
     if (f.zNoise < o.thresholdSigma) continue;
     // no larger than one JPEG block either way: cannot be told from that block's rounding
-    if (o.jpegBlockMm !== null && Math.max(f.lengthMm, 2 * Math.sqrt(f.areaMm2 / Math.PI)) < 2 * o.jpegBlockMm) continue;
+    const extentMm = Math.max(f.lengthMm, 2 * Math.sqrt(f.areaMm2 / Math.PI));
+    if (o.jpegBlockMm !== null && extentMm < 2 * o.jpegBlockMm) continue;
+    // within one or a few of the 8-bit coding's plateaus: must beat the code step
+    if (o.codeStepPct !== null) {
+      const share = extentMm < 25 ? 1 : extentMm < 100 ? 0.5 : 0;
+      if (Math.abs(f.contrastPct) < share * o.codeStepFactor * o.codeStepPct) continue;
+    }
     if (isDuplicate(ctx, f)) continue;
     register(ctx, f);
   }
@@ -358,6 +396,14 @@ function peaksOf(lv: Level, comp: number[], sign: 1 | -1, thr: number): number[]
   return kept;
 }
 
+/** Noise of the smoothed level at a pixel: its tile's figure, or the level's. */
+function noiseAt(lv: Level, i: number): number {
+  if (!lv.tileNoise) return lv.noiseS;
+  const x = i % lv.w;
+  const y = (i - x) / lv.w;
+  return lv.tileNoise[Math.floor(y / TILE) * lv.tilesX + Math.floor(x / TILE)];
+}
+
 function topOf(lv: Level, region: Int32Array, peakIdx: number, sign: 1 | -1): boolean {
   const top = sign * lv.s[peakIdx];
   for (let k = 0; k < region.length; k++) if (sign * lv.s[region[k]] > top) return false;
@@ -399,12 +445,14 @@ function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number): Candid
   // a peak that is not the top of its own half-peak region is a noise bump on the flank of something
   // larger (a glow's tail, a cloud's shoulder): that something is found from its own top
   if (!topOf(lv, fl.region, peakIdx, sign)) return null;
+  const noise = noiseAt(lv, peakIdx);
+  if (sign * peak < (thr * noise) / lv.noiseS) return null;
   let pedestal = 0;
   const near = surround(lv, fl.region, fl.gen, 1.5, 2.5);
   if (near !== null && sign * near > 0) {
     if (sign * (peak - near) < thr) return null;
     const far = surround(lv, fl.region, fl.gen, 3, 4);
-    if (sign * near > 3 * lv.noiseS && far !== null && sign * far >= 0.6 * sign * near) {
+    if (sign * near > 3 * noise && far !== null && sign * far >= 0.6 * sign * near) {
       pedestal = near;
       fl = flood(lv, peakIdx, sign, sign * (pedestal + 0.5 * (peak - pedestal)));
     }
@@ -454,7 +502,7 @@ function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number): Candid
     cy: (my + 0.5) * f - 0.5,
     minor,
     major,
-    snr: (sign * (peak - pedestal)) / Math.max(lv.noiseS, 1e-9),
+    snr: (sign * (peak - pedestal)) / Math.max(noise, 1e-9),
     vertical: by1 - by0 > bx1 - bx0,
   };
 }

@@ -54,6 +54,14 @@ export interface MuraOptions {
    *  block wide. A finding must reach across two blocks along its longer dimension to be told from
    *  that. */
   jpegBlockMm: number | null;
+  /** contrast (%) of one code value of the 8-bit photo at the panel's level, or null (default; linear
+   *  or 16-bit input). Without noise enough to dither it, 8-bit coding turns a smooth field into
+   *  plateaus one code apart, and the background model leaves their edges as contrast of up to that
+   *  step. A finding must exceed codeStepFactor x this step when it is under 25 mm across (its longer
+   *  dimension), half that up to 100 mm; larger ones span many plateaus, whose errors average out. */
+  codeStepPct: number | null;
+  /** multiple of codeStepPct a small finding must exceed (default 1; a rule of practice) */
+  codeStepFactor: number;
 }
 
 export type MuraOptionsInput = Partial<Omit<MuraOptions, 'background' | 'semuConstants'>> & {
@@ -65,7 +73,7 @@ export type MuraOptionsInput = Partial<Omit<MuraOptions, 'background' | 'semuCon
 export function resolveMuraOptions(input: MuraOptionsInput): MuraOptions {
   const black = input.pattern === 'black';
   const bg: BackgroundOptions = {
-    order: black ? 2 : 3,
+    order: black ? 2 : 4,
     cellMm: null,
     clipSigma: 3,
     rounds: 3,
@@ -89,6 +97,8 @@ export function resolveMuraOptions(input: MuraOptionsInput): MuraOptions {
     hotspotMinCount: input.hotspotMinCount ?? 6,
     maxWorkPixels: input.maxWorkPixels ?? 4e6,
     jpegBlockMm: input.jpegBlockMm ?? null,
+    codeStepPct: input.codeStepPct ?? null,
+    codeStepFactor: input.codeStepFactor ?? 1,
   };
   validate(o);
   return o;
@@ -121,6 +131,8 @@ function validate(o: MuraOptions): void {
   if (!(Number.isInteger(o.hotspotMinCount) && o.hotspotMinCount >= 3)) bad('hotspotMinCount must be an integer >= 3');
   if (!(o.maxWorkPixels >= 10_000)) bad('maxWorkPixels must be at least 10000');
   if (o.jpegBlockMm !== null) positive('jpegBlockMm', o.jpegBlockMm);
+  if (o.codeStepPct !== null) positive('codeStepPct', o.codeStepPct);
+  if (!(Number.isFinite(o.codeStepFactor) && o.codeStepFactor >= 0)) bad(`codeStepFactor must be >= 0, got ${o.codeStepFactor}`);
   const b = o.background;
   if (!(Number.isInteger(b.order) && b.order >= 0 && b.order <= 6)) bad(`background.order must be an integer 0..6, got ${b.order}`);
   if (b.cellMm !== null) positive('background.cellMm', b.cellMm);

@@ -34,6 +34,21 @@ const DEFAULT_MIN_FEATURE_MM = 3;
 /** Width of the panel edge's transition in working-scale camera pixels, excluded from the mura analysis. */
 const EDGE_TRANSITION_CAMERA_PX = 3;
 
+/**
+ * Contrast (%) of one code value of an 8-bit sRGB photo at the level of the panel's centre point, or
+ * null for other input. With Y = ((V / 255 + 0.055) / 1.055)^2.4 (IEC 61966-2-1), d ln Y / dV =
+ * 2.4 / (V + 0.055 x 255).
+ */
+function codeStepAt(result: PhotoResult, points: GridPoint[]): number | null {
+  const d = result.decode;
+  if (!d || d.bitDepth !== 8 || d.transfer !== 'srgb') return null;
+  const centre = points.find((p) => p.u === 0.5 && p.v === 0.5) ?? points[0];
+  const y = centre?.Y;
+  if (!(y !== undefined && y > 0 && y <= 1)) return null;
+  const v = 255 * srgbEncode(y);
+  return (100 * 2.4) / (v + 0.055 * 255);
+}
+
 function withoutBorder(valid: Uint8Array, w: number, h: number, border: number): Uint8Array {
   const out = valid.slice();
   for (let y = 0; y < h; y++) {
@@ -287,10 +302,17 @@ async function measureInner(
     // JPEG rounds each 8 x 8 block on its own: tell the analysis how large a block is on the panel
     const camPerMap = result.geometry?.cameraPxPerMapPx ?? null;
     const jpegBlockMm = result.decode?.format === 'jpeg' && camPerMap ? 8 / (camPerMap * map.pxPerMm) : null;
+    // 8-bit sRGB input: the contrast of one code value at the panel's level in the photo
+    const codeStepPct = codeStepAt(result, points);
     const mura = analyseMura(
       { ...map, valid: withoutBorder(map.valid, map.width, map.height, border) },
-      { jpegBlockMm, ...opts.muraOptions, pattern: opts.pattern },
+      { jpegBlockMm, codeStepPct, ...opts.muraOptions, pattern: opts.pattern },
     );
+    if (codeStepPct !== null && codeStepPct > 1.5) {
+      result.warnings.push(
+        `one 8-bit code value is ${codeStepPct.toFixed(1)} % of the panel's level in this photo: small mura fainter than that cannot be told from the coding; expose the field higher (code values 180-230 of 255) for finer mura figures`,
+      );
+    }
     const { contrast, background, ...rest } = mura;
     void background;
     result.mura = rest;

@@ -1,0 +1,63 @@
+// Generated scenes of the mura accuracy study (scripts/mura-accuracy.ts): gray fields with spots,
+// clouds and bands, clean gray fields, black fields with glow.
+import { buildPanel, featureTruth, randomScene, Rng } from '../fixtures/generator/index.js';
+import type { FeatureSpec, PhotoSpec } from '../fixtures/generator/index.js';
+
+/** Scale a cloud's envelope until its half-peak region is `diameter` across (equal-area disc). */
+function sizeCloud(spec: PhotoSpec, index: number, diameter: number): void {
+  const f = spec.panel.features![index] as Extract<FeatureSpec, { kind: 'cloud' }>;
+  f.sizeMm = diameter / 0.55;
+  for (let k = 0; k < 4; k++) {
+    const panel = buildPanel({ ...spec.panel, features: [f] });
+    const t = featureTruth(panel, panel.parts[0], 2e5);
+    const d = 2 * Math.sqrt(t.areaMm2 / Math.PI);
+    if (Math.abs(d - diameter) < 0.02 * diameter) break;
+    f.sizeMm *= diameter / d;
+  }
+}
+
+/**
+ * A gray field with 1-4 spots, clouds and bands (none when clean). Cloud sizes: 'half-peak' scales each
+ * cloud's envelope so that its half-peak region is the drawn size across (the convention of spots and
+ * bands); 'nominal' keeps the generator's envelope size, whose half-peak region is about 0.5-0.65 of it.
+ */
+export function graySpec(seed: number, clean: boolean, width: number, height: number, cloudSizes: 'half-peak' | 'nominal' = 'half-peak'): PhotoSpec {
+  const spec = randomScene(seed, {
+    pattern: 'gray',
+    level: 0.5,
+    width,
+    height,
+    features: clean ? [0, 0] : [1, 4],
+    featureKinds: ['spot', 'cloud', 'band'],
+    sizeMm: { spot: [5, 40], cloud: [50, 200], band: [5, 60] },
+  });
+  // the lens's own extra radial term is left out: the falloff correction is the cos⁴ model from the
+  // focal length (the falloff study covers measured profiles), so what remains is the panel's own
+  spec.camera.k1 = 0;
+  spec.camera.k2 = 0;
+  const rng = new Rng(seed * 7919 + 17);
+  (spec.panel.features ?? []).forEach((f, i) => {
+    // contrast log-uniform in 0.5-20 %, either polarity
+    const c = Math.exp(rng.uniform(Math.log(0.5), Math.log(20)));
+    f.contrastPct = rng.next() < 0.5 ? -c : c;
+    if (f.kind === 'cloud' && cloudSizes === 'half-peak') sizeCloud(spec, i, f.sizeMm);
+  });
+  return spec;
+}
+
+export function blackSpec(seed: number, width: number, height: number): PhotoSpec {
+  const spec = randomScene(seed, {
+    pattern: 'black',
+    width,
+    height,
+    features: [1, 2],
+    featureKinds: ['edge-glow', 'corner-glow'],
+  });
+  spec.camera.k1 = 0;
+  spec.camera.k2 = 0;
+  // exposed for the black field, as one would to see bleed: black at about code 50 of 255, so a glow
+  // of up to 20 x the field stays below clipping
+  spec.exposure = { patternCentre: 0.03 };
+  return spec;
+}
+
