@@ -45,7 +45,12 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
   let ctx: Ctx | null = null;
   let C: Float32Array = new Float32Array(N);
   for (let round = 1; round <= opts.background.rounds; round++) {
-    fit = fitBackground(work, mask, opts.background, rho * noisePct, opts.tileGrid, black);
+    // The first round fits a surface of order 2 at most: a large cloud is partly representable by a
+    // surface of higher order, which would absorb it before it could be found and masked. The later
+    // rounds fit the full order with the found features masked, so the surface passes under them.
+    const first = round === 1 && opts.background.rounds > 1;
+    const order = first ? Math.min(2, opts.background.order) : opts.background.order;
+    fit = fitBackground(work, mask, { ...opts.background, order }, rho * noisePct, opts.tileGrid, black);
     C = contrastOf(work, fit);
     const Cdet = opts.tileGrid ? withoutTileSteps(C, work, fit, opts.tileGrid) : C;
     noisePct = Math.max(neighbourNoise(Cdet, work), 1e-4);
@@ -67,10 +72,17 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
     const levels = buildLevels(ctx);
     rho = noiseCorrelation(levels);
     ctx.rho = rho;
-    detectFeatures(ctx, levels);
+    detectFeatures(ctx, levels, !first);
+    if (process.env.MURA_DBG) {
+      console.log(`round ${round} order ${fit.order} fitErr ${fit.fitErrorPct.toFixed(3)} cells ${fit.cellsUsed}/${fit.cellsClipped}/${fit.cellsMasked} masked ${mask ? countOf(mask) / N : 0}`);
+      for (const f of ctx.found) console.log(`  ${f.sign} c(${(f.cx * work.mmPerPx).toFixed(0)},${(f.cy * work.mmPerPx).toFixed(0)}) A ${f.areaMm2.toFixed(0)} C ${f.contrastPct.toFixed(3)} z ${f.zNoise.toFixed(0)} semu ${semu(f.contrastPct, f.areaMm2).toFixed(2)}`);
+    }
     if (round === opts.background.rounds) break;
     const next = featureMask(ctx, opts);
-    if (mask ? sameMask(mask, next) : countOf(next) === 0) break;
+    // masks only grow: a feature masked once stays masked (a surface freed of its mask would absorb
+    // it again, and it would come and go between rounds); the first round's surface is never the final one
+    if (mask) for (let i = 0; i < N; i++) next[i] |= mask[i];
+    if (!first && (mask ? sameMask(mask, next) : countOf(next) === 0)) break;
     mask = next;
   }
   if (!fit || !ctx) throw new EvenfieldError('internal', 'mura analysis ran no round');
@@ -240,14 +252,103 @@ function featureMask(ctx: Ctx, opts: MuraOptions): Uint8Array {
   for (let i = 0; i < w * h; i++) if (ctx.wt[i] > 0) valid++;
   const half = (f: Found): number =>
     (f.lengthMm < 2 * f.widthMm ? Math.sqrt(f.areaMm2 / Math.PI) : f.widthMm / 2) / ctx.mmPerPx;
+  // The tails: out to where the lightly smoothed contrast falls to a tenth of the feature's peak, up to
+  // 4 x its half-size. A feature found against a surface that partly absorbed it (the first, low-order
+  // round) is found smaller than it is; its tails show how far it really reaches, and a mask that stops
+  // short leaves them to pull the next surface up under it.
+  const smooth = boxSmoothed(ctx, Math.max(1, Math.round(2 / ctx.mmPerPx)));
+  const tails = new Uint8Array(w * h);
+  const stamp = new Int32Array(w * h);
+  strong.forEach((f, k) => tailInto(tails, ctx, smooth, f, 4 * half(f), stamp, k + 1));
   let scale = 1;
   for (let attempt = 0; attempt < 8; attempt++) {
     mask.fill(0);
     for (const f of strong) dilateInto(mask, ctx, f, scale * (opts.background.maskRadiusFactor - 1) * half(f));
+    if (scale === 1) for (let i = 0; i < mask.length; i++) mask[i] |= tails[i];
     if (countOf(mask) <= opts.background.maxMaskedFraction * valid) break;
     scale *= 0.6;
   }
   return mask;
+}
+
+/** Contrast averaged over a (2r+1)^2 box, weighted by the data (running sums). */
+function boxSmoothed(ctx: Ctx, r: number): Float32Array {
+  const { w, h, C, wt } = ctx;
+  const num = new Float64Array(w * h);
+  const den = new Float64Array(w * h);
+  for (let y = 0; y < h; y++) {
+    let a = 0;
+    let b = 0;
+    const row = y * w;
+    for (let x = -r; x < w + r; x++) {
+      const xa = x + r;
+      if (xa < w) {
+        a += C[row + xa] * wt[row + xa];
+        b += wt[row + xa];
+      }
+      const xr = x - r - 1;
+      if (xr >= 0) {
+        a -= C[row + xr] * wt[row + xr];
+        b -= wt[row + xr];
+      }
+      if (x >= 0 && x < w) {
+        num[row + x] = a;
+        den[row + x] = b;
+      }
+    }
+  }
+  const out = new Float32Array(w * h);
+  for (let x = 0; x < w; x++) {
+    let a = 0;
+    let b = 0;
+    for (let y = -r; y < h + r; y++) {
+      const ya = y + r;
+      if (ya < h) {
+        a += num[ya * w + x];
+        b += den[ya * w + x];
+      }
+      const yr = y - r - 1;
+      if (yr >= 0) {
+        a -= num[yr * w + x];
+        b -= den[yr * w + x];
+      }
+      if (y >= 0 && y < h) out[y * w + x] = b > 1e-6 ? a / b : 0;
+    }
+  }
+  return out;
+}
+
+/** Grow a feature's region out to where the smoothed contrast falls to 10 % of its peak (within r px). */
+function tailInto(out: Uint8Array, ctx: Ctx, smooth: Float32Array, f: Found, r: number, stamp: Int32Array, id: number): void {
+  const { w, h } = ctx;
+  const level = f.pedestalPct + 0.1 * f.peakContrastPct * (1 + f.pedestalPct / 100);
+  const x0 = Math.max(0, Math.floor(f.bbox[0] - r));
+  const y0 = Math.max(0, Math.floor(f.bbox[1] - r));
+  const x1 = Math.min(w - 1, Math.ceil(f.bbox[2] + r));
+  const y1 = Math.min(h - 1, Math.ceil(f.bbox[3] + r));
+  const stack: number[] = [];
+  for (let k = 0; k < f.pixels.length; k++) {
+    const i = f.pixels[k];
+    if (stamp[i] === id) continue;
+    stamp[i] = id;
+    stack.push(i);
+  }
+  while (stack.length) {
+    const i = stack.pop() as number;
+    out[i] = 1;
+    const x = i % w;
+    const y = (i - x) / w;
+    for (const [dx, dy] of [[1, 0], [-1, 0], [0, 1], [0, -1]] as const) {
+      const xx = x + dx;
+      const yy = y + dy;
+      if (xx < x0 || xx > x1 || yy < y0 || yy > y1) continue;
+      const j = yy * w + xx;
+      if (stamp[j] === id || ctx.wt[j] <= 0) continue;
+      if (f.sign * (smooth[j] - level) < 0) continue;
+      stamp[j] = id;
+      stack.push(j);
+    }
+  }
 }
 
 function dilateInto(mask: Uint8Array, ctx: Ctx, f: Found, radius: number): void {

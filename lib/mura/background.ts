@@ -165,6 +165,22 @@ export function fitBackground(
     gridIndex[Math.floor(c.y / cellPx) * gw + Math.floor(c.x / cellPx)] = k;
   });
 
+  // Lit fields: the cells on the panel's edge (a neighbour cell missing) are never clipped. A whole-panel
+  // polynomial has the least support there, and with the edge cells left out it swings freely beyond
+  // the last cells it was fitted to (tens of % at a corner); black fields, whose glow sits at the edges,
+  // clip them like any other cell.
+  const anchor = new Uint8Array(cells.length);
+  if (!brightOnly) {
+    cells.forEach((c, k) => {
+      const gx = Math.floor(c.x / cellPx);
+      const gy = Math.floor(c.y / cellPx);
+      for (const [dx, dy] of [[1, 0], [-1, 0], [0, 1], [0, -1]] as const) {
+        const xx = gx + dx;
+        const yy = gy + dy;
+        if (xx < 0 || yy < 0 || xx >= gw || yy >= gh || gridIndex[yy * gw + xx] < 0) anchor[k] = 1;
+      }
+    });
+  }
   for (let iter = 0; iter < 15; iter++) {
     coef = solveWeighted(design, cells, clipped, nTerms);
     for (let k = 0; k < cells.length; k++) {
@@ -179,6 +195,7 @@ export function fitBackground(
     const loLimit = (brightOnly ? 2 : 1) * opts.clipSigma * sigma;
     const next = new Uint8Array(cells.length);
     for (let k = 0; k < cells.length; k++) {
+      if (anchor[k]) continue;
       if (resid[k] > hiLimit || resid[k] < -loLimit) {
         const gx = Math.floor(cells[k].x / cellPx);
         const gy = Math.floor(cells[k].y / cellPx);

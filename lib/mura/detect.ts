@@ -255,10 +255,14 @@ function finishLevel(lv: Level): Level {
   return { ...lv, s, noiseM, noiseS, tileNoise, tilesX };
 }
 
-/** Find features on all levels and register them (measured at working resolution) in ctx.found. */
-export function detectFeatures(ctx: Ctx, levels: Level[]): void {
+/**
+ * Find features on all levels and register them (measured at working resolution) in ctx.found.
+ * useFitFloor: features must also stand fitSigma x the background model's error above it (off for the
+ * first, low-order round, whose model error is mostly the features it is there to find).
+ */
+export function detectFeatures(ctx: Ctx, levels: Level[], useFitFloor = true): void {
   const o = ctx.opts;
-  const floor = o.fitSigma * ctx.fitErrorPct;
+  const floor = useFitFloor ? o.fitSigma * ctx.fitErrorPct : 0;
   const cands: Candidate[] = [];
   for (const lv of levels) {
     const thr = Math.max(o.thresholdSigma * lv.noiseS, floor);
