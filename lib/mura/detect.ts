@@ -67,6 +67,10 @@ interface Candidate {
 
 /** most candidates kept per level and sign (the strongest): a guard against pathological maps */
 const MAX_CANDIDATES = 400;
+/** largest half-peak region flooded on a level that has a coarser one, level px */
+const MAX_REGION = 40000;
+/** levels beyond this index are never skipped for size */
+const MAX_LEVEL_INDEX = 3;
 
 const SMOOTH_SIGMA = 1;
 /** side of the tiles local noise is measured on, level px */
@@ -121,7 +125,18 @@ export function buildLevels(ctx: Ctx): Level[] {
     h = h2;
     f *= 2;
   }
-  // noise can only average down as fast as white noise does: the finer level bounds the coarser
+  // Each level is a smoothing of the one below: its noise is no larger than that level's (a larger
+  // figure is the level's own structure - features - read as noise) ...
+  for (let k = 1; k < levels.length; k++) {
+    const a = levels[k];
+    const b = levels[k - 1];
+    if (a.noiseS > b.noiseS) {
+      const g = b.noiseS / a.noiseS;
+      a.noiseS = b.noiseS;
+      if (a.tileNoise) for (let t = 0; t < a.tileNoise.length; t++) a.tileNoise[t] = Math.max(a.noiseS, a.tileNoise[t] * g);
+    }
+  }
+  // ... and can only average down as fast as white noise does: the finer level bounds the coarser
   for (let k = 1; k < levels.length; k++) {
     const a = levels[k];
     const b = levels[k - 1];
@@ -201,55 +216,80 @@ function finishLevel(lv: Level): Level {
   const D = 3;
   const rho = (d: number): number => Math.exp(-(d * d) / (4 * SMOOTH_SIGMA * SMOOTH_SIGMA));
   const gain = Math.sqrt(1.5 - 2 * rho(D) + 0.5 * rho(2 * D));
-  const sd: number[] = [];
-  // local figures on tiles where the level is large enough for them
+  // |differences| of every pixel (the far tail needs them all), with the tile each belongs to
   const tilesX = Math.ceil(w / TILE);
   const tilesY = Math.ceil(h / TILE);
-  const local = tilesX >= 3 && tilesY >= 3 ? Array.from({ length: tilesX * tilesY }, () => [] as number[]) : null;
-  // every pixel: the far tail needs them all
-  for (let i = 0; i < w * h; i++) {
-    const x = i % w;
-    const y = (i - x) / w;
-    const v = s[i];
-    if (!Number.isFinite(v)) continue;
-    const bucket = local ? local[Math.floor(y / TILE) * tilesX + Math.floor(x / TILE)] : null;
-    if (x >= D && x < w - D) {
-      const a = s[i - D];
-      const b = s[i + D];
-      if (Number.isFinite(a) && Number.isFinite(b)) {
-        sd.push(v - 0.5 * (a + b));
-        bucket?.push(v - 0.5 * (a + b));
+  const useTiles = tilesX >= 3 && tilesY >= 3;
+  const absd = new Float32Array(2 * w * h);
+  const tileOf = new Int32Array(useTiles ? 2 * w * h : 0);
+  let nd = 0;
+  for (let y = 0; y < h; y++) {
+    const tileRow = Math.floor(y / TILE) * tilesX;
+    for (let x = 0; x < w; x++) {
+      const i = y * w + x;
+      const v = s[i];
+      if (!Number.isFinite(v)) continue;
+      const tile = tileRow + Math.floor(x / TILE);
+      if (x >= D && x < w - D) {
+        const d = v - 0.5 * (s[i - D] + s[i + D]);
+        if (Number.isFinite(d)) {
+          if (useTiles) tileOf[nd] = tile;
+          absd[nd++] = Math.abs(d);
+        }
       }
-    }
-    if (y >= D && y < h - D) {
-      const a = s[i - D * w];
-      const b = s[i + D * w];
-      if (Number.isFinite(a) && Number.isFinite(b)) {
-        sd.push(v - 0.5 * (a + b));
-        bucket?.push(v - 0.5 * (a + b));
+      if (y >= D && y < h - D) {
+        const d = v - 0.5 * (s[i - D * w] + s[i + D * w]);
+        if (Number.isFinite(d)) {
+          if (useTiles) tileOf[nd] = tile;
+          absd[nd++] = Math.abs(d);
+        }
       }
     }
   }
+  const diffsAbs = absd.subarray(0, nd);
   // Two figures of the same sigma, the larger taken: the 90th percentile of |difference| / 1.645 and
   // the 99.99th / 3.89. They agree for Gaussian noise. Structured error on a minority of the pixels -
   // 8-bit quantisation contours on a smooth field with too little noise to dither them, JPEG blocks
   // whose mean was rounded by a code value - is missed by the median and gives the differences heavy
   // tails; those tails are what would otherwise pass the threshold as features. Features themselves
-  // cover too few of the pixels that have large differences on any one level to move either figure.
-  const bulk = sd.length >= 30 ? quantileAbs(sd, 0.9) / 1.645 / gain : 0;
-  const measured = sd.length >= 30 ? Math.max(bulk, quantileAbs(sd, 0.9999) / 3.89 / gain) : 0;
-  const noiseS = Math.max(noiseM * k2, measured);
+  // cover too few of the pixels that have large differences on any one level to move either figure;
+  // on small (coarse) levels they could, so the tail is read only where there are 20 000 differences.
+  const bulk = nd >= 30 ? quantileOf(diffsAbs, 0.9) / 1.645 / gain : 0;
+  const tail = nd >= 20000 ? quantileOf(diffsAbs, 0.9999) / 3.89 / gain : 0;
+  const noiseS = Math.max(noiseM * k2, bulk, tail);
   // Noise is not the same everywhere: after the falloff correction the dim corners of the photo carry
   // more shot noise and coarser 8-bit steps than the centre. Each tile's bulk figure (75th percentile
   // of |difference| / 1.15, which a line or spot covering under a quarter of the tile does not move),
   // scaled by the level's ratio of tail to bulk, where that exceeds the level's own figure.
   let tileNoise: Float32Array | null = null;
-  if (local && bulk > 0) {
+  if (useTiles && bulk > 0) {
     const ratio = noiseS / bulk;
-    tileNoise = new Float32Array(local.length);
-    for (let t = 0; t < local.length; t++) {
-      const b = local[t].length >= 100 ? (quantileAbs(local[t], 0.75) / 1.15 / gain) * ratio : 0;
-      tileNoise[t] = Math.max(noiseS, b);
+    const nTiles = tilesX * tilesY;
+    const bins = 128;
+    const top = 8 * bulk * gain; // |difference| range of the tile histograms
+    const hist = new Uint32Array(nTiles * bins);
+    const count = new Uint32Array(nTiles);
+    for (let k = 0; k < nd; k++) {
+      const b = Math.min(bins - 1, Math.floor((diffsAbs[k] / top) * bins));
+      hist[tileOf[k] * bins + b]++;
+      count[tileOf[k]]++;
+    }
+    tileNoise = new Float32Array(nTiles);
+    for (let t = 0; t < nTiles; t++) {
+      let q75 = 0;
+      if (count[t] >= 100) {
+        const target = 0.75 * count[t];
+        let acc = 0;
+        for (let b = 0; b < bins; b++) {
+          const c = hist[t * bins + b];
+          if (acc + c >= target) {
+            q75 = ((b + (target - acc) / Math.max(c, 1)) / bins) * top;
+            break;
+          }
+          acc += c;
+        }
+      }
+      tileNoise[t] = Math.max(noiseS, (q75 / 1.15 / gain) * ratio);
     }
   }
   return { ...lv, s, noiseM, noiseS, tileNoise, tilesX };
@@ -408,19 +448,18 @@ function noiseAt(lv: Level, i: number): number {
   return lv.tileNoise[Math.floor(y / TILE) * lv.tilesX + Math.floor(x / TILE)];
 }
 
-function topOf(lv: Level, region: Int32Array, peakIdx: number, sign: 1 | -1): boolean {
-  const top = sign * lv.s[peakIdx];
-  for (let k = 0; k < region.length; k++) if (sign * lv.s[region[k]] > top) return false;
-  return true;
-}
-
 /** Pixels 4-connected to start where sign * s >= level; marks them with a fresh stamp on the level. */
-function flood(lv: Level, start: number, sign: 1 | -1, level: number): { region: Int32Array; gen: number } {
+function flood(lv: Level, start: number, sign: 1 | -1, level: number): { region: Int32Array; gen: number } | null {
   const { w, h, s, stamp } = lv;
   const gen = ++lv.gen;
   const out: number[] = [start];
   stamp[start] = gen;
-  for (let k = 0; k < out.length; k++) {
+  // a pixel above the start means the start is not the top of its region (see halfPeak): stop there
+  const top = sign * s[start];
+  let above = false;
+  for (let k = 0; k < out.length && !above; k++) {
+    // a region this large is measured on a coarser level, at a fraction of the cost
+    if (out.length > MAX_REGION && lv.l < MAX_LEVEL_INDEX) return null;
     const i = out[k];
     const x = i % w;
     if (x > 0) visit(i - 1);
@@ -428,9 +467,13 @@ function flood(lv: Level, start: number, sign: 1 | -1, level: number): { region:
     if (i >= w) visit(i - w);
     if (i < w * h - w) visit(i + w);
   }
+  if (above) return null;
   return { region: Int32Array.from(out), gen };
   function visit(j: number): void {
-    if (stamp[j] === gen || !(sign * s[j] >= level)) return;
+    if (stamp[j] === gen) return;
+    const v = sign * s[j];
+    if (!(v >= level)) return;
+    if (v > top) above = true;
     stamp[j] = gen;
     out.push(j);
   }
@@ -445,10 +488,10 @@ function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number): Candid
   // and so is a ring twice as far out (a feature's own tail, an exponential glow say, falls away
   // between the two rings instead). A peak that does not stand out of its surround by the threshold is
   // part of something larger, found on a coarser level.
+  // (flood returns null for a peak that is not the top of its own half-peak region: a noise bump on
+  // the flank of something larger - a glow's tail, a cloud's shoulder - found from its own top)
   let fl = flood(lv, peakIdx, sign, 0.5 * sign * peak);
-  // a peak that is not the top of its own half-peak region is a noise bump on the flank of something
-  // larger (a glow's tail, a cloud's shoulder): that something is found from its own top
-  if (!topOf(lv, fl.region, peakIdx, sign)) return null;
+  if (!fl) return null;
   const noise = noiseAt(lv, peakIdx);
   if (sign * peak < (thr * noise) / lv.noiseS) return null;
   let pedestal = 0;
@@ -458,7 +501,9 @@ function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number): Candid
     const far = surround(lv, fl.region, fl.gen, 3, 4);
     if (sign * near > 3 * noise && far !== null && sign * far >= 0.6 * sign * near) {
       pedestal = near;
-      fl = flood(lv, peakIdx, sign, sign * (pedestal + 0.5 * (peak - pedestal)));
+      const again = flood(lv, peakIdx, sign, sign * (pedestal + 0.5 * (peak - pedestal)));
+      if (!again) return null;
+      fl = again;
     }
   }
   const region = fl.region.sort();
@@ -662,15 +707,15 @@ function toFound(ctx: Ctx, c: Candidate): Found | null {
   return found;
 }
 
-/** The q-quantile of |values| (histogram of 8192 bins over [0, max], then linear within the bin). */
-function quantileAbs(values: number[], q: number): number {
+/** The q-quantile of non-negative values (histogram of 8192 bins over [0, max], linear within the bin). */
+function quantileOf(values: Float32Array, q: number): number {
   let max = 0;
-  for (const v of values) if (Math.abs(v) > max) max = Math.abs(v);
+  for (let k = 0; k < values.length; k++) if (values[k] > max) max = values[k];
   if (!(max > 0)) return 0;
   const bins = 8192;
   const hist = new Uint32Array(bins);
-  const scale = (bins - 1e-9) / max;
-  for (const v of values) hist[Math.floor(Math.abs(v) * scale)]++;
+  const scale = (bins - 1e-6) / max;
+  for (let k = 0; k < values.length; k++) hist[Math.floor(values[k] * scale)]++;
   const target = q * values.length;
   let acc = 0;
   for (let b = 0; b < bins; b++) {
