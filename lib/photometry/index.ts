@@ -28,6 +28,17 @@ export function srgbEncode(l: number): number {
   return l <= SRGB_ENCODE_THRESHOLD ? 12.92 * l : 1.055 * Math.pow(l, 1 / 2.4) - 0.055;
 }
 
+/**
+ * Contrast (%) of one code value of an 8-bit sRGB image at linear level y (0..1]: the relative change of
+ * linear light per code value, 100 x d ln Y / dV = 100 x 2.4 / (V + 0.055 x 255) on the power segment of
+ * IEC 61966-2-1 (V = code value of y), 100 / V on the linear segment.
+ */
+export function srgbCodeStepPct(y: number): number {
+  if (!(y > 0 && y <= 1)) throw new RangeError(`linear level must be in (0, 1], got ${y}`);
+  const v = 255 * srgbEncode(y);
+  return y <= SRGB_ENCODE_THRESHOLD ? 100 / v : (100 * 2.4) / (v + 0.055 * 255);
+}
+
 function buildLut(size: number, decode: (v: number) => number): Float32Array {
   const lut = new Float32Array(size);
   const max = size - 1;

@@ -3,7 +3,7 @@
 
 import { decodePhotoBuffer, readInputFile } from '../io/index.js';
 import type { DecodedPhoto } from '../io/index.js';
-import { SRGB_TO_XYZ, srgbEncode } from '../photometry/index.js';
+import { SRGB_TO_XYZ, srgbCodeStepPct, srgbEncode } from '../photometry/index.js';
 import { findPanel, rectifyRgb, estimatePose } from '../geometry/index.js';
 import { applyTransmissionWithLuminance, channelTransmissionFromProfile, cornerTransmission, cos4Transmission, isChannelTransmission, profileMismatch } from '../falloff/index.js';
 import type { Transmission } from '../falloff/index.js';
@@ -34,19 +34,13 @@ const DEFAULT_MIN_FEATURE_MM = 3;
 /** Width of the panel edge's transition in working-scale camera pixels, excluded from the mura analysis. */
 const EDGE_TRANSITION_CAMERA_PX = 3;
 
-/**
- * Contrast (%) of one code value of an 8-bit sRGB photo at the level of the panel's centre point, or
- * null for other input. With Y = ((V / 255 + 0.055) / 1.055)^2.4 (IEC 61966-2-1), d ln Y / dV =
- * 2.4 / (V + 0.055 x 255).
- */
+/** Contrast (%) of one code value of an 8-bit sRGB photo at the level of the panel's centre point, or null for other input. */
 function codeStepAt(result: PhotoResult, points: GridPoint[]): number | null {
   const d = result.decode;
   if (!d || d.bitDepth !== 8 || d.transfer !== 'srgb') return null;
   const centre = points.find((p) => p.u === 0.5 && p.v === 0.5) ?? points[0];
   const y = centre?.Y;
-  if (!(y !== undefined && y > 0 && y <= 1)) return null;
-  const v = 255 * srgbEncode(y);
-  return (100 * 2.4) / (v + 0.055 * 255);
+  return y !== undefined && y > 0 && y <= 1 ? srgbCodeStepPct(y) : null;
 }
 
 function withoutBorder(valid: Uint8Array, w: number, h: number, border: number): Uint8Array {

@@ -8,6 +8,7 @@ import {
   SRGB_LUT_8,
   SRGB_TO_XYZ,
   XYZ_TO_SRGB,
+  srgbCodeStepPct,
   apexAv,
   apexBv,
   apexEv,
@@ -70,6 +71,20 @@ describe('sRGB transfer function', () => {
       const back = new Color('srgb-linear', [v, v, v]).to('srgb').coords[0] as number;
       expect(Math.abs(srgbEncode(v) - back)).toBeLessThan(1e-12);
     }
+  });
+
+  it('gives the contrast of one 8-bit code value as the central difference of colorjs.io sRGB decoding', () => {
+    // reference: colorjs.io 'srgb' -> 'srgb-linear' (IEC 61966-2-1) at V - 1/2 and V + 1/2 code values
+    for (const V of [5, 20, 60, 90, 128, 200, 250]) {
+      const lin = (c: number): number => new Color('srgb', [c / 255, c / 255, c / 255]).to('srgb-linear').coords[0] as number;
+      const y = lin(V);
+      const ref = (100 * (lin(V + 0.5) - lin(V - 0.5))) / y;
+      // a derivative against a one-code difference: agree to 0.5 % of the value (curvature over one code)
+      expect(Math.abs(srgbCodeStepPct(y) - ref) / ref).toBeLessThan(0.005);
+    }
+    // worked values (formula 2.4 / (V + 14.025)): code 90 -> 2.31 %, code 200 -> 1.12 %
+    expect(srgbCodeStepPct(new Color('srgb', [90 / 255, 0, 0]).to('srgb-linear').coords[0] as number)).toBeCloseTo(2.307, 2);
+    expect(srgbCodeStepPct(new Color('srgb', [200 / 255, 0, 0]).to('srgb-linear').coords[0] as number)).toBeCloseTo(1.121, 2);
   });
 
   it('agrees with culori rgb -> lrgb', () => {

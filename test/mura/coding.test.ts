@@ -1,0 +1,49 @@
+// What 8-bit JPEG coding can fake is not reported: patches no larger than two 8 x 8 blocks (JPEG codes
+// each block on its own: ITU-T T.81 / ISO/IEC 10918-1, baseline DCT on 8 x 8 blocks) and small findings
+// fainter than one code value at the panel's level (IEC 61966-2-1 transfer, see srgbCodeStepPct).
+import { describe, expect, it } from 'vitest';
+import { analyseMura } from '../../lib/mura/index.js';
+import { synthMap } from '../../scripts/mura-synth.js';
+import { nearest } from './helpers.js';
+
+const W = 240;
+const H = 150;
+
+function map(sigmaMm: number, peakPct: number) {
+  return synthMap({
+    widthMm: W,
+    heightMm: H,
+    pxPerMm: 2,
+    noisePct: 0.3,
+    seed: 31,
+    smooth: [[0, 0.02], [0.03]],
+    features: [{ kind: 'gauss', xMm: 100, yMm: 70, sigmaMm, contrastPct: peakPct }],
+  });
+}
+
+describe('coding limits', () => {
+  it('drops a finding no wider than two JPEG blocks, and keeps it when the input is not JPEG', () => {
+    // sigma 1 mm: half-peak diameter 2.35 mm; blocks of 2 mm on the panel -> must reach 4 mm
+    const m = map(1, 8);
+    const plain = analyseMura(m, { pattern: 'gray' });
+    const spot = nearest(plain.blobs, 100, 70);
+    expect(spot && Math.hypot(spot.xMm - 100, spot.yMm - 70)).toBeLessThan(1);
+    const jpeg = analyseMura(m, { pattern: 'gray', jpegBlockMm: 2 });
+    expect(jpeg.blobs.filter((b) => Math.hypot(b.xMm - 100, b.yMm - 70) < 5)).toHaveLength(0);
+    // the same spot twice as wide spans more than two 2 mm blocks and stays
+    const wide = analyseMura(map(2, 8), { pattern: 'gray', jpegBlockMm: 2 });
+    expect(wide.blobs.some((b) => Math.hypot(b.xMm - 100, b.yMm - 70) < 1)).toBe(true);
+  });
+
+  it('drops a small finding fainter than one 8-bit code value, and keeps it at a finer step', () => {
+    // sigma 3 mm (7 mm across): peak 2 %, mean over the half-peak region 2 / (2 ln 2) = 1.44 %
+    const m = map(3, 2);
+    const coarse = analyseMura(m, { pattern: 'gray', codeStepPct: 2 });
+    expect(coarse.blobs.filter((b) => Math.hypot(b.xMm - 100, b.yMm - 70) < 5)).toHaveLength(0);
+    const fine = analyseMura(m, { pattern: 'gray', codeStepPct: 1 });
+    const s = fine.blobs.find((b) => Math.hypot(b.xMm - 100, b.yMm - 70) < 1);
+    expect(s?.kind).toBe('spot');
+    expect(s!.contrastPct).toBeGreaterThan(1);
+    expect(s!.contrastPct).toBeLessThan(2);
+  });
+});
