@@ -245,7 +245,10 @@ function featureMask(ctx: Ctx, opts: MuraOptions): Uint8Array {
   // whole-panel surface missing the edge (where it has the least support) as a feature, and masking it
   // would keep the surface from ever reaching there. A true feature there is still found, partly
   // absorbed. On black fields glow is at the edges by nature and is masked like any feature.
-  const atEdge = (f: Found): boolean => !ctx.black && f.touch.left + f.touch.right + f.touch.top + f.touch.bottom > 0;
+  // A band or line across the panel touches two edges by nature and is masked like any feature.
+  const spans = (f: Found): boolean =>
+    (f.bbox[2] - f.bbox[0]) >= opts.bandMinSpan * w || (f.bbox[3] - f.bbox[1]) >= opts.bandMinSpan * h;
+  const atEdge = (f: Found): boolean => !ctx.black && f.touch.left + f.touch.right + f.touch.top + f.touch.bottom > 0 && !spans(f);
   const strong = ctx.found.filter((f) => semu(f.contrastPct, f.areaMm2, opts.semuConstants) >= 0.5 * opts.semuFloor && !atEdge(f));
   if (strong.length === 0) return mask;
   let valid = 0;

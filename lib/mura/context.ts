@@ -232,6 +232,8 @@ export function isDuplicate(ctx: Ctx, f: Found): boolean {
     const no = other.pixels.length;
     const small = Math.min(n, no);
     if (c <= 0.5 * small) continue;
+    // a piece of a band across the panel, of its sign, is that band (cut where another feature crosses it)
+    if (other.source === 'profile' && other.sign === f.sign && c > 0.5 * n) return true;
     if (Math.max(n, no) < 8 * small) return true;
     if (elongated(f) && elongated(other)) {
       let da = Math.abs(f.angleDeg - other.angleDeg) % 180;

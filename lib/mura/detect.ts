@@ -303,6 +303,10 @@ function finishLevel(lv: Level): Level {
 export function detectFeatures(ctx: Ctx, levels: Level[], useFitFloor = true): void {
   const o = ctx.opts;
   const floor = useFitFloor ? o.fitSigma * ctx.fitErrorPct : 0;
+  // bands and lines across the whole panel first, so that the pieces of them the round search finds
+  // (where another feature crosses them) count as the band
+  // (not in the first, low-order round: the misfit of that surface runs across the panel too)
+  if (useFitFloor) findBands(ctx, levels[Math.min(1, levels.length - 1)], floor);
   const cands: Candidate[] = [];
   for (const lv of levels) {
     const thr = Math.max(o.thresholdSigma * lv.noiseS, floor);
@@ -723,4 +727,153 @@ function quantileOf(values: Float32Array, q: number): number {
     acc += hist[b];
   }
   return max;
+}
+
+/**
+ * Bands and lines that run across the whole panel, from profiles: the median of each row (for
+ * horizontal bands) or column (vertical) of the level. A median across the panel ignores whatever
+ * covers less than half of the row - a cloud, or a band crossing the other way - so a band is seen
+ * whole where the round search sees it cut in pieces. Each band must also be there evenly along its
+ * length (four of five stretches).
+ */
+function findBands(ctx: Ctx, lv: Level, floor: number): void {
+  const o = ctx.opts;
+  const full = lv.f * lv.f;
+  for (const axis of ['horizontal', 'vertical'] as const) {
+    const along = axis === 'horizontal' ? lv.w : lv.h; // along the band
+    const across = axis === 'horizontal' ? lv.h : lv.w;
+    const at = (a: number, c: number): number => (axis === 'horizontal' ? c * lv.w + a : a * lv.w + c);
+    const P = new Float64Array(across).fill(NaN);
+    const buf = new Float64Array(along);
+    for (let c = 0; c < across; c++) {
+      let k = 0;
+      for (let a = 0; a < along; a++) {
+        const i = at(a, c);
+        if (lv.n[i] >= 0.5 * full) buf[k++] = lv.m[i];
+      }
+      if (k >= 0.5 * along) P[c] = medianOfFirst(buf, k);
+    }
+    // light smoothing (sigma 1 px) and the noise of the profile, as on the levels
+    const S = new Float64Array(across).fill(NaN);
+    const r = (KERNEL.length - 1) >> 1;
+    for (let c = 0; c < across; c++) {
+      let a = 0;
+      let b = 0;
+      for (let d = -r; d <= r; d++) {
+        const v = P[c + d];
+        if (c + d < 0 || c + d >= across || !Number.isFinite(v)) continue;
+        a += KERNEL[d + r] * v;
+        b += KERNEL[d + r];
+      }
+      if (b > 0.5) S[c] = a / b;
+    }
+    const D = 3;
+    const diffs: number[] = [];
+    for (let c = D; c < across - D; c++) {
+      const d = S[c] - 0.5 * (S[c - D] + S[c + D]);
+      if (Number.isFinite(d)) diffs.push(Math.abs(d));
+    }
+    if (diffs.length < 20) continue;
+    const rho = (d: number): number => Math.exp(-(d * d) / (4 * SMOOTH_SIGMA * SMOOTH_SIGMA));
+    const gain = Math.sqrt(1.5 - 2 * rho(D) + 0.5 * rho(2 * D));
+    const noise = quantileOf(Float32Array.from(diffs), 0.75) / 1.15 / gain;
+    const thr = Math.max(o.thresholdSigma * noise, floor, 1e-9);
+    const taken = new Uint8Array(across);
+    for (const sign of [1, -1] as const) {
+      // local extrema beyond the threshold, strongest first
+      const peaks: number[] = [];
+      for (let c = 0; c < across; c++) {
+        const v = sign * S[c];
+        if (!(v > thr)) continue;
+        if ((c > 0 && sign * S[c - 1] > v) || (c < across - 1 && sign * S[c + 1] >= v)) continue;
+        peaks.push(c);
+      }
+      peaks.sort((p, q) => sign * S[q] - sign * S[p]);
+      for (const pk of peaks.slice(0, 10)) {
+        if (taken[pk]) continue;
+        const half = 0.5 * sign * S[pk];
+        let c0 = pk;
+        let c1 = pk;
+        while (c0 > 0 && sign * S[c0 - 1] >= half) c0--;
+        while (c1 < across - 1 && sign * S[c1 + 1] >= half) c1++;
+        if (c0 === 0 && c1 === across - 1) continue; // the whole panel: not a band
+        let clash = false;
+        for (let c = c0; c <= c1; c++) if (taken[c]) clash = true;
+        if (clash) continue;
+        // there along the panel, evenly: in four of five stretches along it the band's mean is between
+        // 0.4 and 2.5 times the median of the five (a cloud that pulls the medians of the rows through
+        // it is strong in one or two stretches and faint in the rest)
+        const means: number[] = [];
+        for (let part = 0; part < 5; part++) {
+          const a0 = Math.floor((part * along) / 5);
+          const a1 = Math.floor(((part + 1) * along) / 5);
+          let sum = 0;
+          let cnt = 0;
+          for (let c = c0; c <= c1; c++) {
+            for (let a = a0; a < a1; a++) {
+              const i = at(a, c);
+              if (lv.n[i] > 0) {
+                sum += lv.m[i];
+                cnt++;
+              }
+            }
+          }
+          means.push(cnt > 0 ? (sign * sum) / cnt : 0);
+        }
+        const typical = [...means].sort((p, q) => p - q)[2];
+        if (!(typical >= half * (2 / 3))) continue;
+        const even = means.filter((v) => v >= 0.4 * typical && v <= 2.5 * typical).length;
+        if (even < 4) continue;
+        // and smooth along it: the band's mean at each position along it scatters (robustly) by less
+        // than half of its level - a row of separate zones (hot spots) alternates between them and the gaps
+        const alongMeans: number[] = [];
+        for (let a = 0; a < along; a++) {
+          let sum = 0;
+          let cnt = 0;
+          for (let c = c0; c <= c1; c++) {
+            const i = at(a, c);
+            if (lv.n[i] > 0) {
+              sum += lv.m[i];
+              cnt++;
+            }
+          }
+          if (cnt > 0) alongMeans.push((sign * sum) / cnt);
+        }
+        if (!(robustSigma(alongMeans) < 0.5 * typical)) continue;
+        for (let c = c0; c <= c1; c++) taken[c] = 1;
+        const f = bandFound(ctx, lv, axis, c0, c1, sign, S[pk]);
+        if (f && Math.abs(f.contrastPct) >= floor && f.zNoise >= o.thresholdSigma && !isDuplicate(ctx, f)) register(ctx, f);
+      }
+    }
+  }
+}
+
+function medianOfFirst(a: Float64Array, k: number): number {
+  const s = a.slice(0, k).sort();
+  return k % 2 ? s[k >> 1] : 0.5 * (s[k / 2 - 1] + s[k / 2]);
+}
+
+/** The band between profile positions c0..c1 (level px) across the panel, measured at working resolution. */
+function bandFound(ctx: Ctx, lv: Level, axis: Axis, c0: number, c1: number, sign: 1 | -1, peak: number): Found | null {
+  const { w: W, h: H } = ctx;
+  const f = lv.f;
+  const px: number[] = [];
+  const lo = c0 * f;
+  const hi = Math.min(axis === 'horizontal' ? H : W, (c1 + 1) * f);
+  if (axis === 'horizontal') {
+    for (let y = lo; y < hi; y++) for (let x = 0; x < W; x++) if (ctx.wt[y * W + x] > 0) px.push(y * W + x);
+  } else {
+    for (let y = 0; y < H; y++) for (let x = lo; x < hi; x++) if (ctx.wt[y * W + x] > 0) px.push(y * W + x);
+  }
+  if (px.length === 0) return null;
+  const mid = ((c0 + c1 + 1) / 2) * f - 0.5;
+  const found = measureRegion(ctx, Int32Array.from(px), 0, peak, axis === 'horizontal' ? [W / 2, mid] : [mid, H / 2], sign, 'profile', axis);
+  if (!found) return null;
+  // the profile's blur (box of one level px and the 1-px kernel) out of the width, in quadrature
+  const wpx = c1 - c0 + 1;
+  const cb = Math.sqrt(Math.max(wpx * wpx - BLUR_FWHM2, 0.25 * wpx * wpx)) / wpx;
+  found.areaMm2 *= cb;
+  found.widthMm *= cb;
+  found.contrastPct /= Math.sqrt(cb);
+  return found;
 }

@@ -109,3 +109,26 @@ describe('lines and bands', () => {
     expect(nearest(r.blobs, 60, 40)!.kind).toBe('spot');
   });
 });
+
+describe('crossing bands', () => {
+  it('measures two bands that cross each other as two whole bands', () => {
+    // raised-cosine bands (FWHM w): half-peak strip w wide across the panel, mean 1/2 + 1/pi of the peak
+    const r = run(
+      [
+        { kind: 'band', axis: 'horizontal', posMm: 60, fwhmMm: 12, profile: 'cos', contrastPct: -4 },
+        { kind: 'band', axis: 'vertical', posMm: 150, fwhmMm: 20, profile: 'cos', contrastPct: 3 },
+      ],
+      13,
+    );
+    const h = r.blobs.find((b) => b.kind === 'band' && b.detail.axis === 'horizontal');
+    const v = r.blobs.find((b) => b.kind === 'band' && b.detail.axis === 'vertical');
+    expect(h?.polarity).toBe('dark');
+    expect(v?.polarity).toBe('bright');
+    expect(relErr(h!.areaMm2, 12 * W)).toBeLessThan(0.3);
+    expect(relErr(v!.areaMm2, 20 * H)).toBeLessThan(0.3);
+    expect(relErr(h!.contrastPct, -4 * (0.5 + 1 / Math.PI))).toBeLessThan(0.25);
+    expect(relErr(v!.contrastPct, 3 * (0.5 + 1 / Math.PI))).toBeLessThan(0.25);
+    expect(Math.abs(h!.yMm - 60)).toBeLessThan(2);
+    expect(Math.abs(v!.xMm - 150)).toBeLessThan(2);
+  });
+});
