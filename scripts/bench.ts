@@ -6,7 +6,8 @@
 // On generated 12- and 24-megapixel JPEGs (cached under .cache/bench), in one run:
 //  (a) sharp alone decoding each photo to raw 8-bit RGB at full size (the lower bound of any per-photo work);
 //  (b) evenfield's full measurement of the same photo, as `inspect --no-pdf` does it: decode, falloff
-//      profile, panel, rectification, grid, mura (in this process, after one warm-up per size);
+//      profile, panel, rectification, grid, mura (in this process, after one warm-up per size); beside it
+//      the decode alone and the measurement without the mura analysis, to show where the time goes;
 //  (c) writing the panel's PDF (report rendering and the atomic write), per panel of three photos;
 //  (d) lot throughput of the command (`inspect`, PDFs included) with --jobs 1 and --jobs 2;
 //  (e) peak resident memory of the command (all threads) for lots of 20 and 200 photos.
@@ -114,6 +115,8 @@ interface PhotoRun {
   load1: number;
   a: Timed;
   decode: Timed;
+  /** (b) without the mura analysis (--no-mura), to tell its share */
+  bNoMura: Timed;
   b: Timed;
   status: string;
 }
@@ -131,11 +134,15 @@ interface SizeFigures {
     decodeCpuMs: number;
     bWallMs: number;
     bCpuMs: number;
+    bNoMuraWallMs: number;
+    bNoMuraCpuMs: number;
     /** median over photos and runs of (b)/(a), each pair measured back to back */
     ratioWall: number;
     ratioCpu: number;
     decodeRatioWall: number;
     decodeRatioCpu: number;
+    noMuraRatioWall: number;
+    noMuraRatioCpu: number;
   };
   pdf: { panelPhotos: number; runs: Timed[]; medianWallMs: number; medianCpuMs: number; bytes: number; load1: number } | null;
 }
@@ -143,6 +150,7 @@ interface SizeFigures {
 async function perPhoto(set: BenchSet, size: BenchSize, runs: number): Promise<SizeFigures> {
   const opts = (file: string, artifacts = false) => benchMeasureOptions(file, { profile: size.profile, mura: true, panelSizeMm: set.panelSizeMm, artifacts });
   const prepared = new Map(size.photos.map((p) => [p.file, opts(p.file)]));
+  const preparedNoMura = new Map(size.photos.map((p) => [p.file, { ...opts(p.file), mura: false }]));
   // warm-up: loads the modules, compiles the hot loops, fills the falloff model's cache
   await measurePhoto(size.photos[0]!.file, prepared.get(size.photos[0]!.file)!);
   const out: PhotoRun[] = [];
@@ -152,12 +160,13 @@ async function perPhoto(set: BenchSet, size: BenchSize, runs: number): Promise<S
       const l = load1();
       const a = await timed(() => sharp(p.file).raw().toBuffer());
       const decode = await timed(async () => decodePhotoBuffer(await readInputFile(p.file), p.file, { targetLongSide: o.workLongSide, transfer: o.transfer, maxPixels: o.maxPixels }));
+      const b0 = await timed(() => measurePhoto(p.file, preparedNoMura.get(p.file)!));
       const b = await timed(() => measurePhoto(p.file, o));
       const res = b.value.result;
       const status = res.status === 'ok' ? 'ok' : `${res.errorCode}: ${res.error}`;
-      out.push({ photo: p.file, run: r + 1, load1: l, a: { wallMs: a.wallMs, cpuMs: a.cpuMs }, decode: { wallMs: decode.wallMs, cpuMs: decode.cpuMs }, b: { wallMs: b.wallMs, cpuMs: b.cpuMs }, status });
+      out.push({ photo: p.file, run: r + 1, load1: l, a: { wallMs: a.wallMs, cpuMs: a.cpuMs }, decode: { wallMs: decode.wallMs, cpuMs: decode.cpuMs }, bNoMura: { wallMs: b0.wallMs, cpuMs: b0.cpuMs }, b: { wallMs: b.wallMs, cpuMs: b.cpuMs }, status });
       log(
-        `  ${size.label} ${p.token.padEnd(6)} run ${r + 1}: (a) ${a.wallMs.toFixed(0)} ms [${a.cpuMs.toFixed(0)} CPU]  decode ${decode.wallMs.toFixed(0)} [${decode.cpuMs.toFixed(0)}]  (b) ${b.wallMs.toFixed(0)} [${b.cpuMs.toFixed(0)}]  load ${l}  ${status}`,
+        `  ${size.label} ${p.token.padEnd(6)} run ${r + 1}: (a) ${a.wallMs.toFixed(0)} ms [${a.cpuMs.toFixed(0)} CPU]  decode ${decode.wallMs.toFixed(0)} [${decode.cpuMs.toFixed(0)}]  no mura ${b0.wallMs.toFixed(0)} [${b0.cpuMs.toFixed(0)}]  (b) ${b.wallMs.toFixed(0)} [${b.cpuMs.toFixed(0)}]  load ${l}  ${status}`,
       );
     }
   }
@@ -215,10 +224,14 @@ async function perPhoto(set: BenchSet, size: BenchSize, runs: number): Promise<S
       decodeCpuMs: m((r) => r.decode.cpuMs),
       bWallMs: m((r) => r.b.wallMs),
       bCpuMs: m((r) => r.b.cpuMs),
+      bNoMuraWallMs: m((r) => r.bNoMura.wallMs),
+      bNoMuraCpuMs: m((r) => r.bNoMura.cpuMs),
       ratioWall: m((r) => r.b.wallMs / r.a.wallMs),
       ratioCpu: m((r) => r.b.cpuMs / r.a.cpuMs),
       decodeRatioWall: m((r) => r.decode.wallMs / r.a.wallMs),
       decodeRatioCpu: m((r) => r.decode.cpuMs / r.a.cpuMs),
+      noMuraRatioWall: m((r) => r.bNoMura.wallMs / r.a.wallMs),
+      noMuraRatioCpu: m((r) => r.bNoMura.cpuMs / r.a.cpuMs),
     },
     pdf,
   };
@@ -308,7 +321,7 @@ async function main(): Promise<void> {
     const m = f.medians;
     log(
       `  ${f.size}: (a) ${m.aWallMs.toFixed(0)} ms [${m.aCpuMs.toFixed(0)}]  evenfield decode ${m.decodeWallMs.toFixed(0)} ms [${m.decodeCpuMs.toFixed(0)}]  ` +
-        `(b) ${m.bWallMs.toFixed(0)} ms [${m.bCpuMs.toFixed(0)}]  (b)/(a) ${m.ratioWall.toFixed(2)} [${m.ratioCpu.toFixed(2)}]  decode/(a) ${m.decodeRatioWall.toFixed(2)} [${m.decodeRatioCpu.toFixed(2)}]` +
+        `without mura ${m.bNoMuraWallMs.toFixed(0)} ms [${m.bNoMuraCpuMs.toFixed(0)}]  (b) ${m.bWallMs.toFixed(0)} ms [${m.bCpuMs.toFixed(0)}]  (b)/(a) ${m.ratioWall.toFixed(2)} [${m.ratioCpu.toFixed(2)}]  decode/(a) ${m.decodeRatioWall.toFixed(2)} [${m.decodeRatioCpu.toFixed(2)}]  without mura/(a) ${m.noMuraRatioWall.toFixed(2)} [${m.noMuraRatioCpu.toFixed(2)}]` +
         (f.pdf ? `  (c) PDF per panel ${f.pdf.medianWallMs.toFixed(0)} ms [${f.pdf.medianCpuMs.toFixed(0)}]` : ''),
     );
   }
