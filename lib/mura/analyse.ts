@@ -1,8 +1,9 @@
 // Full-field mura analysis of a rectified panel map.
 //
-//   luminance -> working raster -> robust polynomial background B (features masked, refitted)
-//   -> contrast C = 100 (Y - B) / B -> lines/bands on axis profiles + round features on DoG scales
-//   -> half-peak regions -> kind, contrast, area, SEMU -> hot-spot arrays, tile seams -> ranked list.
+//   luminance -> working raster -> robust polynomial background B (order 2 first, then the full order
+//   with the features found so far masked) -> contrast C = 100 (Y - B) / B -> bands across the panel
+//   from row/column medians, features of every size on a pyramid of C (detect.ts) -> half-peak regions
+//   -> kind, contrast, area, SEMU -> hot-spot arrays, tile seams -> ranked list.
 
 import { EvenfieldError } from '../errors.js';
 import type { Blob, MuraResult, PanelMap, Plane } from '../types.js';
