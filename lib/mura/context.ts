@@ -87,9 +87,6 @@ export interface Found {
   touch: { top: number; bottom: number; left: number; right: number };
   /** mean contrast (against the surround) of those pixels, per edge (0 where none) */
   edgeContrast: { top: number; bottom: number; left: number; right: number };
-  /** DoG scale (working px) a feature of this width would be found at; seeds finer than a third of
-   *  it inside the region may be separate, nested features */
-  matchedScalePx: number;
 }
 
 /** Measure a region: mean contrast and centroid on the unsmoothed contrast map, shape from moments. */
@@ -209,7 +206,6 @@ export function measureRegion(
     zNoise,
     zFit,
     touch,
-    matchedScalePx: widthMm / mm / 3.33,
   };
 }
 
