@@ -113,6 +113,7 @@ describe('lines and bands', () => {
 describe('crossing bands', () => {
   it('measures two bands that cross each other as two whole bands', () => {
     // raised-cosine bands (FWHM w): half-peak strip w wide across the panel, mean 1/2 + 1/pi of the peak
+    // (integral by hand, as for the single band above)
     const r = run(
       [
         { kind: 'band', axis: 'horizontal', posMm: 60, fwhmMm: 12, profile: 'cos', contrastPct: -4 },
