@@ -65,10 +65,16 @@ export function formatName(f: string): string {
 export function describeDecodeFailure(format: string, message: string): string {
   const name = formatName(format);
   const first = (message.split('\n')[0] ?? '').replace(/^Input (buffer|file) (has corrupt header|contains)\s*:?\s*/i, '').trim();
+  if (/^Warning treated as error/i.test(first)) {
+    return `truncated or damaged ${name} data (the decoder warned while reading it)`;
+  }
   if (/premature end|truncat|unexpected end|short read|end of (file|stream|data)|out of data|not enough data/i.test(message)) {
     return `truncated ${name} data`;
   }
-  if (/libpng read error|read error|unable to parse|corrupt|invalid|bad|unsupported image format/i.test(message)) {
+  // With failOn set, libvips sometimes reports only its own "Warning treated as error" line and not the
+  // decoder's warning text (seen on one machine for a JPEG with overwritten entropy-coded data): that
+  // too means the data is damaged.
+  if (/libpng read error|read error|unable to parse|corrupt|invalid|bad|unsupported image format|treated as error/i.test(message)) {
     return `truncated or damaged ${name} data (${first})`;
   }
   return `cannot decode ${name} file (${first})`;

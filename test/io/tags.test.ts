@@ -84,5 +84,9 @@ describe('sniffing and messages', () => {
     expect(describeDecodeFailure('jpeg', 'VipsJpeg: premature end of JPEG image')).toBe('truncated JPEG data');
     expect(describeDecodeFailure('png', 'vipspng: libpng read error')).toMatch(/^truncated or damaged PNG data/);
     expect(describeDecodeFailure('tiff', 'something odd\nsecond line')).toBe('cannot decode TIFF file (something odd)');
+    // libvips with failOn may give only its own line, without the decoder's warning text.
+    expect(describeDecodeFailure('jpeg', 'Warning treated as error due to failOn setting')).toBe(
+      'truncated or damaged JPEG data (the decoder warned while reading it)',
+    );
   });
 });
