@@ -155,7 +155,7 @@ const plans: PanelPlan[] = [
     serial: 'HX27-3116',
     ...ordinary(),
     features: [blackCloud(16)],
-    glare: { white: [{ u: 0.78, v: 0.24, sizeMm: 70, level: 0.25 }] },
+    glare: { white: [{ u: 0.78, v: 0.24, sizeMm: 70, level: 0.6 }] },
     planted: 'good panel, but the white photo caught a lamp reflection (added light, not panel emission) near the top right',
     expected: 'retake',
     notes: { white: 'corridor door open during this shot' },

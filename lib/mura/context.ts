@@ -1,6 +1,7 @@
 // State shared by the detectors of one analysis round, and the measurement of a found region.
 
 import type { MuraOptions } from './options.js';
+import { srgbCodeStepPct } from '../photometry/index.js';
 
 export interface Ctx {
   w: number;
@@ -16,6 +17,8 @@ export interface Ctx {
   rho: number;
   /** background model's own error, % (does not average down) */
   fitErrorPct: number;
+  /** the fitted background, linear luminance at working resolution (null in unit tests that give C only) */
+  B: Float32Array | null;
   opts: MuraOptions;
   black: boolean;
   /** working-raster labels: 0 = free, k = found[k - 1] */
@@ -229,7 +232,9 @@ export function isDuplicate(ctx: Ctx, f: Found): boolean {
     const small = Math.min(n, no);
     if (c <= 0.5 * small) continue;
     // a piece of a band across the panel, of its sign, is that band (cut where another feature crosses it)
-    if (other.source === 'profile' && other.sign === f.sign && c > 0.5 * n) return true;
+    // (not a feature on the band that stands out of it: the search ran with the band's profile taken out,
+    // so what it finds on a band is measured against the band, and a remnant is weaker than the band)
+    if (other.source === 'profile' && other.sign === f.sign && c > 0.5 * n && Math.abs(f.contrastPct) < Math.abs(other.contrastPct)) return true;
     if (Math.max(n, no) < 8 * small) return true;
     if (elongated(f) && elongated(other)) {
       let da = Math.abs(f.angleDeg - other.angleDeg) % 180;
@@ -249,4 +254,38 @@ export function register(ctx: Ctx, f: Found): void {
     const l = ctx.label[i];
     if (l === 0 || ctx.found[l - 1].pixels.length > f.pixels.length) ctx.label[i] = id;
   }
+}
+
+/**
+ * Contrast (%) of one 8-bit code value where the camera saw the working pixel (x, y), from the code level
+ * at the panel's centre, the background's level there and the lens transmission there; null when the
+ * input is not 8-bit sRGB or the level is unknown.
+ */
+export function localCodeStepPct(ctx: Ctx, x: number, y: number): number | null {
+  const cl = ctx.opts.codeLevel;
+  if (!cl || !ctx.B) return null;
+  const { w, h, B } = ctx;
+  const xi = Math.min(w - 1, Math.max(0, Math.round(x)));
+  const yi = Math.min(h - 1, Math.max(0, Math.round(y)));
+  const bc = B[(h >> 1) * w + (w >> 1)];
+  const bp = B[yi * w + xi];
+  if (!(bc > 0) || !(bp > 0)) return null;
+  let level = (cl.centreY * bp) / bc;
+  if (cl.gain) level *= bilinearNode(cl.gain, (x + 0.5) / w, (y + 0.5) / h);
+  return level > 0 && level <= 1 ? srgbCodeStepPct(level) : null;
+}
+
+/** Bilinear value of a grid of nodes spanning u, v = 0..1. */
+function bilinearNode(g: { cols: number; rows: number; data: Float32Array }, u: number, v: number): number {
+  const fx = Math.min(g.cols - 1, Math.max(0, u * (g.cols - 1)));
+  const fy = Math.min(g.rows - 1, Math.max(0, v * (g.rows - 1)));
+  const x0 = Math.min(g.cols - 2, Math.floor(fx));
+  const y0 = Math.min(g.rows - 2, Math.floor(fy));
+  const ax = fx - x0;
+  const ay = fy - y0;
+  const d = g.data;
+  const c = g.cols;
+  return (
+    (1 - ay) * ((1 - ax) * d[y0 * c + x0] + ax * d[y0 * c + x0 + 1]) + ay * ((1 - ax) * d[(y0 + 1) * c + x0] + ax * d[(y0 + 1) * c + x0 + 1])
+  );
 }

@@ -18,7 +18,7 @@
 // The feature is measured where that correction stays small (the region at least 6 level px wide).
 
 import type { Axis, Ctx, Found } from './context.js';
-import { isDuplicate, measureRegion, register } from './context.js';
+import { isDuplicate, localCodeStepPct, measureRegion, register } from './context.js';
 import { robustSigma } from './raster.js';
 
 interface Level {
@@ -300,13 +300,24 @@ function finishLevel(lv: Level): Level {
  * useFitFloor: features must also stand fitSigma x the background model's error above it (off for the
  * first, low-order round, whose model error is mostly the features it is there to find).
  */
-export function detectFeatures(ctx: Ctx, levels: Level[], useFitFloor = true): void {
+export function detectFeatures(ctx: Ctx, levelsIn: Level[], useFitFloor = true): void {
+  let levels = levelsIn;
+  let original: Float32Array | null = null;
   const o = ctx.opts;
   const floor = useFitFloor ? o.fitSigma * ctx.fitErrorPct : 0;
   // bands and lines across the whole panel first, so that the pieces of them the round search finds
   // (where another feature crosses them) count as the band
   // (not in the first, low-order round: the misfit of that surface runs across the panel too)
-  if (useFitFloor) findBands(ctx, levels[Math.min(1, levels.length - 1)], floor);
+  if (useFitFloor) {
+    const bands = findBands(ctx, levels[Math.min(1, levels.length - 1)], floor);
+    // the search for everything else runs on the map with the bands' profiles taken out: a spot sitting on
+    // a band is measured against the band around it (and a bright spot on a dark band is found at all)
+    if (bands.length > 0) {
+      original = ctx.C;
+      ctx.C = withoutBandProfiles(ctx, bands);
+      levels = buildLevels(ctx);
+    }
+  }
   const cands: Candidate[] = [];
   for (const lv of levels) {
     const thr = Math.max(o.thresholdSigma * lv.noiseS, floor);
@@ -341,13 +352,16 @@ export function detectFeatures(ctx: Ctx, levels: Level[], useFitFloor = true): v
     const extentMm = Math.max(f.lengthMm, 2 * Math.sqrt(f.areaMm2 / Math.PI));
     if (o.jpegBlockMm !== null && extentMm < 2 * o.jpegBlockMm) continue;
     // within one or a few of the 8-bit coding's plateaus: must beat the code step
-    if (o.codeStepPct !== null) {
+    const step = localCodeStepPct(ctx, f.cx, f.cy) ?? o.codeStepPct;
+    if (step !== null) {
       const share = extentMm < 25 ? 1 : extentMm < 100 ? 0.5 : 0;
-      if (Math.abs(f.contrastPct) < share * o.codeStepFactor * o.codeStepPct) continue;
+      if (Math.abs(f.contrastPct) < share * o.codeStepFactor * step) continue;
     }
     if (isDuplicate(ctx, f)) continue;
     register(ctx, f);
   }
+  // what follows (masks, tile seams and steps) works on the contrast map as it is
+  if (original) ctx.C = original;
 }
 
 /** How much more noise survives averaging than white noise would, from the levels' own noise. */
@@ -672,9 +686,10 @@ function crossDistance(a: Candidate, b: Candidate): number {
 function pick(g: Candidate[]): Candidate {
   const byLevel = [...g].sort((a, b) => a.level.l - b.level.l);
   for (const c of byLevel) if (c.minor >= 6 && c.snr >= 10) return c;
+  // resolved nowhere (a thin line, a small spot): the finest level that sees it at all across 3 px; a
+  // coarser level sees it more strongly only because it blurs it over a larger region
   const wide = byLevel.filter((c) => c.minor >= 3);
-  const pool = wide.length ? wide : byLevel;
-  return pool.reduce((a, b) => (b.snr > a.snr ? b : a));
+  return wide.length ? wide[0] : byLevel.reduce((a, b) => (b.snr > a.snr ? b : a));
 }
 
 function toFound(ctx: Ctx, c: Candidate): Found | null {
@@ -736,7 +751,57 @@ function quantileOf(values: Float32Array, q: number): number {
  * whole where the round search sees it cut in pieces. Each band must also be there evenly along its
  * length (four of five stretches).
  */
-function findBands(ctx: Ctx, lv: Level, floor: number): void {
+/** A band's profile across the panel, as found (level px). */
+interface BandProfile {
+  axis: Axis;
+  c0: number;
+  c1: number;
+  /** level factor (working px per level px) */
+  f: number;
+  /** smoothed profile across the panel, level px (NaN where unknown) */
+  S: Float64Array;
+}
+
+/**
+ * The contrast map less the found bands' profiles: each band's smoothed profile over its half-peak span
+ * and on outwards while it keeps falling towards zero on its side (its tails, e.g. the long exponential
+ * tail of light along an edge).
+ */
+function withoutBandProfiles(ctx: Ctx, bands: BandProfile[]): Float32Array {
+  const { w, h } = ctx;
+  const out = new Float32Array(ctx.C);
+  for (const b of bands) {
+    const across = b.axis === 'horizontal' ? h : w;
+    const along = b.axis === 'horizontal' ? w : h;
+    const S = b.S;
+    const sign = Math.sign(S[(b.c0 + b.c1) >> 1]) || 1;
+    let lo = b.c0;
+    let hi = b.c1;
+    while (lo > 0 && sign * S[lo - 1] > 0 && sign * S[lo - 1] <= sign * S[lo]) lo--;
+    while (hi < S.length - 1 && sign * S[hi + 1] > 0 && sign * S[hi + 1] <= sign * S[hi]) hi++;
+    const off = new Float64Array(across);
+    for (let t = 0; t < across; t++) {
+      const c = (t + 0.5) / b.f - 0.5;
+      if (c < lo - 0.5 || c > hi + 0.5) continue;
+      const i0 = Math.max(lo, Math.min(hi, Math.floor(c)));
+      const i1 = Math.min(hi, i0 + 1);
+      const a = Math.min(1, Math.max(0, c - i0));
+      const v = (1 - a) * S[i0] + a * S[i1];
+      if (Number.isFinite(v)) off[t] = v;
+    }
+    for (let t = 0; t < across; t++) {
+      if (off[t] === 0) continue;
+      for (let a = 0; a < along; a++) {
+        const i = b.axis === 'horizontal' ? t * w + a : a * w + t;
+        if (ctx.wt[i] > 0) out[i] -= off[t];
+      }
+    }
+  }
+  return out;
+}
+
+function findBands(ctx: Ctx, lv: Level, floor: number): BandProfile[] {
+  const bands: BandProfile[] = [];
   const o = ctx.opts;
   const full = lv.f * lv.f;
   for (const axis of ['horizontal', 'vertical'] as const) {
@@ -842,10 +907,14 @@ function findBands(ctx: Ctx, lv: Level, floor: number): void {
         if (!(robustSigma(alongMeans) < 0.5 * typical)) continue;
         for (let c = c0; c <= c1; c++) taken[c] = 1;
         const f = bandFound(ctx, lv, axis, c0, c1, sign, S[pk]);
-        if (f && Math.abs(f.contrastPct) >= floor && f.zNoise >= o.thresholdSigma && !isDuplicate(ctx, f)) register(ctx, f);
+        if (f && Math.abs(f.contrastPct) >= floor && f.zNoise >= o.thresholdSigma && !isDuplicate(ctx, f)) {
+          register(ctx, f);
+          bands.push({ axis, c0, c1, f: lv.f, S: S.slice() });
+        }
       }
     }
   }
+  return bands;
 }
 
 function medianOfFirst(a: Float64Array, k: number): number {

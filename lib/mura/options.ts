@@ -19,6 +19,9 @@ export interface BackgroundOptions {
   maskRadiusFactor: number;
   /** largest fraction of the panel the feature mask may cover (default 0.5) */
   maxMaskedFraction: number;
+  /** the margin masked past a feature's half-peak region is at most this fraction of the panel's short
+   *  side (default 0.1); the feature's measured tails are masked whatever their reach */
+  maskPadMaxFraction: number;
 }
 
 export interface MuraOptions {
@@ -62,6 +65,19 @@ export interface MuraOptions {
   codeStepPct: number | null;
   /** multiple of codeStepPct a small finding must exceed (default 1; a rule of practice) */
   codeStepFactor: number;
+  /** 8-bit sRGB input: where the photo's code values lie, so that the code step can be taken where each
+   *  finding is rather than at the panel's centre (null: codeStepPct everywhere). The step grows where the
+   *  camera saw the panel darker: towards the corners (lens falloff, the panel's own roll-off). */
+  codeLevel: CodeLevel | null;
+}
+
+/** The camera's linear code level across the panel, for the local 8-bit code step. */
+export interface CodeLevel {
+  /** linear camera value (0..1 of the code range, falloff-corrected) of the map at the panel's centre */
+  centreY: number;
+  /** lens transmission at panel points on a cols x rows grid of nodes spanning u, v = 0..1 (row by row),
+   *  or null when no falloff correction was applied */
+  gain: { cols: number; rows: number; data: Float32Array } | null;
 }
 
 export type MuraOptionsInput = Partial<Omit<MuraOptions, 'background' | 'semuConstants'>> & {
@@ -79,6 +95,7 @@ export function resolveMuraOptions(input: MuraOptionsInput): MuraOptions {
     rounds: 3,
     maskRadiusFactor: 2.5,
     maxMaskedFraction: 0.5,
+    maskPadMaxFraction: 0.1,
     ...stripUndefined(input.background ?? {}),
   };
   const o: MuraOptions = {
@@ -99,6 +116,7 @@ export function resolveMuraOptions(input: MuraOptionsInput): MuraOptions {
     jpegBlockMm: input.jpegBlockMm ?? null,
     codeStepPct: input.codeStepPct ?? null,
     codeStepFactor: input.codeStepFactor ?? 1,
+    codeLevel: input.codeLevel ?? null,
   };
   validate(o);
   return o;
@@ -133,6 +151,11 @@ function validate(o: MuraOptions): void {
   if (o.jpegBlockMm !== null) positive('jpegBlockMm', o.jpegBlockMm);
   if (o.codeStepPct !== null) positive('codeStepPct', o.codeStepPct);
   if (!(Number.isFinite(o.codeStepFactor) && o.codeStepFactor >= 0)) bad(`codeStepFactor must be >= 0, got ${o.codeStepFactor}`);
+  if (o.codeLevel !== null) {
+    positive('codeLevel.centreY', o.codeLevel.centreY);
+    const g = o.codeLevel.gain;
+    if (g && !(g.cols >= 2 && g.rows >= 2 && g.data.length === g.cols * g.rows)) bad('codeLevel.gain must be a grid of at least 2 x 2 nodes');
+  }
   const b = o.background;
   if (!(Number.isInteger(b.order) && b.order >= 0 && b.order <= 6)) bad(`background.order must be an integer 0..6, got ${b.order}`);
   if (b.cellMm !== null) positive('background.cellMm', b.cellMm);
@@ -140,6 +163,7 @@ function validate(o: MuraOptions): void {
   if (!(Number.isInteger(b.rounds) && b.rounds >= 1 && b.rounds <= 10)) bad('background.rounds must be an integer 1..10');
   positive('background.maskRadiusFactor', b.maskRadiusFactor);
   if (!(b.maxMaskedFraction > 0 && b.maxMaskedFraction < 1)) bad('background.maxMaskedFraction must be in (0, 1)');
+  if (!(b.maskPadMaxFraction > 0 && b.maskPadMaxFraction <= 1)) bad('background.maskPadMaxFraction must be in (0, 1]');
   if (o.tileGrid !== null) {
     const [c, r] = o.tileGrid;
     if (!(Number.isInteger(c) && Number.isInteger(r) && c >= 1 && r >= 1 && c * r >= 2 && c <= 64 && r <= 64)) {

@@ -4,7 +4,7 @@
 import { decodePhotoBuffer, readInputFile } from '../io/index.js';
 import type { DecodedPhoto } from '../io/index.js';
 import { SRGB_TO_XYZ, srgbCodeStepPct, srgbEncode } from '../photometry/index.js';
-import { findPanel, rectifyRgb, estimatePose } from '../geometry/index.js';
+import { applyHomography, findPanel, panelToCamera, rectifyRgb, estimatePose } from '../geometry/index.js';
 import { applyTransmissionWithLuminance, channelTransmissionFromProfile, cornerTransmission, cos4Transmission, isChannelTransmission, profileMismatch } from '../falloff/index.js';
 import type { Transmission } from '../falloff/index.js';
 import type { FalloffProfile } from '../falloff/index.js';
@@ -41,6 +41,24 @@ function codeStepAt(result: PhotoResult, points: GridPoint[]): number | null {
   const centre = points.find((p) => p.u === 0.5 && p.v === 0.5) ?? points[0];
   const y = centre?.Y;
   return y !== undefined && y > 0 && y <= 1 ? srgbCodeStepPct(y) : null;
+}
+
+/** The lens transmission (luminance-weighted for per-channel profiles) at a grid of panel points. */
+function transmissionOnPanel(t: Transmission, corners: Corners, nodes: number): { cols: number; rows: number; data: Float32Array } {
+  const H = panelToCamera(corners);
+  const data = new Float32Array(nodes * nodes);
+  const at = (p: Plane, x: number, y: number): number => {
+    const xi = Math.min(p.width - 1, Math.max(0, Math.round(x)));
+    const yi = Math.min(p.height - 1, Math.max(0, Math.round(y)));
+    return p.data[yi * p.width + xi];
+  };
+  for (let j = 0; j < nodes; j++) {
+    for (let i = 0; i < nodes; i++) {
+      const [x, y] = applyHomography(H, [i / (nodes - 1), j / (nodes - 1)]);
+      data[j * nodes + i] = isChannelTransmission(t) ? 0.2126 * at(t.r, x, y) + 0.7152 * at(t.g, x, y) + 0.0722 * at(t.b, x, y) : at(t, x, y);
+    }
+  }
+  return { cols: nodes, rows: nodes, data };
 }
 
 function withoutBorder(valid: Uint8Array, w: number, h: number, border: number): Uint8Array {
@@ -284,7 +302,7 @@ async function measureInner(
   // Steps 1-7 work on camera-sized images. They run in their own function so that those images are
   // unreachable (and can be freed) during the mura analysis: a local variable of a running function
   // keeps its array alive until the function returns, even after its last use.
-  const { map, points, known, widthMm, heightMm, cameraPxPerMapPx, cornerStrength } = await measureCamera(file, opts, result, partial);
+  const { map, points, known, widthMm, heightMm, cameraPxPerMapPx, cornerStrength, gainGrid } = await measureCamera(file, opts, result, partial);
 
   // 8. mura
   let contrastMap: Plane | null = null;
@@ -298,9 +316,12 @@ async function measureInner(
     const jpegBlockMm = result.decode?.format === 'jpeg' && camPerMap ? 8 / (camPerMap * map.pxPerMm) : null;
     // 8-bit sRGB input: the contrast of one code value at the panel's level in the photo
     const codeStepPct = codeStepAt(result, points);
+    // ...and where the code values lie across the panel, for the step where each finding is
+    const centreY = points.find((p) => p.u === 0.5 && p.v === 0.5)?.Y ?? points[0]?.Y;
+    const codeLevel = codeStepPct !== null && centreY !== undefined && centreY > 0 ? { centreY, gain: gainGrid } : null;
     const mura = analyseMura(
       { ...map, valid: withoutBorder(map.valid, map.width, map.height, border) },
-      { jpegBlockMm, codeStepPct, ...opts.muraOptions, pattern: opts.pattern },
+      { jpegBlockMm, codeStepPct, codeLevel, ...opts.muraOptions, pattern: opts.pattern },
     );
     if (codeStepPct !== null && codeStepPct > 1.5) {
       result.warnings.push(
@@ -335,6 +356,8 @@ interface CameraStage {
   heightMm: number;
   cameraPxPerMapPx: number;
   cornerStrength: number;
+  /** lens transmission at panel points (grid of nodes over u, v = 0..1), null without a correction */
+  gainGrid: { cols: number; rows: number; data: Float32Array } | null;
 }
 
 /** Steps 1-7: decode, falloff, outline, pose, quality gates, rectification, grid; fills `result`. */
@@ -546,7 +569,8 @@ async function measureCamera(
     points,
   };
   result.uniformity = uniformityFigures(points);
-  return { map, points, known, widthMm, heightMm, cameraPxPerMapPx: rect.cameraPxPerMapPx, cornerStrength };
+  const gainGrid = transmission ? transmissionOnPanel(transmission, cornersWork, 17) : null;
+  return { map, points, known, widthMm, heightMm, cameraPxPerMapPx: rect.cameraPxPerMapPx, cornerStrength, gainGrid };
 }
 
 function downsamplePlane(p: Plane, maxWidth: number): Plane {
