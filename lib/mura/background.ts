@@ -181,6 +181,15 @@ export function fitBackground(
       }
     });
   }
+  // ...and those towards the corners weigh more than the rest (edgeWeight, cornerZone): a few corner cells
+  // against thousands inside leave the corners to the polynomial's swing, which on clean generated fields
+  // read as corner "spots" of up to 9 % (an order-4 surface under a steep roll-off, or pulled by a large
+  // cloud inside)
+  if (opts.edgeWeight !== 1) cells.forEach((c, k) => {
+    const nearX = c.x < opts.cornerZone * w || c.x > (1 - opts.cornerZone) * w;
+    const nearY = c.y < opts.cornerZone * h || c.y > (1 - opts.cornerZone) * h;
+    if (anchor[k] && nearX && nearY) c.weight *= opts.edgeWeight;
+  });
   for (let iter = 0; iter < 15; iter++) {
     coef = solveWeighted(design, cells, clipped, nTerms);
     for (let k = 0; k < cells.length; k++) {
@@ -195,8 +204,9 @@ export function fitBackground(
     const loLimit = (brightOnly ? 2 : 1) * opts.clipSigma * sigma;
     const next = new Uint8Array(cells.length);
     for (let k = 0; k < cells.length; k++) {
-      if (anchor[k]) continue;
-      if (resid[k] > hiLimit || resid[k] < -loLimit) {
+      // edge cells only for what stands far out of the fit (a bright zone of a hot-spot array on the edge)
+      const loose = anchor[k] ? 3 : 1;
+      if (resid[k] > loose * hiLimit || resid[k] < -loose * loLimit) {
         const gx = Math.floor(cells[k].x / cellPx);
         const gy = Math.floor(cells[k].y / cellPx);
         for (let dy = -1; dy <= 1; dy++) {

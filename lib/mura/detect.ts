@@ -348,13 +348,17 @@ export function detectFeatures(ctx: Ctx, levelsIn: Level[], useFitFloor = true):
     if (!f) continue;
     if (Math.abs(f.contrastPct) < floor) continue;
     if (f.zNoise < o.thresholdSigma) continue;
-    // no larger than one JPEG block either way: cannot be told from that block's rounding
+    // no larger than two JPEG blocks and no stronger than a block's rounding (a code value or two; three
+    // taken): cannot be told from it
     const extentMm = Math.max(f.lengthMm, 2 * Math.sqrt(f.areaMm2 / Math.PI));
-    if (o.jpegBlockMm !== null && extentMm < 2 * o.jpegBlockMm) continue;
-    // within one or a few of the 8-bit coding's plateaus: must beat the code step
     const step = localCodeStepPct(ctx, f.cx, f.cy) ?? o.codeStepPct;
+    if (o.jpegBlockMm !== null && extentMm < 2 * o.jpegBlockMm && (step === null || Math.abs(f.peakContrastPct) < 3 * step)) continue;
+    // within one or a few of the 8-bit coding's plateaus: must beat the code step
+    if (process.env.MURA_DBG && step !== null) console.log(`  step at (${(f.cx * ctx.mmPerPx).toFixed(0)},${(f.cy * ctx.mmPerPx).toFixed(0)}) ${step.toFixed(2)} % (centre ${o.codeStepPct?.toFixed(2)}) C ${f.contrastPct.toFixed(2)} extent ${extentMm.toFixed(0)}`);
     if (step !== null) {
-      const share = extentMm < 25 ? 1 : extentMm < 100 ? 0.5 : 0;
+      // JPEG: flat blocks come out at the rounded block mean, so whole regions sit up to half a code
+      // value off over 100 mm and more, edged by contours (measured on generated JPEGs of quiet fields)
+      const share = extentMm < 25 ? 1 : o.jpegBlockMm !== null ? o.jpegPlateauShare : extentMm < 100 ? 0.5 : 0;
       if (Math.abs(f.contrastPct) < share * o.codeStepFactor * step) continue;
     }
     if (isDuplicate(ctx, f)) continue;

@@ -19,6 +19,18 @@ export interface BackgroundOptions {
   maskRadiusFactor: number;
   /** largest fraction of the panel the feature mask may cover (default 0.5) */
   maxMaskedFraction: number;
+  /** lit fields: weight of the edge cells towards the corners (see cornerZone) in the surface fit,
+   *  relative to the other cells (default 10). A few corner cells against thousands inside leave the
+   *  corners to the polynomial's swing, which on clean generated fields read as corner "spots" of up to
+   *  9 % (an order-4 surface under a steep roll-off, or pulled by a large cloud inside). Higher keeps the
+   *  surface on the panel's own level there, at the cost of features touching those edges being partly
+   *  absorbed. Accuracy study (scripts/mura-accuracy.ts): false findings of SEMU >= 1 on clean fields
+   *  0.83 per photo unweighted, 0.23 with the defaults. */
+  edgeWeight: number;
+  /** the weighted edge cells lie within this fraction of the panel's width and height from a corner
+   *  (default 0.3: the outer 30 % of each edge; all edge cells at 0.5). The middle of each edge is left
+   *  unweighted so that a periodic structure along it (a hot-spot array) is not pinned. */
+  cornerZone: number;
   /** the margin masked past a feature's half-peak region is at most this fraction of the panel's short
    *  side (default 0.1); the feature's measured tails are masked whatever their reach */
   maskPadMaxFraction: number;
@@ -65,6 +77,11 @@ export interface MuraOptions {
   codeStepPct: number | null;
   /** multiple of codeStepPct a small finding must exceed (default 1; a rule of practice) */
   codeStepFactor: number;
+  /** JPEG input: share of the local code step that findings 25 mm and larger must exceed, whatever their
+   *  size (default 0.6). On smooth, quiet fields a JPEG encoder leaves flat blocks at their rounded mean,
+   *  and whole regions of 100 mm and more come out up to half a code value off, edged by contours
+   *  (measured on generated JPEGs of quality 92; settable, as encoders differ). */
+  jpegPlateauShare: number;
   /** 8-bit sRGB input: where the photo's code values lie, so that the code step can be taken where each
    *  finding is rather than at the panel's centre (null: codeStepPct everywhere). The step grows where the
    *  camera saw the panel darker: towards the corners (lens falloff, the panel's own roll-off). */
@@ -95,6 +112,8 @@ export function resolveMuraOptions(input: MuraOptionsInput): MuraOptions {
     rounds: 3,
     maskRadiusFactor: 2.5,
     maxMaskedFraction: 0.5,
+    edgeWeight: 10,
+    cornerZone: 0.3,
     maskPadMaxFraction: 0.1,
     ...stripUndefined(input.background ?? {}),
   };
@@ -116,6 +135,7 @@ export function resolveMuraOptions(input: MuraOptionsInput): MuraOptions {
     jpegBlockMm: input.jpegBlockMm ?? null,
     codeStepPct: input.codeStepPct ?? null,
     codeStepFactor: input.codeStepFactor ?? 1,
+    jpegPlateauShare: input.jpegPlateauShare ?? 0.6,
     codeLevel: input.codeLevel ?? null,
   };
   validate(o);
@@ -151,6 +171,7 @@ function validate(o: MuraOptions): void {
   if (o.jpegBlockMm !== null) positive('jpegBlockMm', o.jpegBlockMm);
   if (o.codeStepPct !== null) positive('codeStepPct', o.codeStepPct);
   if (!(Number.isFinite(o.codeStepFactor) && o.codeStepFactor >= 0)) bad(`codeStepFactor must be >= 0, got ${o.codeStepFactor}`);
+  if (!(Number.isFinite(o.jpegPlateauShare) && o.jpegPlateauShare >= 0)) bad(`jpegPlateauShare must be >= 0, got ${o.jpegPlateauShare}`);
   if (o.codeLevel !== null) {
     positive('codeLevel.centreY', o.codeLevel.centreY);
     const g = o.codeLevel.gain;
@@ -163,6 +184,8 @@ function validate(o: MuraOptions): void {
   if (!(Number.isInteger(b.rounds) && b.rounds >= 1 && b.rounds <= 10)) bad('background.rounds must be an integer 1..10');
   positive('background.maskRadiusFactor', b.maskRadiusFactor);
   if (!(b.maxMaskedFraction > 0 && b.maxMaskedFraction < 1)) bad('background.maxMaskedFraction must be in (0, 1)');
+  if (!(Number.isFinite(b.edgeWeight) && b.edgeWeight > 0)) bad(`background.edgeWeight must be > 0, got ${b.edgeWeight}`);
+  if (!(b.cornerZone >= 0 && b.cornerZone <= 0.5)) bad(`background.cornerZone must be in [0, 0.5], got ${b.cornerZone}`);
   if (!(b.maskPadMaxFraction > 0 && b.maskPadMaxFraction <= 1)) bad('background.maskPadMaxFraction must be in (0, 1]');
   if (o.tileGrid !== null) {
     const [c, r] = o.tileGrid;

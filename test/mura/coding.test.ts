@@ -33,6 +33,10 @@ describe('coding limits', () => {
     // the same spot twice as wide spans more than two 2 mm blocks and stays
     const wide = analyseMura(map(2, 8), { pattern: 'gray', jpegBlockMm: 2 });
     expect(wide.blobs.some((b) => Math.hypot(b.xMm - 100, b.yMm - 70) < 1)).toBe(true);
+    // a block's rounding is a code value or two: the small spot at 8 % peak is four code values of 2 % and
+    // stays; at 3 % per code value (peak under three code values) it goes
+    expect(analyseMura(m, { pattern: 'gray', jpegBlockMm: 2, codeStepPct: 2 }).blobs.some((b) => Math.hypot(b.xMm - 100, b.yMm - 70) < 1)).toBe(true);
+    expect(analyseMura(m, { pattern: 'gray', jpegBlockMm: 2, codeStepPct: 3 }).blobs.filter((b) => Math.hypot(b.xMm - 100, b.yMm - 70) < 5)).toHaveLength(0);
   });
 
   it('drops a small finding fainter than one 8-bit code value, and keeps it at a finer step', () => {
