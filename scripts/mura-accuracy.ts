@@ -13,7 +13,7 @@
 // cloud's envelope is scaled until its half-peak region has the drawn diameter (equal-area disc).
 // Corners are the generator's true ones, so that a geometry miss does not count as a mura miss.
 //
-//   npx tsc -p tsconfig.build.json && node dist/scripts/mura-accuracy.js [gray] [clean] [black] [width] [height] [--big] [--render]
+//   npx tsc -p tsconfig.build.json && node dist/scripts/mura-accuracy.js [gray] [clean] [black] [width] [height] [--big] [--render] [--seeds=N]
 //
 // Rendered photos and their truth are kept under .cache/ and reused (--render draws them again).
 
@@ -32,6 +32,10 @@ const nBlack = Number(args[2] ?? 20);
 const width = Number(args[3] ?? 2400);
 const height = Number(args[4] ?? 1600);
 const big = process.argv.includes('--big');
+// --seeds N: another set of scenes (seeds shifted by N), to check that a change holds beyond the usual set
+const seedArg = process.argv.find((a) => a.startsWith('--seeds='));
+const seedOffset = seedArg ? Number(seedArg.slice('--seeds='.length)) : 0;
+if (!Number.isInteger(seedOffset) || seedOffset < 0 || seedOffset > 900) throw new Error('--seeds=N needs an integer 0..900');
 const cloudSizes = process.argv.includes('--nominal') ? 'nominal' : 'half-peak';
 const dir = join('.cache', process.argv.includes('--nominal') ? 'mura-accuracy-nominal' : 'mura-accuracy');
 mkdirSync(dir, { recursive: true });
@@ -156,7 +160,7 @@ async function main(): Promise<void> {
   const errors: string[] = [];
   const ms: number[] = [];
   for (let k = 0; k < nGray; k++) {
-    const seed = 1000 + k;
+    const seed = 1000 + seedOffset + k;
     const spec = graySpec(seed, false, width, height, cloudSizes);
     const r = await measure(`gray-${seed}`, spec);
     ms.push(r.ms);
@@ -211,7 +215,7 @@ async function main(): Promise<void> {
   const cleanMax: number[] = [];
   const cleanList: string[] = [];
   for (let k = 0; k < nClean; k++) {
-    const seed = 5000 + k;
+    const seed = 5000 + seedOffset + k;
     const r = await measure(`clean-${seed}`, graySpec(seed, true, width, height));
     if (!r.mura) {
       cleanList.push(`clean ${seed}: ${r.error}`);
@@ -236,7 +240,7 @@ async function main(): Promise<void> {
   let blackExtra = 0;
   const glowList: string[] = [];
   for (let k = 0; k < nBlack; k++) {
-    const seed = 8000 + k;
+    const seed = 8000 + seedOffset + k;
     const spec = blackSpec(seed, width, height);
     const r = await measure(`black-${seed}`, spec);
     if (!r.mura) {
