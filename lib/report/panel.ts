@@ -677,9 +677,36 @@ function drawBlobOutlines(doc: Doc, blobs: Blob[], art: PhotoArtifacts, box: { x
   }
 }
 
+/** Plain words for the detail fields of a finding (results.json keeps the field names). */
+const DETAIL_WORDS: Record<string, (v: string) => string> = {
+  diameterMm: (v) => `${v} mm across`,
+  widthMm: (v) => `${v} mm wide`,
+  lengthMm: (v) => `${v} mm long`,
+  depthMm: (v) => `reaching ${v} mm in`,
+  reachMm: (v) => `reaching ${v} mm`,
+  pitchUMm: (v) => `pitch ${v} mm across`,
+  pitchVMm: (v) => `${v} mm down`,
+  zones: (v) => `${v} zones`,
+  darkGaps: (v) => `${v} dark gaps`,
+  zoneAreaMm2: (v) => `${v} mm² a zone`,
+  significanceSigma: (v) => `${v} σ above the noise`,
+  stepPct: (v) => `step ${v} %`,
+  edge: (v) => `${v} edge`,
+  corner: (v) => `${v} corner`,
+  axis: (v) => v,
+  tile: (v) => `tile ${v}`,
+  seam: (v) => `seam at ${v}`,
+  at: (v) => `at ${v} of the edge`,
+  form: (v) => v,
+};
+
 function blobKind(b: Blob): string {
   const detail = Object.entries(b.detail)
-    .map(([k, v]) => `${k} ${typeof v === 'number' ? fmtNum(v) : v}`)
+    .map(([k, v]) => {
+      const text = typeof v === 'number' ? (Number.isInteger(v) ? String(v) : fmtNum(v)) : String(v);
+      const words = DETAIL_WORDS[k];
+      return words ? words(text) : `${k} ${text}`;
+    })
     .join(', ');
   return `${b.kind}, ${b.polarity}${detail ? ` (${detail})` : ''}`;
 }
