@@ -73,7 +73,19 @@ export function groupHotspots(ctx: Ctx, singles: Finding[], opts: MuraOptions): 
   const bright = singles.filter((f) => f.polarity === 'bright' && (f.kind === 'spot' || f.kind === 'cloud'));
   // zones cut by a panel edge are smaller and their centroids shift inwards: they join the array but
   // do not set its pitch, origin or typical zone
-  const cut = (f: Finding): boolean => f.bbox[0] <= 1 || f.bbox[1] <= 1 || f.bbox[2] >= ctx.w - 1 || f.bbox[3] >= ctx.h - 1;
+  // (against the panel's data edges, which lie a few pixels inside the raster: its border is left out)
+  let x0 = ctx.w;
+  let x1 = -1;
+  let y0 = ctx.h;
+  let y1 = -1;
+  for (let y = 0; y < ctx.h; y++) {
+    if (ctx.edges.rowFirst[y] < 0) continue;
+    x0 = Math.min(x0, ctx.edges.rowFirst[y]);
+    x1 = Math.max(x1, ctx.edges.rowLast[y]);
+    y0 = Math.min(y0, y);
+    y1 = Math.max(y1, y);
+  }
+  const cut = (f: Finding): boolean => f.bbox[0] <= x0 + 1 || f.bbox[1] <= y0 + 1 || f.bbox[2] >= x1 - 1 || f.bbox[3] >= y1 - 1;
   const whole = bright.filter((f) => !cut(f));
   if (whole.length < opts.hotspotMinCount) return singles;
   const mm = ctx.mmPerPx;
