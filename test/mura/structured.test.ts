@@ -33,6 +33,28 @@ describe('hot-spot arrays', () => {
     // one zone: a Gaussian of FWHM 14 mm, half-peak area pi 7² = 154 mm² (neighbours add little at 40 mm)
     expect(relErr(a.areaMm2, Math.PI * 49)).toBeLessThan(0.3);
   });
+
+  it('counts the zones cut by the edge into the array when the map border is left out, as photos have it', () => {
+    // the pipeline leaves a few map pixels along the edge out of the analysis (the edge transition); the
+    // lattice runs off the left and right edges (nodes at x = 0 and 240 mm), so those zones are cut
+    const map = synthMap({
+      widthMm: W,
+      heightMm: H,
+      pxPerMm: 2,
+      noisePct: 0.5,
+      seed: 33,
+      smooth: [[0, 0.02], [0.03], [-0.05]],
+      features: [{ kind: 'hotspots', pitchMm: 40, fwhmMm: 14, contrastPct: 3 }],
+    });
+    const valid = map.valid.slice();
+    const b = 4;
+    for (let y = 0; y < map.height; y++) {
+      for (let x = 0; x < map.width; x++) if (x < b || y < b || x >= map.width - b || y >= map.height - b) valid[y * map.width + x] = 0;
+    }
+    const r = analyseMura({ ...map, valid }, { pattern: 'white' });
+    expect(r.blobs.filter((x) => x.kind === 'hotspot-array')).toHaveLength(1);
+    expect(r.blobs.filter((x) => x.kind === 'spot')).toHaveLength(0);
+  });
 });
 
 describe('tiled displays', () => {
