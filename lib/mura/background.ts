@@ -165,10 +165,10 @@ export function fitBackground(
     gridIndex[Math.floor(c.y / cellPx) * gw + Math.floor(c.x / cellPx)] = k;
   });
 
-  // Lit fields: the cells on the panel's edge (a neighbour cell missing) are never clipped. A whole-panel
-  // polynomial has the least support there, and with the edge cells left out it swings freely beyond
-  // the last cells it was fitted to (tens of % at a corner); black fields, whose glow sits at the edges,
-  // clip them like any other cell.
+  // Lit fields: the cells on the panel's edge (a neighbour cell missing) are clipped only three times as
+  // far out as the others. A whole-panel polynomial has the least support there, and with the edge cells
+  // left out it swings freely beyond the last cells it was fitted to (tens of % at a corner); black
+  // fields, whose glow sits at the edges, clip them like any other cell.
   const anchor = new Uint8Array(cells.length);
   if (!brightOnly) {
     cells.forEach((c, k) => {

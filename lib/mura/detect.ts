@@ -748,13 +748,6 @@ function quantileOf(values: Float32Array, q: number): number {
   return max;
 }
 
-/**
- * Bands and lines that run across the whole panel, from profiles: the median of each row (for
- * horizontal bands) or column (vertical) of the level. A median across the panel ignores whatever
- * covers less than half of the row - a cloud, or a band crossing the other way - so a band is seen
- * whole where the round search sees it cut in pieces. Each band must also be there evenly along its
- * length (four of five stretches).
- */
 /** A band's profile across the panel, as found (level px). */
 interface BandProfile {
   axis: Axis;
@@ -804,6 +797,13 @@ function withoutBandProfiles(ctx: Ctx, bands: BandProfile[]): Float32Array {
   return out;
 }
 
+/**
+ * Bands and lines that run across the whole panel, from profiles: the median of each row (for
+ * horizontal bands) or column (vertical) of the level. A median across the panel ignores whatever
+ * covers less than half of the row - a cloud, or a band crossing the other way - so a band is seen
+ * whole where the round search sees it cut in pieces. Each band must also be there evenly along its
+ * length (four of five stretches).
+ */
 function findBands(ctx: Ctx, lv: Level, floor: number): BandProfile[] {
   const bands: BandProfile[] = [];
   const o = ctx.opts;

@@ -3,6 +3,7 @@
 // fainter than one code value at the panel's level (IEC 61966-2-1 transfer, see srgbCodeStepPct).
 import { describe, expect, it } from 'vitest';
 import { analyseMura } from '../../lib/mura/index.js';
+import { srgbCodeStepPct } from '../../lib/photometry/index.js';
 import { synthMap } from '../../scripts/mura-synth.js';
 import { nearest } from './helpers.js';
 
@@ -49,5 +50,19 @@ describe('coding limits', () => {
     expect(s?.kind).toBe('spot');
     expect(s!.contrastPct).toBeGreaterThan(1);
     expect(s!.contrastPct).toBeLessThan(2);
+  });
+
+  it('takes the code step where the finding is: darker there (lens falloff) means a coarser step', () => {
+    // the same spot (mean about 1.44 %) on a panel whose centre sits at linear 0.578 (code 200: one code
+    // value is 1.12 % there) is kept; with the lens passing 35 % of the light where the spot is (linear
+    // 0.202, code 124: 1.74 %) it is dropped. Steps from the sRGB transfer of IEC 61966-2-1.
+    const m = map(3, 2);
+    expect(srgbCodeStepPct(0.578)).toBeCloseTo(1.12, 1);
+    expect(srgbCodeStepPct(0.578 * 0.35)).toBeCloseTo(1.74, 1);
+    const flat = { cols: 2, rows: 2, data: Float32Array.from([1, 1, 1, 1]) };
+    const dimLeft = { cols: 3, rows: 2, data: Float32Array.from([0.35, 0.35, 1, 0.35, 0.35, 1]) };
+    const near = (r: ReturnType<typeof analyseMura>) => r.blobs.filter((b) => Math.hypot(b.xMm - 100, b.yMm - 70) < 5);
+    expect(near(analyseMura(m, { pattern: 'gray', codeStepPct: 1.12, codeLevel: { centreY: 0.578, gain: flat } }))).toHaveLength(1);
+    expect(near(analyseMura(m, { pattern: 'gray', codeStepPct: 1.12, codeLevel: { centreY: 0.578, gain: dimLeft } }))).toHaveLength(0);
   });
 });
