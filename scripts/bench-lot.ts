@@ -46,12 +46,12 @@ export interface CommandRun {
 }
 
 /** Run `evenfield inspect` in a child process with the usage hook; wall time from spawn to exit. */
-export async function runInspect(root: string, hook: string, lotDir: string, outDir: string, extra: string[]): Promise<CommandRun> {
+export async function runInspect(root: string, hook: string, lotDir: string, outDir: string, extra: string[], env: NodeJS.ProcessEnv = process.env): Promise<CommandRun> {
   const args = ['--import', pathToFileURL(hook).href, join(root, 'bin', 'evenfield.js'), 'inspect', lotDir, '--out', outDir, '--force', '--quiet', '--date', '2026-01-01T00:00:00Z', ...extra];
   const loadBefore = loadavg();
   const t0 = performance.now();
   const { status, stderr } = await new Promise<{ status: number | null; stderr: string }>((resolveRun, reject) => {
-    const child = spawn(process.execPath, args, { cwd: root, stdio: ['ignore', 'ignore', 'pipe'] });
+    const child = spawn(process.execPath, args, { cwd: root, stdio: ['ignore', 'ignore', 'pipe'], env });
     let err = '';
     child.stderr.setEncoding('utf8');
     child.stderr.on('data', (s: string) => (err += s));

@@ -1,7 +1,10 @@
 // Speed and memory benchmark: `npm run bench` (builds, then runs node --expose-gc dist/scripts/bench.js).
 //
 //   npm run bench -- [--runs N] [--sizes 12MP,24MP] [--lot-panels N] [--memory 20,200]
-//                    [--skip-lot] [--skip-memory] [--json FILE]
+//                    [--skip-lot] [--skip-memory] [--tuned-malloc] [--json FILE]
+//
+// --tuned-malloc runs the lots (d, e) with MALLOC_ARENA_MAX=2 MALLOC_MMAP_THRESHOLD_=1048576 in their
+// environment (glibc's allocator; see README "Speed").
 //
 // On generated 12- and 24-megapixel JPEGs (cached under .cache/bench), in one run:
 //  (a) sharp alone decoding each photo to raw 8-bit RGB at full size (the lower bound of any per-photo work);
@@ -42,6 +45,7 @@ interface Args {
   memory: number[];
   skipLot: boolean;
   skipMemory: boolean;
+  tunedMalloc: boolean;
   json: string;
   cache: string;
 }
@@ -54,6 +58,7 @@ function parseArgs(argv: string[]): Args {
     memory: [20, 200],
     skipLot: false,
     skipMemory: false,
+    tunedMalloc: false,
     json: join(root, '.cache', 'bench', 'results.json'),
     cache: join(root, '.cache', 'bench'),
   };
@@ -70,6 +75,7 @@ function parseArgs(argv: string[]): Args {
     else if (k === '--memory') a.memory = v().split(',').map(Number);
     else if (k === '--skip-lot') a.skipLot = true;
     else if (k === '--skip-memory') a.skipMemory = true;
+    else if (k === '--tuned-malloc') a.tunedMalloc = true;
     else if (k === '--json') a.json = resolve(v());
     else throw new Error(`unknown option ${k}`);
   }
@@ -293,13 +299,15 @@ async function main(): Promise<void> {
     const photos = (args.skipLot ? 0 : 1.5 * args.lotPanels * lotSize.photos.length) + (args.skipMemory ? 0 : args.memory.reduce((x, y) => x + y, 0) / 2);
     log(`\nlot runs to come: about ${((photos * b) / 60).toFixed(0)} min at ${b.toFixed(1)} s per photo`);
   }
+  const lotEnv: NodeJS.ProcessEnv = args.tunedMalloc ? { ...process.env, MALLOC_ARENA_MAX: '2', MALLOC_MMAP_THRESHOLD_: '1048576' } : process.env;
+  if (args.tunedMalloc) log('lots run with MALLOC_ARENA_MAX=2 MALLOC_MMAP_THRESHOLD_=1048576 (--tuned-malloc)');
   const lots: Record<string, CommandRun> = {};
   if (!args.skipLot) {
     const n = args.lotPanels * lotSize.photos.length;
     log(`\n(d) lot throughput: inspect of ${args.lotPanels} panels × ${lotSize.photos.length} photos (${lotSize.label}), PDFs included`);
     const dir = makeLot(join(args.cache, 'lots', `${lotSize.label}-${n}`), lotSize.photos, n);
     for (const jobs of [1, 2]) {
-      const r = await runInspect(root, hook, dir, join(args.cache, 'out', `lot-jobs${jobs}`), inspectArgs(lotSize, set, jobs, true));
+      const r = await runInspect(root, hook, dir, join(args.cache, 'out', `lot-jobs${jobs}`), inspectArgs(lotSize, set, jobs, true), lotEnv);
       lots[`jobs${jobs}`] = r;
       log(describeRun(`--jobs ${jobs}`, r));
     }
@@ -309,7 +317,7 @@ async function main(): Promise<void> {
     log(`\n(e) peak resident memory: inspect (--jobs 2, PDFs included) of lots of ${args.memory.join(' and ')} ${lotSize.label} photos`);
     for (const n of args.memory) {
       const dir = makeLot(join(args.cache, 'lots', `${lotSize.label}-${n}`), lotSize.photos, n);
-      const r = await runInspect(root, hook, dir, join(args.cache, 'out', `memory-${n}`), inspectArgs(lotSize, set, 2, true));
+      const r = await runInspect(root, hook, dir, join(args.cache, 'out', `memory-${n}`), inspectArgs(lotSize, set, 2, true), lotEnv);
       memory[`photos${n}`] = r;
       log(describeRun(`${n} photos`, r));
     }
