@@ -160,6 +160,8 @@ describe('glare gate', () => {
     expect(g!.peakExcess).toBeLessThan(0.62);
   });
 
+  // Hot spots of rejected panels reach 15-20 % (from memory; the mura issue's features go to 20 %), and a
+  // lamp reflected in the glass stands well above that (from memory): the gate sits at 30 %.
   it('leaves 10 % and 20 % patches (the range of backlight hot spots), smooth falloff and a bright edge strip to the mura analysis', () => {
     expect(findGlare(scene({ level: 0.5, field: blob(0.3, 0.6, 0.1, 10) }), DEFAULT_QUALITY_LIMITS)).toBeNull();
     expect(findGlare(scene({ level: 0.5, field: blob(0.3, 0.6, 0.2, 10) }), DEFAULT_QUALITY_LIMITS)).toBeNull();
