@@ -54,6 +54,18 @@ export interface DecodeInfo {
   transfer: 'srgb' | 'linear';
   /** Decoded at 1/scale of full size (JPEG shrink-on-load or box average); 1 = full size. */
   scale: number;
+  /**
+   * JPEG only (else null): 'float' = decoded by evenfield's own baseline decoder without rounding samples
+   * to whole code values; '8bit' = decoded by libvips to whole code values (progressive, arithmetic-coded
+   * or CMYK files, or when asked).
+   */
+  jpegSamples: 'float' | '8bit' | null;
+  /**
+   * 8-bit input: the smallest step, in code values, of the mean level of a flat region as decoded. 1 for
+   * whole code values (PNG, TIFF; JPEG decoded to 8 bits when its DC quantiser is 8 or less); for a JPEG
+   * decoded in float, the luma DC quantiser over 8 (0.375 at quality 92). Null for 16-bit input.
+   */
+  levelStepCodes: number | null;
 }
 
 /** Exposure quality of the decoded pixels (whole frame and, once known, the panel area). */

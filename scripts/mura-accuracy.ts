@@ -154,6 +154,7 @@ async function main(): Promise<void> {
   const cErr: number[] = [];
   const aErr: number[] = [];
   let falseSemu1 = 0;
+  const unmatched: string[] = [];
   const misses: string[] = [];
   const wrongKinds: string[] = [];
   const badAcc: string[] = [];
@@ -170,6 +171,9 @@ async function main(): Promise<void> {
     }
     const { pairs, extra } = pairUp(r.truth, r.mura.blobs, spec.panel.widthMm, spec.panel.heightMm);
     falseSemu1 += extra.filter((b) => b.semu >= 1).length;
+    for (const b of extra.filter((x) => x.semu >= 1)) {
+      unmatched.push(`seed ${seed} ${b.kind} at (${b.u.toFixed(3)}, ${b.v.toFixed(3)}) C ${b.contrastPct.toFixed(2)} % A ${b.areaMm2.toFixed(1)} mm² SEMU ${b.semu.toFixed(2)}`);
+    }
     for (const { t, b } of pairs) {
       const tag = `seed ${seed} ${t.kind} ${t.polarity} ${t.kind === 'band' ? `w ${Number(t.detail.widthMm).toFixed(0)} mm` : `d ${(2 * Math.sqrt(t.areaMm2 / Math.PI)).toFixed(0)} mm`} C ${t.contrastPct.toFixed(2)} % SEMU ${t.semu.toFixed(2)}`;
       if (t.semu >= 1.5) {
@@ -203,6 +207,7 @@ async function main(): Promise<void> {
   log(`  contrast within 25 %, SEMU >= 2: ${pct(contrastOk, accN)}; error median ${(100 * quant(cErr, 0.5)).toFixed(1)} %, 5-95 % ${(100 * quant(cErr, 0.05)).toFixed(1)} .. ${(100 * quant(cErr, 0.95)).toFixed(1)} %`);
   log(`  area within 30 %, SEMU >= 2:     ${pct(areaOk, accN)}; error median ${(100 * quant(aErr, 0.5)).toFixed(1)} %, 5-95 % ${(100 * quant(aErr, 0.05)).toFixed(1)} .. ${(100 * quant(aErr, 0.95)).toFixed(1)} %`);
   log(`  unmatched findings of SEMU >= 1: ${falseSemu1} (${(falseSemu1 / Math.max(1, nGray)).toFixed(2)} per photo)`);
+  for (const u of unmatched) log(`  unmatched: ${u}`);
   for (const m of misses) log(`  missed: ${m}`);
   for (const m of wrongKinds) log(`  kind: ${m}`);
   for (const m of badAcc) log(`  accuracy: ${m}`);

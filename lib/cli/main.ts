@@ -64,6 +64,7 @@ interface InspectArgs {
   'tile-grid'?: string;
   'map-resolution'?: number;
   'work-size'?: number;
+  'jpeg-samples'?: 'float' | '8bit';
   quiet?: boolean;
   'max-view-angle'?: number;
 }
@@ -124,6 +125,7 @@ async function inspect(a: InspectArgs): Promise<number> {
     },
     mapPxPerMm: a['map-resolution'] ?? DEFAULT_MEASURE_OPTIONS.mapPxPerMm,
     workLongSide: a['work-size'] ?? DEFAULT_MEASURE_OPTIONS.workLongSide,
+    jpegSamples: a['jpeg-samples'] ?? DEFAULT_MEASURE_OPTIONS.jpegSamples,
     artifacts: a.pdf,
     quality: { ...DEFAULT_MEASURE_OPTIONS.quality, ...(a['max-view-angle'] !== undefined ? { maxViewAngleDeg: a['max-view-angle'] } : {}) },
   };
@@ -150,6 +152,7 @@ async function inspect(a: InspectArgs): Promise<number> {
     mura: measure.mura,
     mapPxPerMm: measure.mapPxPerMm,
     workLongSide: measure.workLongSide,
+    jpegSamples: measure.jpegSamples,
     manifest: grouping.manifest,
   };
   const out = await runBatch({
@@ -219,6 +222,10 @@ export async function main(argv: string[]): Promise<number> {
           .option('tile-grid', { type: 'string', describe: 'tiled displays: tiles COLUMNSxROWS, for seam and tile-step findings' })
           .option('map-resolution', { type: 'number', describe: 'rectified map pixels per mm (default 2)' })
           .option('work-size', { type: 'number', describe: 'decode photos down to about this long side in pixels (default 1800)' })
+          .option('jpeg-samples', {
+            choices: ['float', '8bit'] as const,
+            describe: 'JPEG decoding: float keeps the fraction of a code value an 8-bit decoder rounds away (default float; see README)',
+          })
           .option('max-view-angle', { type: 'number', describe: 'refuse photos that see part of the panel more than this many degrees off its normal (default 60)' })
           .option('quiet', { type: 'boolean', describe: 'no progress output' }),
       async (a) => {

@@ -32,6 +32,7 @@ import { readExif } from './exif.js';
 import { readInputFile, sha256OfBuffer } from './files.js';
 import { describeDecodeFailure, describeStart, formatName, sniffFormat } from './sniff.js';
 import { quantiles } from './stats.js';
+import { JpegDataError, decodeJpegFloat, lumaDcQuant } from './jpeg-float.js';
 import { readIccSummary, readPngColourChunks, type IccSummary } from './tags.js';
 
 /**
@@ -71,6 +72,12 @@ export interface DecodeOptions {
    * linear level, made in the decoding pass (the pipeline's clipping gate). Default: none.
    */
   clipMaskLinear?: number;
+  /**
+   * JPEG sample precision (default 'float'): 'float' decodes baseline JPEGs with evenfield's own decoder
+   * (jpeg-float.ts), which keeps the fraction of a code value an 8-bit decoder rounds away; '8bit' (and
+   * any file outside that decoder's scope) decodes with libvips to whole code values.
+   */
+  jpegSamples?: 'float' | '8bit';
 }
 
 export interface DecodedPhoto {
@@ -623,6 +630,24 @@ export async function decodePhotoBuffer(buf: Buffer, name: string, opts: DecodeO
   const useShrink = scale > 1 && opts.method === 'jpeg-shrink' && plan.format === 'jpeg';
   const method: DecodedPhoto['method'] = scale === 1 ? 'full' : useShrink ? 'jpeg-shrink' : 'linear-box';
 
+  // Baseline JPEG at full precision (see jpeg-float.ts). Damaged data and files outside its scope go to
+  // libvips below, which decodes them to whole codes or reports the damage in its own words.
+  if (plan.format === 'jpeg' && !useShrink && !plan.isCmyk && (opts.jpegSamples ?? 'float') === 'float') {
+    const th = thresholds(8, clipLevel, darkLevel);
+    let fl: (Reduced & { lumaDcQuant: number }) | null = null;
+    try {
+      fl = decodeJpegFloat(buf, { scale, transfer, clipCode: th.clipCode, darkCode: th.darkCode, clipLinear: opts.clipMaskLinear ?? null, weights: [YR, YG, YB] });
+    } catch (e) {
+      if (!(e instanceof JpegDataError)) throw e;
+    }
+    if (fl && (fl.width !== Math.ceil(plan.width / scale) || fl.height !== Math.ceil(plan.height / scale))) fl = null;
+    if (fl) {
+      const sha256 = sha256OfBuffer(buf);
+      const exif = await readExif(buf, plan.exifBlock);
+      return finish(fl, plan, transfer, scale, 'float', fl.lumaDcQuant / 8, sha256, exif, method, warnings);
+    }
+  }
+
   // Start the decoder (it runs in libuv's thread pool), then hash the bytes and read the EXIF block on
   // this thread meanwhile. The early catch only keeps a failure from counting as unhandled before it
   // is awaited below; the await still throws it.
@@ -667,6 +692,23 @@ export async function decodePhotoBuffer(buf: Buffer, name: string, opts: DecodeO
     reduced = reduceLinearBox(codes, out.width, out.height, scale, decodeLut(plan.bitDepth, transfer), th.clipCode, th.darkCode, true, opts.clipMaskLinear ?? null);
   }
 
+  const dcq = plan.format === 'jpeg' ? lumaDcQuant(buf) : null;
+  const levelStep = plan.bitDepth === 16 ? null : Math.max(1, (dcq ?? 0) / 8);
+  return finish(reduced, plan, transfer, scale, plan.format === 'jpeg' ? '8bit' : null, levelStep, sha256, exif, method, warnings);
+}
+
+function finish(
+  reduced: Reduced,
+  plan: Plan,
+  transfer: 'srgb' | 'linear',
+  scale: number,
+  jpegSamples: 'float' | '8bit' | null,
+  levelStepCodes: number | null,
+  sha256: string,
+  exif: Awaited<ReturnType<typeof readExif>>,
+  method: DecodedPhoto['method'],
+  warnings: string[],
+): DecodedPhoto {
   const image: RgbImage = { width: reduced.width, height: reduced.height, data: reduced.data };
   const luminance: Plane = { width: reduced.width, height: reduced.height, data: reduced.luminance };
   const { median, p999 } = exposureQuantiles(reduced.luminance, reduced.width, reduced.height);
@@ -685,6 +727,8 @@ export async function decodePhotoBuffer(buf: Buffer, name: string, opts: DecodeO
     channels: plan.channels,
     transfer,
     scale,
+    jpegSamples,
+    levelStepCodes,
   };
   return {
     image,

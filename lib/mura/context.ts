@@ -272,7 +272,7 @@ export function localCodeStepPct(ctx: Ctx, x: number, y: number): number | null 
   if (!(bc > 0) || !(bp > 0)) return null;
   let level = (cl.centreY * bp) / bc;
   if (cl.gain) level *= bilinearNode(cl.gain, (x + 0.5) / w, (y + 0.5) / h);
-  return level > 0 && level <= 1 ? srgbCodeStepPct(level) : null;
+  return level > 0 && level <= 1 ? srgbCodeStepPct(level) * (cl.stepCodes ?? 1) : null;
 }
 
 /** Bilinear value of a grid of nodes spanning u, v = 0..1. */

@@ -348,11 +348,15 @@ export function detectFeatures(ctx: Ctx, levelsIn: Level[], useFitFloor = true):
     if (!f) continue;
     if (Math.abs(f.contrastPct) < floor) continue;
     if (f.zNoise < o.thresholdSigma) continue;
-    // no larger than two JPEG blocks and no stronger than a block's rounding (a code value or two; three
-    // taken): cannot be told from it
+    // a half-peak region smaller than a quarter of the smallest feature searched for is a pixel or two
+    // (an edge or corner artefact), not a feature this analysis resolves
+    if (f.areaMm2 < (0.25 * Math.PI * o.minFeatureMm ** 2) / 4) continue;
+    // no larger than two JPEG blocks and no stronger than a block's coding error (a quantised AC term
+    // draws a pattern of a code value or two over its block; three taken): cannot be told from it
     const extentMm = Math.max(f.lengthMm, 2 * Math.sqrt(f.areaMm2 / Math.PI));
     const step = localCodeStepPct(ctx, f.cx, f.cy) ?? o.codeStepPct;
-    if (o.jpegBlockMm !== null && extentMm < 2 * o.jpegBlockMm && (step === null || Math.abs(f.peakContrastPct) < 3 * step)) continue;
+    const wholeCode = step !== null ? step / (o.codeLevel?.stepCodes ?? 1) : null;
+    if (o.jpegBlockMm !== null && extentMm < 2 * o.jpegBlockMm && (wholeCode === null || Math.abs(f.peakContrastPct) < 3 * wholeCode)) continue;
     // within one or a few of the 8-bit coding's plateaus: must beat the code step
     if (process.env.MURA_DBG && step !== null) console.log(`  step at (${(f.cx * ctx.mmPerPx).toFixed(0)},${(f.cy * ctx.mmPerPx).toFixed(0)}) ${step.toFixed(2)} % (centre ${o.codeStepPct?.toFixed(2)}) C ${f.contrastPct.toFixed(2)} extent ${extentMm.toFixed(0)}`);
     if (step !== null) {

@@ -95,6 +95,9 @@ export interface CodeLevel {
   /** lens transmission at panel points on a cols x rows grid of nodes spanning u, v = 0..1 (row by row),
    *  or null when no falloff correction was applied */
   gain: { cols: number; rows: number; data: Float32Array } | null;
+  /** the level step in code values (DecodeInfo.levelStepCodes: 1 for whole codes; the JPEG DC
+   *  quantiser over 8 for a JPEG decoded in float) */
+  stepCodes?: number;
 }
 
 export type MuraOptionsInput = Partial<Omit<MuraOptions, 'background' | 'semuConstants'>> & {

@@ -34,13 +34,17 @@ const DEFAULT_MIN_FEATURE_MM = 3;
 /** Width of the panel edge's transition in working-scale camera pixels, excluded from the mura analysis. */
 const EDGE_TRANSITION_CAMERA_PX = 3;
 
-/** Contrast (%) of one code value of an 8-bit sRGB photo at the level of the panel's centre point, or null for other input. */
+/**
+ * Contrast (%) of the smallest level step of an 8-bit sRGB photo as decoded (one code value, or a
+ * fraction of one for a JPEG decoded in float: DecodeInfo.levelStepCodes) at the level of the panel's
+ * centre point, or null for other input.
+ */
 function codeStepAt(result: PhotoResult, points: GridPoint[]): number | null {
   const d = result.decode;
   if (!d || d.bitDepth !== 8 || d.transfer !== 'srgb') return null;
   const centre = points.find((p) => p.u === 0.5 && p.v === 0.5) ?? points[0];
   const y = centre?.Y;
-  return y !== undefined && y > 0 && y <= 1 ? srgbCodeStepPct(y) : null;
+  return y !== undefined && y > 0 && y <= 1 ? srgbCodeStepPct(y) * (d.levelStepCodes ?? 1) : null;
 }
 
 /** The lens transmission (luminance-weighted for per-channel profiles) at a grid of panel points. */
@@ -100,6 +104,8 @@ export interface MeasureOptions {
   transfer: 'auto' | 'srgb' | 'linear';
   /** decode so that the long side is at least this many pixels (power-of-two reduction) */
   workLongSide: number;
+  /** JPEG decoding precision (DecodeOptions.jpegSamples) */
+  jpegSamples: 'float' | '8bit';
   /** rectified map resolution, pixels per mm (upper bound; reduced where the camera resolves less) */
   mapPxPerMm: number;
   mura: boolean;
@@ -117,6 +123,7 @@ export const DEFAULT_MEASURE_OPTIONS: Omit<MeasureOptions, 'pattern' | 'patternL
   falloff: { kind: 'none' },
   transfer: 'auto',
   workLongSide: 1800,
+  jpegSamples: 'float',
   mapPxPerMm: 2,
   mura: true,
   muraOptions: {},
@@ -308,24 +315,29 @@ async function measureInner(
   let contrastMap: Plane | null = null;
   if (opts.mura) {
     // The outermost map pixels average camera pixels that straddle the active-area edge (part bezel),
-    // and the edge transition is a few camera pixels wide (optics, demosaicing, JPEG ringing): keep
-    // that border out of the mura analysis, or it reads as dark lines along every edge.
-    const border = Math.ceil(EDGE_TRANSITION_CAMERA_PX / Math.max(cameraPxPerMapPx, 1e-3)) + 1;
-    // JPEG rounds each 8 x 8 block on its own: tell the analysis how large a block is on the panel
+    // and the edge transition is a few camera pixels wide (optics, demosaicing): keep that border out
+    // of the mura analysis, or it reads as dark lines along every edge. A JPEG also rings inside each
+    // 8 x 8 block that holds the step from bezel to panel (a bright rim of a few %): for JPEG input the
+    // border reaches one block further.
     const camPerMap = result.geometry?.cameraPxPerMapPx ?? null;
-    const jpegBlockMm = result.decode?.format === 'jpeg' && camPerMap ? 8 / (camPerMap * map.pxPerMm) : null;
+    const isJpeg = result.decode?.format === 'jpeg';
+    const ringMapPx = isJpeg && camPerMap ? 8 / camPerMap : 0;
+    const border = Math.ceil(EDGE_TRANSITION_CAMERA_PX / Math.max(cameraPxPerMapPx, 1e-3) + ringMapPx) + 1;
+    // JPEG codes each 8 x 8 block on its own: tell the analysis how large a block is on the panel
+    const jpegBlockMm = isJpeg && camPerMap ? 8 / (camPerMap * map.pxPerMm) : null;
     // 8-bit sRGB input: the contrast of one code value at the panel's level in the photo
     const codeStepPct = codeStepAt(result, points);
     // ...and where the code values lie across the panel, for the step where each finding is
     const centreY = points.find((p) => p.u === 0.5 && p.v === 0.5)?.Y ?? points[0]?.Y;
-    const codeLevel = codeStepPct !== null && centreY !== undefined && centreY > 0 ? { centreY, gain: gainGrid } : null;
+    const codeLevel =
+      codeStepPct !== null && centreY !== undefined && centreY > 0 ? { centreY, gain: gainGrid, stepCodes: result.decode?.levelStepCodes ?? 1 } : null;
     const mura = analyseMura(
       { ...map, valid: withoutBorder(map.valid, map.width, map.height, border) },
       { jpegBlockMm, codeStepPct, codeLevel, ...opts.muraOptions, pattern: opts.pattern },
     );
     if (codeStepPct !== null && codeStepPct > 1.5) {
       result.warnings.push(
-        `one 8-bit code value is ${codeStepPct.toFixed(1)} % of the panel's level in this photo: small mura fainter than that cannot be told from the coding; expose the field higher (code values 180-230 of 255) for finer mura figures`,
+        `the photo's 8-bit coding resolves the panel's level in steps of ${codeStepPct.toFixed(1)} % here: small mura fainter than that cannot be told from the coding; expose the field higher (code values 180-230 of 255) for finer mura figures`,
       );
     }
     const { contrast, background, ...rest } = mura;
@@ -374,6 +386,7 @@ async function measureCamera(
     transfer: opts.transfer,
     maxPixels: opts.maxPixels,
     targetLongSide: opts.workLongSide,
+    jpegSamples: opts.jpegSamples,
     clipMaskLinear: opts.quality.clipLinear,
   });
   const scale = decoded.info.scale;

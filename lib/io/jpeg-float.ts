@@ -1,0 +1,582 @@
+// Baseline JPEG decoding to real-valued samples.
+//
+// Why: an 8-bit decoder rounds the inverse DCT's output to whole code values. On a smooth, lightly
+// noisy field (a display showing a flat pattern) the encoder has zeroed most AC coefficients, so whole
+// 8×8 blocks come out flat and the rounding is not dithered: every block of a region is off by the same
+// fraction of a code value (up to half a code, about 0.6 % of linear light at mid-gray), which no
+// averaging removes. The coefficients themselves carry the level to a fraction of a code (the DC
+// quantiser step over 8). This decoder keeps that: dequantised coefficients, a floating-point inverse
+// DCT (ITU-T T.81, A.3.3), no rounding, and YCbCr to RGB (JFIF 1.02) in floating point; only the range
+// is limited to [0, 255] as every decoder does.
+//
+// Scope: one interleaved baseline or extended-sequential Huffman scan, 8-bit samples, 1 or 3
+// components, sampling factors 1 or 2 (4:4:4, 4:2:2, 4:2:0, 4:4:0), restart intervals. Anything else
+// (progressive, arithmetic coding, 12-bit, CMYK, several scans) returns null and the caller decodes
+// with libvips. Damaged entropy-coded data throws JpegDataError (the caller then lets libvips report
+// it in its words).
+//
+// Output is streamed: each row of MCUs is turned into linear light and averaged into the reduced image
+// as soon as it is decoded, so no full-size buffer exists.
+
+import { srgbDecode } from '../photometry/index.js';
+
+export class JpegDataError extends Error {}
+
+/** The natural (row-major) index of the k-th coefficient in zig-zag order (T.81, Figure A.6). */
+const ZIGZAG = new Uint8Array([
+  0, 1, 8, 16, 9, 2, 3, 10, 17, 24, 32, 25, 18, 11, 4, 5, 12, 19, 26, 33, 40, 48, 41, 34, 27, 20, 13, 6, 7, 14, 21, 28, 35, 42, 49, 56, 57, 50, 43, 36, 29,
+  22, 15, 23, 30, 37, 44, 51, 58, 59, 52, 45, 38, 31, 39, 46, 53, 60, 61, 54, 47, 55, 62, 63,
+]);
+
+/** IDCT basis: BASIS[x * 8 + u] = C(u)/2 · cos((2x + 1)uπ/16), C(0) = 1/√2 (T.81, A.3.3). */
+const BASIS = new Float64Array(64);
+for (let x = 0; x < 8; x++) for (let u = 0; u < 8; u++) BASIS[x * 8 + u] = ((u === 0 ? Math.SQRT1_2 : 1) * Math.cos(((2 * x + 1) * u * Math.PI) / 16)) / 2;
+
+const LOOKUP_BITS = 9;
+
+interface Huffman {
+  /** (length << 8) | symbol for codes up to LOOKUP_BITS long, indexed by the next LOOKUP_BITS bits; 0 = longer */
+  fast: Uint16Array;
+  /** largest code of each length (−1: none), smallest code, index of its first symbol (T.81, F.2.2.3) */
+  maxCode: Int32Array;
+  minCode: Int32Array;
+  valPtr: Int32Array;
+  values: Uint8Array;
+}
+
+function buildHuffman(counts: Uint8Array, values: Uint8Array): Huffman {
+  const fast = new Uint16Array(1 << LOOKUP_BITS);
+  const maxCode = new Int32Array(18).fill(-1);
+  const minCode = new Int32Array(17);
+  const valPtr = new Int32Array(17);
+  let code = 0;
+  let k = 0;
+  for (let len = 1; len <= 16; len++) {
+    const n = counts[len - 1]!;
+    valPtr[len] = k;
+    minCode[len] = code;
+    for (let i = 0; i < n; i++, k++, code++) {
+      if (code >= 1 << len) throw new JpegDataError('Huffman table with more codes than its lengths allow');
+      if (len <= LOOKUP_BITS) {
+        const shift = LOOKUP_BITS - len;
+        const first = code << shift;
+        for (let j = 0; j < 1 << shift; j++) fast[first + j] = (len << 8) | values[k]!;
+      }
+    }
+    maxCode[len] = n > 0 ? code - 1 : -1;
+    code <<= 1;
+  }
+  maxCode[17] = 0x7fffffff;
+  return { fast, maxCode, minCode, valPtr, values };
+}
+
+/** Entropy-coded data: bits MSB first, 0xFF00 stuffing removed; a marker stops the bits (zeros follow). */
+class BitReader {
+  private acc = 0;
+  private n = 0;
+  /** zero bytes fed after a marker or the end of data */
+  private padded = 0;
+  constructor(
+    private readonly data: Uint8Array,
+    public pos: number,
+  ) {}
+
+  private fill(): void {
+    const d = this.data;
+    while (this.n <= 16) {
+      let b = 0;
+      if (this.padded === 0 && this.pos < d.length) {
+        b = d[this.pos]!;
+        if (b === 0xff) {
+          const b2 = this.pos + 1 < d.length ? d[this.pos + 1]! : 0xd9;
+          if (b2 === 0) this.pos += 2;
+          else {
+            b = 0;
+            this.padded = 1;
+          }
+        } else this.pos++;
+      } else {
+        b = 0;
+        // a block may read a little past its last bit (peeking): allow a few bytes, not a missing block
+        if (++this.padded > 8) throw new JpegDataError('entropy-coded data ends early');
+      }
+      this.acc = ((this.acc << 8) | b) & 0xffffff;
+      this.n += 8;
+    }
+  }
+
+  decode(h: Huffman): number {
+    if (this.n <= 16) this.fill();
+    const look = (this.acc >>> (this.n - LOOKUP_BITS)) & ((1 << LOOKUP_BITS) - 1);
+    const e = h.fast[look]!;
+    if (e !== 0) {
+      this.n -= e >> 8;
+      return e & 0xff;
+    }
+    let len = LOOKUP_BITS + 1;
+    let code = (this.acc >>> (this.n - len)) & ((1 << len) - 1);
+    while (len <= 16 && code > h.maxCode[len]!) {
+      len++;
+      code = (this.acc >>> (this.n - len)) & ((1 << len) - 1);
+    }
+    if (len > 16) throw new JpegDataError('bad Huffman code');
+    this.n -= len;
+    return h.values[h.valPtr[len]! + code - h.minCode[len]!]!;
+  }
+
+  /** s more bits as a signed difference (T.81, F.2.2.1 EXTEND). */
+  receiveExtend(s: number): number {
+    if (s === 0) return 0;
+    if (this.n < s) this.fill();
+    const v = (this.acc >>> (this.n - s)) & ((1 << s) - 1);
+    this.n -= s;
+    return v < 1 << (s - 1) ? v - (1 << s) + 1 : v;
+  }
+
+  /** Discard the bits left in the byte, expect RSTn at the read position and step over it. */
+  restart(expected: number): void {
+    if (this.overrun()) throw new JpegDataError('entropy-coded data ends early');
+    this.acc = 0;
+    this.n = 0;
+    this.padded = 0;
+    const d = this.data;
+    while (this.pos < d.length && d[this.pos] === 0xff && d[this.pos + 1] === 0xff) this.pos++;
+    if (this.pos + 1 >= d.length || d[this.pos] !== 0xff || d[this.pos + 1] !== 0xd0 + expected) throw new JpegDataError('restart marker missing');
+    this.pos += 2;
+  }
+
+  /** true when bits past the end of the entropy-coded data (the zeros fed after a marker) were used */
+  overrun(): boolean {
+    return this.padded * 8 - this.n > 0;
+  }
+}
+
+export interface FloatDecodeOptions {
+  /** output at 1/scale of full size: each output pixel is the linear-light mean of a scale×scale block */
+  scale: 1 | 2 | 4 | 8;
+  transfer: 'srgb' | 'linear';
+  /** a full-size pixel counts as clipped when its largest channel, rounded, is at or above this code */
+  clipCode: number;
+  /** ... and as dark when its largest channel, rounded, is below this code */
+  darkCode: number;
+  /** also make a clip mask of the output: 1 where any channel is at or above this linear level */
+  clipLinear: number | null;
+  /** luminance weights of R, G, B */
+  weights: readonly [number, number, number];
+}
+
+export interface FloatDecoded {
+  /** the first component's DC quantiser: a block's mean level moves in steps of this over 8 codes */
+  lumaDcQuant: number;
+  data: Float32Array;
+  luminance: Float32Array;
+  width: number;
+  height: number;
+  clipped: number;
+  dark: number;
+  pixels: number;
+  clipMask: Uint8Array | null;
+}
+
+interface Comp {
+  id: number;
+  h: number;
+  v: number;
+  tq: number;
+  dc: Huffman | null;
+  ac: Huffman | null;
+  pred: number;
+  /** samples of one MCU row: (mcusPerLine · h · 8) wide, v · 8 high */
+  rows: Float32Array;
+  stride: number;
+}
+
+/** Code value (0..255, real) to linear light: a table of 16 steps per code, linearly interpolated. */
+const STEPS = 16;
+const linearTables = new Map<string, Float64Array>();
+function linearTable(transfer: 'srgb' | 'linear'): Float64Array {
+  let t = linearTables.get(transfer);
+  if (!t) {
+    t = new Float64Array(255 * STEPS + 2);
+    for (let i = 0; i < t.length; i++) {
+      const v = Math.min(1, i / (255 * STEPS));
+      t[i] = transfer === 'srgb' ? srgbDecode(v) : v;
+    }
+    linearTables.set(transfer, t);
+  }
+  return t;
+}
+
+/**
+ * Decode a baseline JPEG to linear light at 1/scale, without rounding samples to whole codes.
+ * Returns null for files outside this decoder's scope (see the file's header comment).
+ */
+export function decodeJpegFloat(data: Uint8Array, opts: FloatDecodeOptions): FloatDecoded | null {
+  if (data.length < 4 || data[0] !== 0xff || data[1] !== 0xd8) return null;
+  const qt: (Float64Array | undefined)[] = [];
+  const dcTables: (Huffman | undefined)[] = [];
+  const acTables: (Huffman | undefined)[] = [];
+  let restartInterval = 0;
+  let adobeTransform: number | null = null;
+  let width = 0;
+  let height = 0;
+  let comps: Comp[] = [];
+  let frameSeen = false;
+  let pos = 2;
+  const u16 = (p: number): number => (data[p]! << 8) | data[p + 1]!;
+  while (pos < data.length) {
+    if (data[pos] !== 0xff) throw new JpegDataError(`marker expected at byte ${pos}`);
+    while (data[pos] === 0xff) pos++;
+    const m = data[pos++]!;
+    if (m === 0xd8 || (m >= 0xd0 && m <= 0xd7) || m === 0x01) continue;
+    if (m === 0xd9) break;
+    if (pos + 2 > data.length) throw new JpegDataError('truncated marker segment');
+    const len = u16(pos);
+    const end = pos + len;
+    if (len < 2 || end > data.length) throw new JpegDataError('truncated marker segment');
+    let p = pos + 2;
+    if (m === 0xdb) {
+      while (p < end) {
+        const pq = data[p]! >> 4;
+        const tq = data[p]! & 15;
+        p++;
+        const t = new Float64Array(64);
+        for (let k = 0; k < 64; k++) {
+          t[ZIGZAG[k]!] = pq ? u16(p + 2 * k) : data[p + k]!;
+        }
+        p += pq ? 128 : 64;
+        qt[tq] = t;
+      }
+    } else if (m === 0xc4) {
+      while (p < end) {
+        const tc = data[p]! >> 4;
+        const th = data[p]! & 15;
+        const counts = data.subarray(p + 1, p + 17);
+        let total = 0;
+        for (let i = 0; i < 16; i++) total += counts[i]!;
+        const values = data.subarray(p + 17, p + 17 + total);
+        if (p + 17 + total > end) throw new JpegDataError('truncated Huffman table');
+        (tc === 0 ? dcTables : acTables)[th] = buildHuffman(counts, values);
+        p += 17 + total;
+      }
+    } else if (m === 0xdd) {
+      restartInterval = u16(p);
+    } else if (m === 0xee) {
+      // Adobe APP14: transform 0 = RGB (or CMYK), 1 = YCbCr, 2 = YCCK
+      if (len >= 14 && String.fromCharCode(...data.subarray(p, p + 5)) === 'Adobe') adobeTransform = data[p + 11]!;
+    } else if (m === 0xc0 || m === 0xc1) {
+      if (data[p] !== 8) return null;
+      height = u16(p + 1);
+      width = u16(p + 3);
+      const nf = data[p + 5]!;
+      if (height === 0 || width === 0 || (nf !== 1 && nf !== 3)) return null;
+      comps = [];
+      for (let i = 0; i < nf; i++) {
+        const q = p + 6 + 3 * i;
+        comps.push({ id: data[q]!, h: data[q + 1]! >> 4, v: data[q + 1]! & 15, tq: data[q + 2]!, dc: null, ac: null, pred: 0, rows: new Float32Array(0), stride: 0 });
+      }
+      frameSeen = true;
+    } else if (m >= 0xc2 && m <= 0xcf && m !== 0xc4 && m !== 0xc8 && m !== 0xcc) {
+      return null; // progressive, lossless, hierarchical or arithmetic-coded
+    } else if (m === 0xda) {
+      if (!frameSeen) throw new JpegDataError('scan before frame header');
+      const ns = data[p]!;
+      if (ns !== comps.length) return null; // non-interleaved scans
+      for (let i = 0; i < ns; i++) {
+        const cid = data[p + 1 + 2 * i]!;
+        const tables = data[p + 2 + 2 * i]!;
+        const c = comps.find((x) => x.id === cid);
+        if (!c) throw new JpegDataError('scan names an unknown component');
+        c.dc = dcTables[tables >> 4] ?? null;
+        c.ac = acTables[tables & 15] ?? null;
+        if (!c.dc || !c.ac) throw new JpegDataError('scan uses an undefined Huffman table');
+        if (!qt[c.tq]) throw new JpegDataError('component uses an undefined quantisation table');
+      }
+      const ycc = comps.length === 3 && adobeTransform !== 0 && !(comps[0]!.id === 82 && comps[1]!.id === 71 && comps[2]!.id === 66);
+      return decodeScan(data, end, width, height, comps, qt as Float64Array[], restartInterval, ycc, opts);
+    }
+    pos = end;
+  }
+  throw new JpegDataError('no image data');
+}
+
+function decodeScan(
+  data: Uint8Array,
+  start: number,
+  W: number,
+  H: number,
+  comps: Comp[],
+  qt: Float64Array[],
+  restartInterval: number,
+  ycc: boolean,
+  opts: FloatDecodeOptions,
+): FloatDecoded | null {
+  const hmax = Math.max(...comps.map((c) => c.h));
+  const vmax = Math.max(...comps.map((c) => c.v));
+  for (const c of comps) {
+    if (c.h < 1 || c.v < 1 || hmax / c.h > 2 || vmax / c.v > 2 || hmax % c.h || vmax % c.v) return null;
+  }
+  if (comps.length === 1) {
+    // a single-component scan is not interleaved: one block per MCU whatever the sampling factors
+    comps[0]!.h = 1;
+    comps[0]!.v = 1;
+  }
+  const mh = comps.length === 1 ? 1 : hmax;
+  const mv = comps.length === 1 ? 1 : vmax;
+  const mcuW = 8 * mh;
+  const mcuH = 8 * mv;
+  const mcusPerLine = Math.ceil(W / mcuW);
+  const mcuRows = Math.ceil(H / mcuH);
+  for (const c of comps) {
+    c.stride = mcusPerLine * c.h * 8;
+    c.rows = new Float32Array(c.stride * c.v * 8);
+  }
+  const s = opts.scale;
+  if (mcuH % s !== 0) return null;
+  const w = Math.ceil(W / s);
+  const h = Math.ceil(H / s);
+  const out = new Float32Array(w * h * 3);
+  const lum = new Float32Array(w * h);
+  const clipMask = opts.clipLinear !== null ? new Uint8Array(w * h) : null;
+  const acc = new Float64Array(w * 3);
+  const table = linearTable(opts.transfer);
+  const toIdx = (255 * STEPS) / 255;
+  const [wr, wg, wb] = opts.weights;
+  const clipAt = opts.clipCode - 0.5;
+  const darkBelow = opts.darkCode - 0.5;
+  const clipLinear = opts.clipLinear ?? Infinity;
+  let clipped = 0;
+  let dark = 0;
+
+  const reader = new BitReader(data, start);
+  const coef = new Float64Array(64);
+  const tmp = new Float64Array(64);
+  let mcuCount = 0;
+  let nextRst = 0;
+  const c0 = comps[0]!;
+  const c1 = comps[1];
+  const c2 = comps[2];
+  const chs1 = c1 ? (hmax / c1.h === 2 ? 1 : 0) : 0;
+  const cvs1 = c1 ? (vmax / c1.v === 2 ? 1 : 0) : 0;
+  const chs2 = c2 ? (hmax / c2.h === 2 ? 1 : 0) : 0;
+  const cvs2 = c2 ? (vmax / c2.v === 2 ? 1 : 0) : 0;
+  const ys = comps.length === 1 ? 0 : hmax / c0.h === 2 ? 1 : 0;
+  const yvs = comps.length === 1 ? 0 : vmax / c0.v === 2 ? 1 : 0;
+
+  for (let my = 0; my < mcuRows; my++) {
+    for (let mx = 0; mx < mcusPerLine; mx++) {
+      if (restartInterval > 0 && mcuCount > 0 && mcuCount % restartInterval === 0) {
+        reader.restart(nextRst);
+        nextRst = (nextRst + 1) & 7;
+        for (const c of comps) c.pred = 0;
+      }
+      mcuCount++;
+      for (const c of comps) {
+        const q = qt[c.tq]!;
+        for (let by = 0; by < c.v; by++) {
+          for (let bx = 0; bx < c.h; bx++) {
+            // one block (T.81, F.2.2): DC difference, then run/size AC pairs
+            const t = reader.decode(c.dc!);
+            if (t > 11) throw new JpegDataError('bad DC difference size');
+            c.pred += reader.receiveExtend(t);
+            coef.fill(0);
+            coef[0] = c.pred * q[0]!;
+            let rowMask = 1;
+            let colMax = 0;
+            for (let k = 1; k < 64; ) {
+              const rs = reader.decode(c.ac!);
+              const sz = rs & 15;
+              const run = rs >> 4;
+              if (sz === 0) {
+                if (run === 15) {
+                  k += 16;
+                  continue;
+                }
+                break;
+              }
+              k += run;
+              if (k > 63) throw new JpegDataError('AC coefficient index past 63');
+              const z = ZIGZAG[k]!;
+              coef[z] = reader.receiveExtend(sz) * q[z]!;
+              rowMask |= 1 << (z >> 3);
+              if ((z & 7) > colMax) colMax = z & 7;
+              k++;
+            }
+            const ox = (mx * c.h + bx) * 8;
+            const oy = by * 8;
+            idct(coef, tmp, rowMask, colMax, c.rows, oy * c.stride + ox, c.stride);
+          }
+        }
+      }
+    }
+    // the MCU row is complete: colour, linear light, s×s means
+    const y0 = my * mcuH;
+    const y1 = Math.min(H, y0 + mcuH);
+    for (let y = y0; y < y1; y++) {
+      const ly = y - y0;
+      const yRow = (ly >> yvs) * c0.stride;
+      const r1 = c1 ? (ly >> cvs1) * c1.stride : 0;
+      const r2 = c2 ? (ly >> cvs2) * c2.stride : 0;
+      const Yd = c0.rows;
+      const Cb = c1 ? c1.rows : Yd;
+      const Cr = c2 ? c2.rows : Yd;
+      for (let x = 0, o = 0; x < W; x += s, o += 3) {
+        const xe = x + s < W ? x + s : W;
+        let a0 = 0;
+        let a1 = 0;
+        let a2 = 0;
+        for (let xx = x; xx < xe; xx++) {
+          let R: number;
+          let G: number;
+          let B: number;
+          const yv = Yd[yRow + (xx >> ys)]!;
+          if (c1 === undefined) {
+            R = G = B = yv;
+          } else if (ycc) {
+            const cb = Cb[r1 + (xx >> chs1)]! - 128;
+            const cr = Cr[r2 + (xx >> chs2)]! - 128;
+            R = yv + 1.402 * cr;
+            G = yv - 0.344136 * cb - 0.714136 * cr;
+            B = yv + 1.772 * cb;
+          } else {
+            R = yv;
+            G = Cb[r1 + (xx >> chs1)]!;
+            B = Cr[r2 + (xx >> chs2)]!;
+          }
+          R = R < 0 ? 0 : R > 255 ? 255 : R;
+          G = G < 0 ? 0 : G > 255 ? 255 : G;
+          B = B < 0 ? 0 : B > 255 ? 255 : B;
+          const mxc = R > G ? (R > B ? R : B) : G > B ? G : B;
+          if (mxc >= clipAt) clipped++;
+          if (mxc < darkBelow) dark++;
+          let f = R * toIdx;
+          let i = f | 0;
+          a0 += table[i]! + (f - i) * (table[i + 1]! - table[i]!);
+          f = G * toIdx;
+          i = f | 0;
+          a1 += table[i]! + (f - i) * (table[i + 1]! - table[i]!);
+          f = B * toIdx;
+          i = f | 0;
+          a2 += table[i]! + (f - i) * (table[i + 1]! - table[i]!);
+        }
+        acc[o] = acc[o]! + a0;
+        acc[o + 1] = acc[o + 1]! + a1;
+        acc[o + 2] = acc[o + 2]! + a2;
+      }
+      if ((y + 1) % s === 0 || y === H - 1) {
+        const oy = Math.floor(y / s);
+        const rows = y - oy * s + 1;
+        const base = oy * w;
+        for (let ox = 0; ox < w; ox++) {
+          const cols = Math.min(W, ox * s + s) - ox * s;
+          const inv = 1 / (rows * cols);
+          const o = ox * 3;
+          const r = Math.fround(acc[o]! * inv);
+          const g = Math.fround(acc[o + 1]! * inv);
+          const b = Math.fround(acc[o + 2]! * inv);
+          const k = (base + ox) * 3;
+          out[k] = r;
+          out[k + 1] = g;
+          out[k + 2] = b;
+          lum[base + ox] = wr * r + wg * g + wb * b;
+          if (clipMask !== null && (r >= clipLinear || g >= clipLinear || b >= clipLinear)) clipMask[base + ox] = 1;
+        }
+        acc.fill(0);
+      }
+    }
+  }
+  if (reader.overrun()) throw new JpegDataError('entropy-coded data ends early');
+  // the next marker must end the image (libjpeg, too, calls a file without it truncated)
+  let q = reader.pos;
+  while (q + 1 < data.length && !(data[q] === 0xff && data[q + 1] !== 0 && data[q + 1] !== 0xff && (data[q + 1]! < 0xd0 || data[q + 1]! > 0xd7))) q++;
+  if (q + 1 >= data.length || data[q + 1] !== 0xd9) throw new JpegDataError('no end-of-image marker after the scan');
+  return { lumaDcQuant: qt[c0.tq]![0]!, data: out, luminance: lum, width: w, height: h, clipped, dark, pixels: W * H, clipMask };
+}
+
+/**
+ * Inverse DCT of one dequantised block into `dst` (row stride `stride`), plus the level shift of 128.
+ * Rows of coefficients that are all zero (rowMask bit clear) and columns past colMax are skipped; a
+ * block with only its DC term is a constant.
+ */
+function idct(coef: Float64Array, tmp: Float64Array, rowMask: number, colMax: number, dst: Float32Array, at: number, stride: number): void {
+  if (rowMask === 1 && colMax === 0) {
+    const v = coef[0]! / 8 + 128;
+    for (let y = 0, p = at; y < 8; y++, p += stride) {
+      dst[p] = v;
+      dst[p + 1] = v;
+      dst[p + 2] = v;
+      dst[p + 3] = v;
+      dst[p + 4] = v;
+      dst[p + 5] = v;
+      dst[p + 6] = v;
+      dst[p + 7] = v;
+    }
+    return;
+  }
+  // rows: tmp[v][x] = Σ_u BASIS[x][u] · coef[v][u]
+  for (let v = 0; v < 8; v++) {
+    const r = v * 8;
+    if ((rowMask & (1 << v)) === 0) {
+      for (let x = 0; x < 8; x++) tmp[r + x] = 0;
+      continue;
+    }
+    for (let x = 0; x < 8; x++) {
+      const b = x * 8;
+      let sum = 0;
+      for (let u = 0; u <= colMax; u++) sum += BASIS[b + u]! * coef[r + u]!;
+      tmp[r + x] = sum;
+    }
+  }
+  // columns: out[y][x] = Σ_v BASIS[y][v] · tmp[v][x]
+  let vMax = 0;
+  for (let v = 7; v > 0; v--) {
+    if (rowMask & (1 << v)) {
+      vMax = v;
+      break;
+    }
+  }
+  for (let y = 0, p = at; y < 8; y++, p += stride) {
+    const b = y * 8;
+    for (let x = 0; x < 8; x++) {
+      let sum = 0;
+      for (let v = 0; v <= vMax; v++) sum += BASIS[b + v]! * tmp[v * 8 + x]!;
+      dst[p + x] = sum + 128;
+    }
+  }
+}
+
+/**
+ * The DC quantiser of a JPEG's first component (luma), read from its headers, or null when the file
+ * does not say (not a JPEG, or damaged before its first scan).
+ */
+export function lumaDcQuant(data: Uint8Array): number | null {
+  if (data.length < 4 || data[0] !== 0xff || data[1] !== 0xd8) return null;
+  const dc: number[] = [];
+  let tq: number | null = null;
+  let pos = 2;
+  while (pos + 4 <= data.length) {
+    if (data[pos] !== 0xff) return null;
+    while (data[pos] === 0xff) pos++;
+    const m = data[pos++]!;
+    if (m === 0xd8 || (m >= 0xd0 && m <= 0xd7) || m === 0x01) continue;
+    // tables may follow the frame header: the first scan closes them
+    if (m === 0xda) return tq !== null ? (dc[tq] ?? null) : null;
+    if (m === 0xd9) return null;
+    const len = (data[pos]! << 8) | data[pos + 1]!;
+    const end = pos + len;
+    if (len < 2 || end > data.length) return null;
+    let p = pos + 2;
+    if (m === 0xdb) {
+      while (p < end) {
+        const pq = data[p]! >> 4;
+        dc[data[p]! & 15] = pq ? (data[p + 1]! << 8) | data[p + 2]! : data[p + 1]!;
+        p += 1 + (pq ? 128 : 64);
+      }
+    } else if (m >= 0xc0 && m <= 0xcf && m !== 0xc4 && m !== 0xc8 && m !== 0xcc) {
+      // frame header: the first component's quantisation table
+      tq = data[pos + 2 + 8]!;
+    }
+    pos = end;
+  }
+  return null;
+}
