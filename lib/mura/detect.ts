@@ -351,6 +351,10 @@ export function detectFeatures(ctx: Ctx, levelsIn: Level[], useFitFloor = true):
     // a half-peak region smaller than a quarter of the smallest feature searched for is a pixel or two
     // (an edge or corner artefact), not a feature this analysis resolves
     if (f.areaMm2 < (0.25 * Math.PI * o.minFeatureMm ** 2) / 4) continue;
+    // black fields show light that leaks (bleed, clouding, glow): a spot or cloud darker than its
+    // surround is less leakage, not a defect of the black, and where the lens and the panel roll off
+    // towards the corners it is mostly the low-order surface missing the roll-off
+    if (ctx.black && f.sign < 0) continue;
     // no larger than two JPEG blocks and no stronger than a block's coding error (a quantised AC term
     // draws a pattern of a code value or two over its block; three taken): cannot be told from it
     const extentMm = Math.max(f.lengthMm, 2 * Math.sqrt(f.areaMm2 / Math.PI));

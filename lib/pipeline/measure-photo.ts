@@ -317,11 +317,13 @@ async function measureInner(
     // The outermost map pixels average camera pixels that straddle the active-area edge (part bezel),
     // and the edge transition is a few camera pixels wide (optics, demosaicing): keep that border out
     // of the mura analysis, or it reads as dark lines along every edge. A JPEG also rings inside each
-    // 8 x 8 block that holds the step from bezel to panel (a bright rim of a few %): for JPEG input the
-    // border reaches one block further.
+    // 8 x 8 block that holds the step from bezel to panel (a bright rim of a few %): for JPEG photos of
+    // lit fields the border reaches one block further. Not on black fields: there the glow to be
+    // measured peaks at the edge, and their limits are tens of % (lot study: a corner glow's peak
+    // measured 89 % instead of 173 % with the wider border).
     const camPerMap = result.geometry?.cameraPxPerMapPx ?? null;
     const isJpeg = result.decode?.format === 'jpeg';
-    const ringMapPx = isJpeg && camPerMap ? 8 / camPerMap : 0;
+    const ringMapPx = isJpeg && camPerMap && opts.pattern !== 'black' ? 8 / camPerMap : 0;
     const border = Math.ceil(EDGE_TRANSITION_CAMERA_PX / Math.max(cameraPxPerMapPx, 1e-3) + ringMapPx) + 1;
     // JPEG codes each 8 x 8 block on its own: tell the analysis how large a block is on the panel
     const jpegBlockMm = isJpeg && camPerMap ? 8 / (camPerMap * map.pxPerMm) : null;

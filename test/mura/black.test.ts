@@ -68,3 +68,21 @@ describe('glow on black fields', () => {
     expect(r.notes.some((n) => /extrapolation/.test(n))).toBe(false);
   });
 });
+
+describe('what black fields report', () => {
+  it('reports a bright cloud (clouding) and not a dark one (less leakage)', () => {
+    const r = run(
+      [
+        { kind: 'gauss', xMm: 70, yMm: 75, sigmaMm: 12, contrastPct: 40 },
+        { kind: 'gauss', xMm: 170, yMm: 75, sigmaMm: 12, contrastPct: -40 },
+      ],
+      23,
+    );
+    expect(r.blobs.some((b) => b.polarity === 'bright' && Math.hypot(b.xMm - 70, b.yMm - 75) < 5)).toBe(true);
+    expect(r.blobs.filter((b) => b.polarity === 'dark' && b.kind !== 'band')).toHaveLength(0);
+    // the same dark cloud on a gray field is reported
+    const g = analyseMura(synthMap({ widthMm: W, heightMm: H, pxPerMm: 2, noisePct: 0.5, seed: 23, smooth: [[0, 0.02]], features: [{ kind: 'gauss', xMm: 170, yMm: 75, sigmaMm: 12, contrastPct: -4 }] }), { pattern: 'gray' });
+    expect(g.blobs.some((b) => b.polarity === 'dark' && Math.hypot(b.xMm - 170, b.yMm - 75) < 5)).toBe(true);
+  });
+});
+

@@ -65,4 +65,35 @@ describe('coding limits', () => {
     expect(near(analyseMura(m, { pattern: 'gray', codeStepPct: 1.12, codeLevel: { centreY: 0.578, gain: flat } }))).toHaveLength(1);
     expect(near(analyseMura(m, { pattern: 'gray', codeStepPct: 1.12, codeLevel: { centreY: 0.578, gain: dimLeft } }))).toHaveLength(0);
   });
+
+  it('a JPEG decoded in float: the level step is a fraction of a code, the two-block rule still counts whole codes', () => {
+    // The spot of the test above (mean about 1.44 %) at a centre level of code 200 (1.12 % a code):
+    // dropped under whole-code decoding, kept when the level step is 0.375 of a code (a JPEG of quality
+    // 92 decoded in float: DC quantiser 3, ITU-T T.81 Annex K table scaled as libjpeg does).
+    const m = map(3, 2);
+    const flat = { cols: 2, rows: 2, data: Float32Array.from([1, 1, 1, 1]) };
+    const near = (r: ReturnType<typeof analyseMura>) => r.blobs.filter((b) => Math.hypot(b.xMm - 100, b.yMm - 70) < 5);
+    expect(near(analyseMura(m, { pattern: 'gray', codeStepPct: 1.6, codeLevel: { centreY: 0.578, gain: flat, stepCodes: 1.6 / 1.12 } }))).toHaveLength(0);
+    expect(near(analyseMura(m, { pattern: 'gray', codeStepPct: 0.42, codeLevel: { centreY: 0.578, gain: flat, stepCodes: 0.375 } }))).toHaveLength(1);
+    // a spot no wider than two 2 mm blocks at 8 % peak (6 % as measured): kept where a code value is 1.12 %
+    // of the level (code 200); where it is 3.1 % (linear 0.05, code 66) the spot is under three whole codes
+    // and goes, however fine the level step (a quantised AC term draws such patterns over its block)
+    const small = map(1, 8);
+    expect(srgbCodeStepPct(0.05)).toBeCloseTo(3.11, 1);
+    expect(near(analyseMura(small, { pattern: 'gray', jpegBlockMm: 2, codeStepPct: 0.375 * 1.12, codeLevel: { centreY: 0.578, gain: flat, stepCodes: 0.375 } }))).toHaveLength(1);
+    expect(near(analyseMura(small, { pattern: 'gray', jpegBlockMm: 2, codeStepPct: 0.375 * 3.11, codeLevel: { centreY: 0.05, gain: flat, stepCodes: 0.375 } }))).toHaveLength(0);
+  });
+
+  it('drops a half-peak region smaller than a quarter of the smallest feature searched for', () => {
+    // sigma 0.4 mm on a map of 0.5 mm pixels: measured over about 1.9 mm² (the map's own smoothing).
+    // Kept with the default smallest feature (3 mm: a quarter of its disc is 1.77 mm²), dropped when the
+    // smallest feature is 6 mm (7.1 mm²).
+    const m = map(0.4, 30);
+    const near = (r: ReturnType<typeof analyseMura>) => r.blobs.filter((b) => Math.hypot(b.xMm - 100, b.yMm - 70) < 5);
+    const kept = near(analyseMura(m, { pattern: 'gray' }));
+    expect(kept).toHaveLength(1);
+    expect(kept[0]!.areaMm2).toBeGreaterThan(0.25 * Math.PI * 1.5 ** 2);
+    expect(kept[0]!.areaMm2).toBeLessThan(0.25 * Math.PI * 3 ** 2);
+    expect(near(analyseMura(m, { pattern: 'gray', minFeatureMm: 6 }))).toHaveLength(0);
+  });
 });
