@@ -55,9 +55,9 @@ export interface DecodeInfo {
   /** Decoded at 1/scale of full size (JPEG shrink-on-load or box average); 1 = full size. */
   scale: number;
   /**
-   * JPEG only (else null): 'float' = decoded by evenfield's own baseline decoder without rounding samples
-   * to whole code values; '8bit' = decoded by libvips to whole code values (progressive, arithmetic-coded
-   * or CMYK files, or when asked).
+   * JPEG only (else null): 'float' = decoded by evenfield's own decoder (baseline or progressive) without
+   * rounding samples to whole code values; '8bit' = decoded by libvips to whole code values
+   * (arithmetic-coded, 12-bit or CMYK files, or when asked).
    */
   jpegSamples: 'float' | '8bit' | null;
   /**

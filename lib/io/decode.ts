@@ -73,7 +73,7 @@ export interface DecodeOptions {
    */
   clipMaskLinear?: number;
   /**
-   * JPEG sample precision (default 'float'): 'float' decodes baseline JPEGs with evenfield's own decoder
+   * JPEG sample precision (default 'float'): 'float' decodes Huffman-coded JPEGs with evenfield's own decoder
    * (jpeg-float.ts), which keeps the fraction of a code value an 8-bit decoder rounds away; '8bit' (and
    * any file outside that decoder's scope) decodes with libvips to whole code values.
    */
@@ -630,7 +630,7 @@ export async function decodePhotoBuffer(buf: Buffer, name: string, opts: DecodeO
   const useShrink = scale > 1 && opts.method === 'jpeg-shrink' && plan.format === 'jpeg';
   const method: DecodedPhoto['method'] = scale === 1 ? 'full' : useShrink ? 'jpeg-shrink' : 'linear-box';
 
-  // Baseline JPEG at full precision (see jpeg-float.ts). Damaged data and files outside its scope go to
+  // Huffman-coded JPEG at full precision (see jpeg-float.ts). Damaged data and files outside its scope go to
   // libvips below, which decodes them to whole codes or reports the damage in its own words.
   if (plan.format === 'jpeg' && !useShrink && !plan.isCmyk && (opts.jpegSamples ?? 'float') === 'float') {
     const th = thresholds(8, clipLevel, darkLevel);

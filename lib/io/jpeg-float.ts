@@ -9,14 +9,15 @@
 // DCT (ITU-T T.81, A.3.3), no rounding, and YCbCr to RGB (JFIF 1.02) in floating point; only the range
 // is limited to [0, 255] as every decoder does.
 //
-// Scope: one interleaved baseline or extended-sequential Huffman scan, 8-bit samples, 1 or 3
-// components, sampling factors 1 or 2 (4:4:4, 4:2:2, 4:2:0, 4:4:0), restart intervals. Anything else
-// (progressive, arithmetic coding, 12-bit, CMYK, several scans) returns null and the caller decodes
-// with libvips. Damaged entropy-coded data throws JpegDataError (the caller then lets libvips report
+// Scope: Huffman-coded baseline and extended-sequential files (one interleaved scan) and progressive
+// files (any scans), 8-bit samples, 1 or 3 components, sampling factors 1 or 2 (4:4:4, 4:2:2, 4:2:0,
+// 4:4:0), restart intervals. Anything else (arithmetic coding, 12-bit, CMYK, sequential files in
+// several scans) returns null and the caller decodes with libvips. Damaged entropy-coded data throws JpegDataError (the caller then lets libvips report
 // it in its words).
 //
 // Output is streamed: each row of MCUs is turned into linear light and averaged into the reduced image
-// as soon as it is decoded, so no full-size buffer exists.
+// as soon as it is decoded (progressive files: once all scans are read into the coefficient arrays), so
+// no full-size sample buffer exists.
 
 import { srgbDecode } from '../photometry/index.js';
 
@@ -124,6 +125,14 @@ class BitReader {
     return h.values[h.valPtr[len]! + code - h.minCode[len]!]!;
   }
 
+  /** n raw bits (n <= 16). */
+  bits(n: number): number {
+    if (this.n < n) this.fill();
+    const v = (this.acc >>> (this.n - n)) & ((1 << n) - 1);
+    this.n -= n;
+    return v;
+  }
+
   /** s more bits as a signed difference (T.81, F.2.2.1 EXTEND). */
   receiveExtend(s: number): number {
     if (s === 0) return 0;
@@ -189,6 +198,12 @@ interface Comp {
   /** samples of one MCU row: (mcusPerLine · h · 8) wide, v · 8 high */
   rows: Float32Array;
   stride: number;
+  /** blocks across and down the MCU-padded frame (coefficient storage of progressive files) */
+  bw: number;
+  bh: number;
+  /** the component's own size in samples */
+  cw: number;
+  ch: number;
 }
 
 /** Code value (0..255, real) to linear light: a table of 16 steps per code, linearly interpolated. */
@@ -208,8 +223,8 @@ function linearTable(transfer: 'srgb' | 'linear'): Float64Array {
 }
 
 /**
- * Decode a baseline JPEG to linear light at 1/scale, without rounding samples to whole codes.
- * Returns null for files outside this decoder's scope (see the file's header comment).
+ * Decode a baseline or progressive Huffman-coded JPEG to linear light at 1/scale, without rounding
+ * samples to whole codes. Returns null for files outside this decoder's scope (see the file's header).
  */
 export function decodeJpegFloat(data: Uint8Array, opts: FloatDecodeOptions): FloatDecoded | null {
   if (data.length < 4 || data[0] !== 0xff || data[1] !== 0xd8) return null;
@@ -218,10 +233,9 @@ export function decodeJpegFloat(data: Uint8Array, opts: FloatDecodeOptions): Flo
   const acTables: (Huffman | undefined)[] = [];
   let restartInterval = 0;
   let adobeTransform: number | null = null;
-  let width = 0;
-  let height = 0;
-  let comps: Comp[] = [];
-  let frameSeen = false;
+  let frame: Frame | null = null;
+  let progressive = false;
+  let coefs: Int16Array[] | null = null;
   let pos = 2;
   const u16 = (p: number): number => (data[p]! << 8) | data[p + 1]!;
   while (pos < data.length) {
@@ -264,60 +278,118 @@ export function decodeJpegFloat(data: Uint8Array, opts: FloatDecodeOptions): Flo
     } else if (m === 0xee) {
       // Adobe APP14: transform 0 = RGB (or CMYK), 1 = YCbCr, 2 = YCCK
       if (len >= 14 && String.fromCharCode(...data.subarray(p, p + 5)) === 'Adobe') adobeTransform = data[p + 11]!;
-    } else if (m === 0xc0 || m === 0xc1) {
+    } else if (m === 0xc0 || m === 0xc1 || m === 0xc2) {
+      if (frame) throw new JpegDataError('second frame header');
       if (data[p] !== 8) return null;
-      height = u16(p + 1);
-      width = u16(p + 3);
+      const height = u16(p + 1);
+      const width = u16(p + 3);
       const nf = data[p + 5]!;
       if (height === 0 || width === 0 || (nf !== 1 && nf !== 3)) return null;
-      comps = [];
+      const comps: Comp[] = [];
       for (let i = 0; i < nf; i++) {
         const q = p + 6 + 3 * i;
-        comps.push({ id: data[q]!, h: data[q + 1]! >> 4, v: data[q + 1]! & 15, tq: data[q + 2]!, dc: null, ac: null, pred: 0, rows: new Float32Array(0), stride: 0 });
+        comps.push({ id: data[q]!, h: data[q + 1]! >> 4, v: data[q + 1]! & 15, tq: data[q + 2]!, dc: null, ac: null, pred: 0, rows: new Float32Array(0), stride: 0, bw: 0, bh: 0, cw: 0, ch: 0 });
       }
-      frameSeen = true;
-    } else if (m >= 0xc2 && m <= 0xcf && m !== 0xc4 && m !== 0xc8 && m !== 0xcc) {
-      return null; // progressive, lossless, hierarchical or arithmetic-coded
+      frame = frameOf(width, height, comps, opts);
+      if (!frame) return null;
+      progressive = m === 0xc2;
+      if (progressive) coefs = frame.comps.map((c) => new Int16Array(c.bw * c.bh * 64));
+    } else if (m >= 0xc3 && m <= 0xcf && m !== 0xc4 && m !== 0xc8 && m !== 0xcc) {
+      return null; // lossless, hierarchical or arithmetic-coded
     } else if (m === 0xda) {
-      if (!frameSeen) throw new JpegDataError('scan before frame header');
+      if (!frame) throw new JpegDataError('scan before frame header');
       const ns = data[p]!;
-      if (ns !== comps.length) return null; // non-interleaved scans
+      const scomps: Comp[] = [];
       for (let i = 0; i < ns; i++) {
         const cid = data[p + 1 + 2 * i]!;
         const tables = data[p + 2 + 2 * i]!;
-        const c = comps.find((x) => x.id === cid);
+        const c = frame.comps.find((x) => x.id === cid);
         if (!c) throw new JpegDataError('scan names an unknown component');
         c.dc = dcTables[tables >> 4] ?? null;
         c.ac = acTables[tables & 15] ?? null;
-        if (!c.dc || !c.ac) throw new JpegDataError('scan uses an undefined Huffman table');
-        if (!qt[c.tq]) throw new JpegDataError('component uses an undefined quantisation table');
+        scomps.push(c);
       }
-      const ycc = comps.length === 3 && adobeTransform !== 0 && !(comps[0]!.id === 82 && comps[1]!.id === 71 && comps[2]!.id === 66);
-      return decodeScan(data, end, width, height, comps, qt as Float64Array[], restartInterval, ycc, opts);
+      const q = p + 1 + 2 * ns;
+      const ss = data[q]!;
+      const se = data[q + 1]!;
+      const ah = data[q + 2]! >> 4;
+      const al = data[q + 2]! & 15;
+      if (!progressive) {
+        if (ns !== frame.comps.length) return null; // non-interleaved sequential scans
+        for (const c of frame.comps) {
+          if (!c.dc || !c.ac) throw new JpegDataError('scan uses an undefined Huffman table');
+          if (!qt[c.tq]) throw new JpegDataError('component uses an undefined quantisation table');
+        }
+        const ycc = isYcc(frame.comps, adobeTransform);
+        const out = new Emitter(frame, opts, ycc);
+        const reader = decodeBaseline(data, end, frame, qt as Float64Array[], restartInterval, out);
+        expectEnd(data, reader);
+        return out.result(qt[frame.comps[0]!.tq]![0]!);
+      }
+      if (ss > se || se > 63 || (ss === 0 && se !== 0) || (ss > 0 && ns !== 1) || al > 13) throw new JpegDataError('bad progressive scan parameters');
+      for (const c of scomps) {
+        if (ss === 0 && ah === 0 && !c.dc) throw new JpegDataError('scan uses an undefined Huffman table');
+        if (ss > 0 && !c.ac) throw new JpegDataError('scan uses an undefined Huffman table');
+      }
+      const reader = decodeProgressiveScan(data, end, frame, scomps, coefs!, restartInterval, ss, se, ah, al);
+      if (reader.overrun()) throw new JpegDataError('entropy-coded data ends early');
+      // continue at the marker that ends the scan
+      let r = reader.pos;
+      while (r + 1 < data.length && !(data[r] === 0xff && data[r + 1] !== 0 && data[r + 1] !== 0xff && (data[r + 1]! < 0xd0 || data[r + 1]! > 0xd7))) r++;
+      if (r + 1 >= data.length) throw new JpegDataError('no end-of-image marker after the scan');
+      pos = r;
+      continue;
     }
     pos = end;
+  }
+  if (progressive && frame && coefs) {
+    if (pos >= data.length && data[data.length - 1] !== 0xd9) throw new JpegDataError('no end-of-image marker');
+    for (const c of frame.comps) if (!qt[c.tq]) throw new JpegDataError('component uses an undefined quantisation table');
+    const out = new Emitter(frame, opts, isYcc(frame.comps, adobeTransform));
+    renderCoefficients(frame, coefs, qt as Float64Array[], out);
+    return out.result(qt[frame.comps[0]!.tq]![0]!);
   }
   throw new JpegDataError('no image data');
 }
 
-function decodeScan(
-  data: Uint8Array,
-  start: number,
-  W: number,
-  H: number,
-  comps: Comp[],
-  qt: Float64Array[],
-  restartInterval: number,
-  ycc: boolean,
-  opts: FloatDecodeOptions,
-): FloatDecoded | null {
+function isYcc(comps: Comp[], adobeTransform: number | null): boolean {
+  return comps.length === 3 && adobeTransform !== 0 && !(comps[0]!.id === 82 && comps[1]!.id === 71 && comps[2]!.id === 66);
+}
+
+/** The next marker after a scan must end the image (libjpeg, too, calls a file without it truncated). */
+function expectEnd(data: Uint8Array, reader: BitReader): void {
+  if (reader.overrun()) throw new JpegDataError('entropy-coded data ends early');
+  let q = reader.pos;
+  while (q + 1 < data.length && !(data[q] === 0xff && data[q + 1] !== 0 && data[q + 1] !== 0xff && (data[q + 1]! < 0xd0 || data[q + 1]! > 0xd7))) q++;
+  if (q + 1 >= data.length || data[q + 1] !== 0xd9) throw new JpegDataError('no end-of-image marker after the scan');
+}
+
+interface Frame {
+  W: number;
+  H: number;
+  comps: Comp[];
+  hmax: number;
+  vmax: number;
+  mcuW: number;
+  mcuH: number;
+  mcusPerLine: number;
+  mcuRows: number;
+}
+
+/** Frame geometry (T.81, A.1.1): MCU size, each component's block grid. Null for sampling outside scope. */
+function frameOf(W: number, H: number, comps: Comp[], opts: FloatDecodeOptions): Frame | null {
   const hmax = Math.max(...comps.map((c) => c.h));
   const vmax = Math.max(...comps.map((c) => c.v));
   for (const c of comps) {
     if (c.h < 1 || c.v < 1 || hmax / c.h > 2 || vmax / c.v > 2 || hmax % c.h || vmax % c.v) return null;
   }
+  // the component's own size and block grid, before the sampling factors are normalised below
+  for (const c of comps) {
+    c.cw = Math.ceil((W * c.h) / hmax);
+    c.ch = Math.ceil((H * c.v) / vmax);
+  }
   if (comps.length === 1) {
-    // a single-component scan is not interleaved: one block per MCU whatever the sampling factors
+    // a single-component frame is never interleaved: one block per MCU whatever the sampling factors
     comps[0]!.h = 1;
     comps[0]!.v = 1;
   }
@@ -327,51 +399,32 @@ function decodeScan(
   const mcuH = 8 * mv;
   const mcusPerLine = Math.ceil(W / mcuW);
   const mcuRows = Math.ceil(H / mcuH);
+  if (mcuH % opts.scale !== 0) return null;
   for (const c of comps) {
     c.stride = mcusPerLine * c.h * 8;
     c.rows = new Float32Array(c.stride * c.v * 8);
+    c.bw = mcusPerLine * c.h;
+    c.bh = mcuRows * c.v;
   }
-  const s = opts.scale;
-  if (mcuH % s !== 0) return null;
-  const w = Math.ceil(W / s);
-  const h = Math.ceil(H / s);
-  const out = new Float32Array(w * h * 3);
-  const lum = new Float32Array(w * h);
-  const clipMask = opts.clipLinear !== null ? new Uint8Array(w * h) : null;
-  const acc = new Float64Array(w * 3);
-  const table = linearTable(opts.transfer);
-  const toIdx = (255 * STEPS) / 255;
-  const [wr, wg, wb] = opts.weights;
-  const clipAt = opts.clipCode - 0.5;
-  const darkBelow = opts.darkCode - 0.5;
-  const clipLinear = opts.clipLinear ?? Infinity;
-  let clipped = 0;
-  let dark = 0;
+  return { W, H, comps, hmax: comps.length === 1 ? 1 : hmax, vmax: comps.length === 1 ? 1 : vmax, mcuW, mcuH, mcusPerLine, mcuRows };
+}
 
+/** One sequential scan of all components, decoded and emitted one MCU row at a time (T.81, F.2.2). */
+function decodeBaseline(data: Uint8Array, start: number, f: Frame, qt: Float64Array[], restartInterval: number, out: Emitter): BitReader {
   const reader = new BitReader(data, start);
   const coef = new Float64Array(64);
   const tmp = new Float64Array(64);
   let mcuCount = 0;
   let nextRst = 0;
-  const c0 = comps[0]!;
-  const c1 = comps[1];
-  const c2 = comps[2];
-  const chs1 = c1 ? (hmax / c1.h === 2 ? 1 : 0) : 0;
-  const cvs1 = c1 ? (vmax / c1.v === 2 ? 1 : 0) : 0;
-  const chs2 = c2 ? (hmax / c2.h === 2 ? 1 : 0) : 0;
-  const cvs2 = c2 ? (vmax / c2.v === 2 ? 1 : 0) : 0;
-  const ys = comps.length === 1 ? 0 : hmax / c0.h === 2 ? 1 : 0;
-  const yvs = comps.length === 1 ? 0 : vmax / c0.v === 2 ? 1 : 0;
-
-  for (let my = 0; my < mcuRows; my++) {
-    for (let mx = 0; mx < mcusPerLine; mx++) {
+  for (let my = 0; my < f.mcuRows; my++) {
+    for (let mx = 0; mx < f.mcusPerLine; mx++) {
       if (restartInterval > 0 && mcuCount > 0 && mcuCount % restartInterval === 0) {
         reader.restart(nextRst);
         nextRst = (nextRst + 1) & 7;
-        for (const c of comps) c.pred = 0;
+        for (const c of f.comps) c.pred = 0;
       }
       mcuCount++;
-      for (const c of comps) {
+      for (const c of f.comps) {
         const q = qt[c.tq]!;
         for (let by = 0; by < c.v; by++) {
           for (let bx = 0; bx < c.h; bx++) {
@@ -402,24 +455,230 @@ function decodeScan(
               if ((z & 7) > colMax) colMax = z & 7;
               k++;
             }
-            const ox = (mx * c.h + bx) * 8;
-            const oy = by * 8;
-            idct(coef, tmp, rowMask, colMax, c.rows, oy * c.stride + ox, c.stride);
+            idct(coef, tmp, rowMask, colMax, c.rows, by * 8 * c.stride + (mx * c.h + bx) * 8, c.stride);
           }
         }
       }
     }
-    // the MCU row is complete: colour, linear light, s×s means
-    const y0 = my * mcuH;
-    const y1 = Math.min(H, y0 + mcuH);
+    out.emitMcuRow(my);
+  }
+  return reader;
+}
+
+/**
+ * One scan of a progressive JPEG into the coefficient arrays (T.81, G.1.2; the refinement of AC
+ * coefficients follows G.1.2.3): DC first and refinement scans, interleaved or not; AC first and
+ * refinement scans of one component, with end-of-band runs.
+ */
+function decodeProgressiveScan(
+  data: Uint8Array,
+  start: number,
+  f: Frame,
+  scomps: Comp[],
+  coefs: Int16Array[],
+  restartInterval: number,
+  ss: number,
+  se: number,
+  ah: number,
+  al: number,
+): BitReader {
+  const reader = new BitReader(data, start);
+  const p1 = 1 << al;
+  const m1 = -1 << al;
+  let eobrun = 0;
+  const blockDc = (c: Comp, store: Int16Array, at: number): void => {
+    if (ah === 0) {
+      const t = reader.decode(c.dc!);
+      if (t > 11) throw new JpegDataError('bad DC difference size');
+      c.pred += reader.receiveExtend(t);
+      store[at] = c.pred * p1;
+    } else if (reader.bits(1)) store[at] = store[at]! | p1;
+  };
+  const blockAcFirst = (c: Comp, store: Int16Array, at: number): void => {
+    if (eobrun > 0) {
+      eobrun--;
+      return;
+    }
+    for (let k = ss; k <= se; k++) {
+      const rs = reader.decode(c.ac!);
+      const s = rs & 15;
+      const r = rs >> 4;
+      if (s) {
+        k += r;
+        if (k > 63) throw new JpegDataError('AC coefficient index past 63');
+        store[at + ZIGZAG[k]!] = reader.receiveExtend(s) * p1;
+      } else if (r === 15) {
+        k += 15;
+      } else {
+        eobrun = (1 << r) - 1;
+        if (r) eobrun += reader.bits(r);
+        break;
+      }
+    }
+  };
+  const refine = (store: Int16Array, z: number): void => {
+    if (reader.bits(1) && (store[z]! & p1) === 0) store[z] = store[z]! + (store[z]! >= 0 ? p1 : m1);
+  };
+  const blockAcRefine = (c: Comp, store: Int16Array, at: number): void => {
+    let k = ss;
+    if (eobrun === 0) {
+      for (; k <= se; k++) {
+        const rs = reader.decode(c.ac!);
+        let r = rs >> 4;
+        let s = rs & 15;
+        if (s) {
+          if (s !== 1) throw new JpegDataError('bad AC refinement size');
+          s = reader.bits(1) ? p1 : m1;
+        } else if (r !== 15) {
+          eobrun = 1 << r;
+          if (r) eobrun += reader.bits(r);
+          break;
+        }
+        while (k <= se) {
+          const z = at + ZIGZAG[k]!;
+          if (store[z] !== 0) refine(store, z);
+          else if (--r < 0) break;
+          k++;
+        }
+        if (s) {
+          if (k > 63) throw new JpegDataError('AC coefficient index past 63');
+          store[at + ZIGZAG[k]!] = s;
+        }
+      }
+    }
+    if (eobrun > 0) {
+      for (; k <= se; k++) {
+        const z = at + ZIGZAG[k]!;
+        if (store[z] !== 0) refine(store, z);
+      }
+      eobrun--;
+    }
+  };
+  const block = ss === 0 ? blockDc : ah === 0 ? blockAcFirst : blockAcRefine;
+  let count = 0;
+  let nextRst = 0;
+  const restartCheck = (): void => {
+    if (restartInterval > 0 && count > 0 && count % restartInterval === 0) {
+      reader.restart(nextRst);
+      nextRst = (nextRst + 1) & 7;
+      for (const c of f.comps) c.pred = 0;
+      eobrun = 0;
+    }
+    count++;
+  };
+  for (const c of f.comps) c.pred = 0;
+  if (scomps.length === 1) {
+    // non-interleaved: the component's own blocks in raster order (T.81, A.2.2)
+    const c = scomps[0]!;
+    const store = coefs[f.comps.indexOf(c)]!;
+    const bw = Math.ceil(c.cw / 8);
+    const bh = Math.ceil(c.ch / 8);
+    for (let by = 0; by < bh; by++) {
+      for (let bx = 0; bx < bw; bx++) {
+        restartCheck();
+        block(c, store, (by * c.bw + bx) * 64);
+      }
+    }
+  } else {
+    for (let my = 0; my < f.mcuRows; my++) {
+      for (let mx = 0; mx < f.mcusPerLine; mx++) {
+        restartCheck();
+        for (const c of scomps) {
+          const store = coefs[f.comps.indexOf(c)]!;
+          for (let by = 0; by < c.v; by++) {
+            for (let bx = 0; bx < c.h; bx++) block(c, store, ((my * c.v + by) * c.bw + mx * c.h + bx) * 64);
+          }
+        }
+      }
+    }
+  }
+  return reader;
+}
+
+/** Dequantise and transform the stored coefficients, one MCU row at a time, into the emitter. */
+function renderCoefficients(f: Frame, coefs: Int16Array[], qt: Float64Array[], out: Emitter): void {
+  const coef = new Float64Array(64);
+  const tmp = new Float64Array(64);
+  for (let my = 0; my < f.mcuRows; my++) {
+    f.comps.forEach((c, ci) => {
+      const q = qt[c.tq]!;
+      const store = coefs[ci]!;
+      for (let by = 0; by < c.v; by++) {
+        for (let bx = 0; bx < c.bw; bx++) {
+          const at = ((my * c.v + by) * c.bw + bx) * 64;
+          let rowMask = 1;
+          let colMax = 0;
+          for (let z = 0; z < 64; z++) {
+            const v = store[at + z]!;
+            coef[z] = v * q[z]!;
+            if (v !== 0 && z > 0) {
+              rowMask |= 1 << (z >> 3);
+              if ((z & 7) > colMax) colMax = z & 7;
+            }
+          }
+          idct(coef, tmp, rowMask, colMax, c.rows, by * 8 * c.stride + bx * 8, c.stride);
+        }
+      }
+    });
+    out.emitMcuRow(my);
+  }
+}
+
+/** Colour, linear light and the s×s means of each decoded MCU row, streamed into the reduced image. */
+class Emitter {
+  private readonly out: Float32Array;
+  private readonly lum: Float32Array;
+  private readonly clipMask: Uint8Array | null;
+  private readonly acc: Float64Array;
+  private readonly w: number;
+  private readonly h: number;
+  private clipped = 0;
+  private dark = 0;
+  constructor(
+    private readonly f: Frame,
+    private readonly opts: FloatDecodeOptions,
+    private readonly ycc: boolean,
+  ) {
+    this.w = Math.ceil(f.W / opts.scale);
+    this.h = Math.ceil(f.H / opts.scale);
+    this.out = new Float32Array(this.w * this.h * 3);
+    this.lum = new Float32Array(this.w * this.h);
+    this.clipMask = opts.clipLinear !== null ? new Uint8Array(this.w * this.h) : null;
+    this.acc = new Float64Array(this.w * 3);
+  }
+
+  emitMcuRow(my: number): void {
+    const { f, opts, ycc, acc, out, lum, clipMask, w } = this;
+    const W = f.W;
+    const H = f.H;
+    const s = opts.scale;
+    const table = linearTable(opts.transfer);
+    const toIdx = STEPS;
+    const [wr, wg, wb] = opts.weights;
+    const clipAt = opts.clipCode - 0.5;
+    const darkBelow = opts.darkCode - 0.5;
+    const clipLinear = opts.clipLinear ?? Infinity;
+    const c0 = f.comps[0]!;
+    const c1 = f.comps[1];
+    const c2 = f.comps[2];
+    const chs1 = c1 ? (f.hmax / c1.h === 2 ? 1 : 0) : 0;
+    const cvs1 = c1 ? (f.vmax / c1.v === 2 ? 1 : 0) : 0;
+    const chs2 = c2 ? (f.hmax / c2.h === 2 ? 1 : 0) : 0;
+    const cvs2 = c2 ? (f.vmax / c2.v === 2 ? 1 : 0) : 0;
+    const ys = f.comps.length === 1 ? 0 : f.hmax / c0.h === 2 ? 1 : 0;
+    const yvs = f.comps.length === 1 ? 0 : f.vmax / c0.v === 2 ? 1 : 0;
+    let clipped = 0;
+    let dark = 0;
+    const y0 = my * f.mcuH;
+    const y1 = Math.min(H, y0 + f.mcuH);
+    const Yd = c0.rows;
+    const Cb = c1 ? c1.rows : Yd;
+    const Cr = c2 ? c2.rows : Yd;
     for (let y = y0; y < y1; y++) {
       const ly = y - y0;
       const yRow = (ly >> yvs) * c0.stride;
       const r1 = c1 ? (ly >> cvs1) * c1.stride : 0;
       const r2 = c2 ? (ly >> cvs2) * c2.stride : 0;
-      const Yd = c0.rows;
-      const Cb = c1 ? c1.rows : Yd;
-      const Cr = c2 ? c2.rows : Yd;
       for (let x = 0, o = 0; x < W; x += s, o += 3) {
         const xe = x + s < W ? x + s : W;
         let a0 = 0;
@@ -449,15 +708,15 @@ function decodeScan(
           const mxc = R > G ? (R > B ? R : B) : G > B ? G : B;
           if (mxc >= clipAt) clipped++;
           if (mxc < darkBelow) dark++;
-          let f = R * toIdx;
-          let i = f | 0;
-          a0 += table[i]! + (f - i) * (table[i + 1]! - table[i]!);
-          f = G * toIdx;
-          i = f | 0;
-          a1 += table[i]! + (f - i) * (table[i + 1]! - table[i]!);
-          f = B * toIdx;
-          i = f | 0;
-          a2 += table[i]! + (f - i) * (table[i + 1]! - table[i]!);
+          let fi = R * toIdx;
+          let i = fi | 0;
+          a0 += table[i]! + (fi - i) * (table[i + 1]! - table[i]!);
+          fi = G * toIdx;
+          i = fi | 0;
+          a1 += table[i]! + (fi - i) * (table[i + 1]! - table[i]!);
+          fi = B * toIdx;
+          i = fi | 0;
+          a2 += table[i]! + (fi - i) * (table[i + 1]! - table[i]!);
         }
         acc[o] = acc[o]! + a0;
         acc[o + 1] = acc[o + 1]! + a1;
@@ -484,13 +743,13 @@ function decodeScan(
         acc.fill(0);
       }
     }
+    this.clipped += clipped;
+    this.dark += dark;
   }
-  if (reader.overrun()) throw new JpegDataError('entropy-coded data ends early');
-  // the next marker must end the image (libjpeg, too, calls a file without it truncated)
-  let q = reader.pos;
-  while (q + 1 < data.length && !(data[q] === 0xff && data[q + 1] !== 0 && data[q + 1] !== 0xff && (data[q + 1]! < 0xd0 || data[q + 1]! > 0xd7))) q++;
-  if (q + 1 >= data.length || data[q + 1] !== 0xd9) throw new JpegDataError('no end-of-image marker after the scan');
-  return { lumaDcQuant: qt[c0.tq]![0]!, data: out, luminance: lum, width: w, height: h, clipped, dark, pixels: W * H, clipMask };
+
+  result(lumaDcQuant: number): FloatDecoded {
+    return { lumaDcQuant, data: this.out, luminance: this.lum, width: this.w, height: this.h, clipped: this.clipped, dark: this.dark, pixels: this.f.W * this.f.H, clipMask: this.clipMask };
+  }
 }
 
 /**

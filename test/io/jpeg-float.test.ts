@@ -47,6 +47,9 @@ describe('decoded samples against djpeg -dct float -nosmooth (libjpeg-turbo 2.1.
     ['sampling-444', '4:4:4', 2],
     ['gray', 'one component, restart every MCU row', 1],
     ['rgb', 'RGB components, no colour transform', 1],
+    ['progressive', 'progressive 4:2:0, spectral selection and successive approximation', 2],
+    ['progressive-gray', 'progressive, one component', 1],
+    ['progressive-444-restart', 'progressive 4:4:4, restart interval of 2 MCUs', 2],
   ] as const;
   for (const [name, what, tol] of cases) {
     it(`${name} (${what}): every sample within ${tol} code${tol > 1 ? 's' : ''}, nearly all equal`, () => {
@@ -150,13 +153,37 @@ describe('what the real-valued samples are for', () => {
 });
 
 describe('scope and damage', () => {
-  it('progressive and arithmetic-coded files are left to libvips (whole codes), and say so', async () => {
-    for (const name of ['progressive', 'arithmetic']) {
-      const buf = readFileSync(join(DIR, `${name}.jpg`));
-      expect(decodeJpegFloat(buf, LINEAR), name).toBeNull();
-    }
+  it('arithmetic-coded files are left to libvips (whole codes), and say so; progressive ones are decoded in float', async () => {
+    const buf = readFileSync(join(DIR, 'arithmetic.jpg'));
+    expect(decodeJpegFloat(buf, LINEAR)).toBeNull();
+    const a = await decodePhotoBuffer(buf, 'arithmetic.jpg');
+    expect(a.info.jpegSamples).toBe('8bit');
     const d = await decodePhotoBuffer(readFileSync(join(DIR, 'progressive.jpg')), 'progressive.jpg');
-    expect(d.info.jpegSamples).toBe('8bit');
+    expect(d.info.jpegSamples).toBe('float');
+  });
+
+  it('the same picture coded baseline and progressive (same tables) decodes to the same values', async () => {
+    const W = 256;
+    const H = 192;
+    const rnd = gauss(lcg(9));
+    const src = Buffer.alloc(W * H * 3);
+    for (let i = 0; i < src.length; i++) src[i] = Math.max(0, Math.min(255, Math.round(120 + (60 * (i % (W * 3))) / (W * 3) + 4 * rnd())));
+    const base = await rawImage(src, W, H, 3).jpeg({ quality: 92 }).toBuffer();
+    const prog = await rawImage(src, W, H, 3).jpeg({ quality: 92, progressive: true }).toBuffer();
+    const a = decodeJpegFloat(base, LINEAR)!;
+    const b = decodeJpegFloat(prog, LINEAR)!;
+    // progressive coding splits the same quantised coefficients over several scans (T.81, G.1): exact
+    expect(Array.from(b.data)).toEqual(Array.from(a.data));
+  });
+
+  it('a progressive file cut between scans or inside one is refused', () => {
+    const buf = readFileSync(join(DIR, 'progressive.jpg'));
+    // the start of the last scan: the last SOS marker
+    let sos = -1;
+    for (let i = 0; i < buf.length - 1; i++) if (buf[i] === 0xff && buf[i + 1] === 0xda) sos = i;
+    expect(sos).toBeGreaterThan(0);
+    expect(() => decodeJpegFloat(buf.subarray(0, sos), LINEAR)).toThrow(JpegDataError);
+    expect(() => decodeJpegFloat(buf.subarray(0, Math.floor(buf.length * 0.6)), LINEAR)).toThrow(JpegDataError);
   });
 
   it('data cut short, a missing end-of-image marker and a missing restart marker are refused', () => {
