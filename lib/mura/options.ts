@@ -69,10 +69,11 @@ export interface MuraOptions {
    *  block wide. A finding must reach across two blocks along its longer dimension to be told from
    *  that. */
   jpegBlockMm: number | null;
-  /** contrast (%) of one code value of the 8-bit photo at the panel's level, or null (default; linear
-   *  or 16-bit input). Without noise enough to dither it, 8-bit coding turns a smooth field into
-   *  plateaus one code apart, and the background model leaves their edges as contrast of up to that
-   *  step. A finding must exceed codeStepFactor x this step when it is under 25 mm across (its longer
+  /** contrast (%) of the smallest level step of the 8-bit photo as decoded at the panel's level (one code
+   *  value; for a JPEG decoded in float, its DC quantiser over 8 of one: see CodeLevel.stepCodes), or null
+   *  (default; linear or 16-bit input). Without noise enough to dither it, 8-bit coding turns a smooth
+   *  field into plateaus one step apart, and the background model leaves their edges as contrast of up to
+   *  that step. A finding must exceed codeStepFactor x this step when it is under 25 mm across (its longer
    *  dimension), half that up to 100 mm; larger ones span many plateaus, whose errors average out. */
   codeStepPct: number | null;
   /** multiple of codeStepPct a small finding must exceed (default 1; a rule of practice) */

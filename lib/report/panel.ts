@@ -933,6 +933,11 @@ function photoMethodPairs(p: PreparedPhoto): Array<[string, string | Cell]> {
     'Decoding',
     d
       ? `${d.format.toUpperCase()}, ${d.width} \u00d7 ${d.height} px, ${d.bitDepth}-bit, ${d.channels} channels; ` +
+        (d.jpegSamples === 'float'
+          ? `decoded without rounding samples to whole code values (level step ${trim(d.levelStepCodes ?? 1, 3)} code value); `
+          : d.jpegSamples === '8bit'
+            ? 'decoded to whole code values; '
+            : '') +
         `${d.transfer === 'srgb' ? 'sRGB transfer function undone to linear light' : 'linear data'}; ` +
         `${d.scale === 1 ? 'measured at full size' : `measured at 1/${trim(d.scale, 2)} size (area average)`}`
       : 'not decoded',
