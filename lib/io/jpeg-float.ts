@@ -648,6 +648,94 @@ class Emitter {
   }
 
   emitMcuRow(my: number): void {
+    const f0 = this.f;
+    if (this.ycc && this.opts.scale === 2 && f0.comps.length === 3 && f0.hmax === 2 && f0.vmax === 2 && f0.comps[0]!.h === 2 && f0.comps[0]!.v === 2 && f0.comps[1]!.h === 1 && f0.comps[1]!.v === 1 && f0.comps[2]!.h === 1 && f0.comps[2]!.v === 1) {
+      this.emit420Half(my);
+      return;
+    }
+    this.emitAny(my);
+  }
+
+  /**
+   * The usual case, 4:2:0 at half size: each output pixel is one 2×2 block of luma under one chroma
+   * sample. The same sums as emitAny (up to the order of the additions), with the chroma terms formed
+   * once per block.
+   */
+  private emit420Half(my: number): void {
+    const { f, opts, out, lum, clipMask, w } = this;
+    const W = f.W;
+    const H = f.H;
+    const table = linearTable(opts.transfer);
+    const [wr, wg, wb] = opts.weights;
+    const clipAt = opts.clipCode - 0.5;
+    const darkBelow = opts.darkCode - 0.5;
+    const clipLinear = opts.clipLinear ?? Infinity;
+    const Yd = f.comps[0]!.rows;
+    const ys = f.comps[0]!.stride;
+    const Cb = f.comps[1]!.rows;
+    const Cr = f.comps[2]!.rows;
+    const cs = f.comps[1]!.stride;
+    let clipped = 0;
+    let dark = 0;
+    const y0 = my * f.mcuH;
+    const y1 = Math.min(H, y0 + f.mcuH);
+    for (let y = y0; y < y1; y += 2) {
+      const ly = y - y0;
+      const rows = y + 1 < H ? 2 : 1;
+      const oy = y >> 1;
+      const cRow = (ly >> 1) * cs;
+      for (let ox = 0; ox < w; ox++) {
+        const x = 2 * ox;
+        const cols = x + 1 < W ? 2 : 1;
+        const cb = Cb[cRow + ox]! - 128;
+        const cr = Cr[cRow + ox]! - 128;
+        const dR = 1.402 * cr;
+        const dG = -0.344136 * cb - 0.714136 * cr;
+        const dB = 1.772 * cb;
+        let a0 = 0;
+        let a1 = 0;
+        let a2 = 0;
+        for (let r = 0; r < rows; r++) {
+          const base = (ly + r) * ys + x;
+          for (let c = 0; c < cols; c++) {
+            const yv = Yd[base + c]!;
+            let R = yv + dR;
+            let G = yv + dG;
+            let B = yv + dB;
+            R = R < 0 ? 0 : R > 255 ? 255 : R;
+            G = G < 0 ? 0 : G > 255 ? 255 : G;
+            B = B < 0 ? 0 : B > 255 ? 255 : B;
+            const mxc = R > G ? (R > B ? R : B) : G > B ? G : B;
+            if (mxc >= clipAt) clipped++;
+            if (mxc < darkBelow) dark++;
+            let fi = R * STEPS;
+            let i = fi | 0;
+            a0 += table[i]! + (fi - i) * (table[i + 1]! - table[i]!);
+            fi = G * STEPS;
+            i = fi | 0;
+            a1 += table[i]! + (fi - i) * (table[i + 1]! - table[i]!);
+            fi = B * STEPS;
+            i = fi | 0;
+            a2 += table[i]! + (fi - i) * (table[i + 1]! - table[i]!);
+          }
+        }
+        const inv = 1 / (rows * cols);
+        const rr = Math.fround(a0 * inv);
+        const gg = Math.fround(a1 * inv);
+        const bb = Math.fround(a2 * inv);
+        const k = (oy * w + ox) * 3;
+        out[k] = rr;
+        out[k + 1] = gg;
+        out[k + 2] = bb;
+        lum[oy * w + ox] = wr * rr + wg * gg + wb * bb;
+        if (clipMask !== null && (rr >= clipLinear || gg >= clipLinear || bb >= clipLinear)) clipMask[oy * w + ox] = 1;
+      }
+    }
+    this.clipped += clipped;
+    this.dark += dark;
+  }
+
+  private emitAny(my: number): void {
     const { f, opts, ycc, acc, out, lum, clipMask, w } = this;
     const W = f.W;
     const H = f.H;
