@@ -1,5 +1,9 @@
 // Decoding photos to linear light.
 //
+// - Huffman-coded JPEGs (baseline and progressive) are decoded by jpeg-float.ts without rounding samples
+//   to whole code values (DecodeOptions.jpegSamples); everything else, and any JPEG that decoder leaves
+//   or finds damaged, by sharp (libvips) as described below.
+//
 // - The file is read once; the same bytes are hashed (sha256) and decoded.
 // - Pixel count is checked from the header before any pixel is decoded (decompression-bomb limit),
 //   and sharp's own limitInputPixels is set to the same value.

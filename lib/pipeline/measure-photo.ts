@@ -327,7 +327,8 @@ async function measureInner(
     const border = Math.ceil(EDGE_TRANSITION_CAMERA_PX / Math.max(cameraPxPerMapPx, 1e-3) + ringMapPx) + 1;
     // JPEG codes each 8 x 8 block on its own: tell the analysis how large a block is on the panel
     const jpegBlockMm = isJpeg && camPerMap ? 8 / (camPerMap * map.pxPerMm) : null;
-    // 8-bit sRGB input: the contrast of one code value at the panel's level in the photo
+    // 8-bit sRGB input: the contrast of one level step (a code value, or the JPEG's DC step) at the
+    // panel's level in the photo
     const codeStepPct = codeStepAt(result, points);
     // ...and where the code values lie across the panel, for the step where each finding is
     const centreY = points.find((p) => p.u === 0.5 && p.v === 0.5)?.Y ?? points[0]?.Y;
