@@ -67,14 +67,15 @@ describe('coding limits', () => {
   });
 
   it('a JPEG decoded in float: the level step is a fraction of a code, the two-block rule still counts whole codes', () => {
-    // The spot of the test above (mean about 1.44 %) at a centre level of code 200 (1.12 % a code):
-    // dropped under whole-code decoding, kept when the level step is 0.375 of a code (a JPEG of quality
-    // 92 decoded in float: DC quantiser 3, ITU-T T.81 Annex K table scaled as libjpeg does).
+    // The spot of the test above (mean about 1.44 %) where one code value is 1.74 % of the level (linear
+    // 0.202, code 124): dropped under whole-code decoding, kept when the level step is 0.375 of a code (a
+    // JPEG of quality 92 decoded in float: DC quantiser 3, the ITU-T T.81 Annex K table scaled as libjpeg
+    // does for quality 92)
     const m = map(3, 2);
     const flat = { cols: 2, rows: 2, data: Float32Array.from([1, 1, 1, 1]) };
     const near = (r: ReturnType<typeof analyseMura>) => r.blobs.filter((b) => Math.hypot(b.xMm - 100, b.yMm - 70) < 5);
-    expect(near(analyseMura(m, { pattern: 'gray', codeStepPct: 1.6, codeLevel: { centreY: 0.578, gain: flat, stepCodes: 1.6 / 1.12 } }))).toHaveLength(0);
-    expect(near(analyseMura(m, { pattern: 'gray', codeStepPct: 0.42, codeLevel: { centreY: 0.578, gain: flat, stepCodes: 0.375 } }))).toHaveLength(1);
+    expect(near(analyseMura(m, { pattern: 'gray', codeStepPct: 1.74, codeLevel: { centreY: 0.202, gain: flat, stepCodes: 1 } }))).toHaveLength(0);
+    expect(near(analyseMura(m, { pattern: 'gray', codeStepPct: 0.375 * 1.74, codeLevel: { centreY: 0.202, gain: flat, stepCodes: 0.375 } }))).toHaveLength(1);
     // a spot no wider than two 2 mm blocks at 8 % peak (6 % as measured): kept where a code value is 1.12 %
     // of the level (code 200); where it is 3.1 % (linear 0.05, code 66) the spot is under three whole codes
     // and goes, however fine the level step (a quantised AC term draws such patterns over its block)
