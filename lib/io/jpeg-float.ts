@@ -20,6 +20,7 @@
 // no full-size sample buffer exists.
 
 import { srgbDecode } from '../photometry/index.js';
+import type { Reduced } from './decode.js';
 
 export class JpegDataError extends Error {}
 
@@ -174,18 +175,9 @@ export interface FloatDecodeOptions {
   weights: readonly [number, number, number];
 }
 
-export interface FloatDecoded {
-  /** the first component's DC quantiser: a block's mean level moves in steps of this over 8 codes */
-  lumaDcQuant: number;
-  data: Float32Array;
-  luminance: Float32Array;
-  width: number;
-  height: number;
-  clipped: number;
-  dark: number;
-  pixels: number;
-  clipMask: Uint8Array | null;
-}
+/** The reduced image as decode.ts's other paths make it, and the luma DC quantiser: a block's mean level
+ *  moves in steps of this over 8 codes. */
+export type FloatDecoded = Reduced & { lumaDcQuant: number };
 
 interface Comp {
   id: number;
@@ -220,6 +212,13 @@ function linearTable(transfer: 'srgb' | 'linear'): Float64Array {
     linearTables.set(transfer, t);
   }
   return t;
+}
+
+/** Linear light of a code value (0..255, real) from a linearTable, interpolated between its steps. */
+function lin(table: Float64Array, v: number): number {
+  const f = v * STEPS;
+  const i = f | 0;
+  return table[i]! + (f - i) * (table[i + 1]! - table[i]!);
 }
 
 /**
@@ -708,15 +707,9 @@ class Emitter {
             const mxc = R > G ? (R > B ? R : B) : G > B ? G : B;
             if (mxc >= clipAt) clipped++;
             if (mxc < darkBelow) dark++;
-            let fi = R * STEPS;
-            let i = fi | 0;
-            a0 += table[i]! + (fi - i) * (table[i + 1]! - table[i]!);
-            fi = G * STEPS;
-            i = fi | 0;
-            a1 += table[i]! + (fi - i) * (table[i + 1]! - table[i]!);
-            fi = B * STEPS;
-            i = fi | 0;
-            a2 += table[i]! + (fi - i) * (table[i + 1]! - table[i]!);
+            a0 += lin(table, R);
+            a1 += lin(table, G);
+            a2 += lin(table, B);
           }
         }
         const inv = 1 / (rows * cols);
@@ -741,7 +734,6 @@ class Emitter {
     const H = f.H;
     const s = opts.scale;
     const table = linearTable(opts.transfer);
-    const toIdx = STEPS;
     const [wr, wg, wb] = opts.weights;
     const clipAt = opts.clipCode - 0.5;
     const darkBelow = opts.darkCode - 0.5;
@@ -796,15 +788,9 @@ class Emitter {
           const mxc = R > G ? (R > B ? R : B) : G > B ? G : B;
           if (mxc >= clipAt) clipped++;
           if (mxc < darkBelow) dark++;
-          let fi = R * toIdx;
-          let i = fi | 0;
-          a0 += table[i]! + (fi - i) * (table[i + 1]! - table[i]!);
-          fi = G * toIdx;
-          i = fi | 0;
-          a1 += table[i]! + (fi - i) * (table[i + 1]! - table[i]!);
-          fi = B * toIdx;
-          i = fi | 0;
-          a2 += table[i]! + (fi - i) * (table[i + 1]! - table[i]!);
+          a0 += lin(table, R);
+          a1 += lin(table, G);
+          a2 += lin(table, B);
         }
         acc[o] = acc[o]! + a0;
         acc[o + 1] = acc[o + 1]! + a1;
