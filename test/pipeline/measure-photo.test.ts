@@ -51,6 +51,26 @@ describe('measurePhoto', () => {
     expect(m.artifacts?.relMap?.width).toBeGreaterThan(100);
   });
 
+  it('keeps the ringing of a JPEG at the bezel out of the mura analysis of a lit field (demo HX27-3101, a good panel)', async () => {
+    // The step from the dark bezel to the lit panel rings inside the 8 x 8 blocks that hold it (JPEG codes
+    // each block on its own, ITU-T T.81): a bright rim of about 2 % a millimetre or two inside the edge.
+    // The generator planted nothing on this panel (fixtures/demo/truth/planted.md); with the edge border
+    // one block wider on JPEG input nothing is found within 2 % of an edge (without it: a 12 mm "line" of
+    // SEMU 1.0 along the bottom edge).
+    const m = await measurePhoto(join(__dirname, '..', '..', 'fixtures', 'demo', 'HX27-3101_white.jpg'), {
+      ...DEFAULT_MEASURE_OPTIONS,
+      pattern: 'white',
+      patternLevel: null,
+      panelSizeMm: { width: 597.9, height: 336.3 },
+      grid: { layout: 9, placement: 'cells', insetFraction: 0.1, spotRadiusPct: 2 },
+      artifacts: false,
+    });
+    expect(m.result.status).toBe('ok');
+    expect(m.result.decode?.jpegSamples).toBe('float');
+    const nearEdge = m.result.blobs!.filter((b) => Math.min(b.u, 1 - b.u, b.v, 1 - b.v) < 0.02);
+    expect(nearEdge).toEqual([]);
+  });
+
   it('keeps the thumbnail of a photo it refuses, so the report can show why', async () => {
     const { file } = await photo(8, 'jpeg');
     const m = await measurePhoto(file, {
