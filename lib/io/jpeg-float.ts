@@ -661,14 +661,12 @@ class Emitter {
    * once per block.
    */
   private emit420Half(my: number): void {
-    const { f, opts, out, lum, clipMask, w } = this;
+    const { f, opts, w } = this;
     const W = f.W;
     const H = f.H;
     const table = linearTable(opts.transfer);
-    const [wr, wg, wb] = opts.weights;
     const clipAt = opts.clipCode - 0.5;
     const darkBelow = opts.darkCode - 0.5;
-    const clipLinear = opts.clipLinear ?? Infinity;
     const Yd = f.comps[0]!.rows;
     const ys = f.comps[0]!.stride;
     const Cb = f.comps[1]!.rows;
@@ -712,16 +710,7 @@ class Emitter {
             a2 += lin(table, B);
           }
         }
-        const inv = 1 / (rows * cols);
-        const rr = Math.fround(a0 * inv);
-        const gg = Math.fround(a1 * inv);
-        const bb = Math.fround(a2 * inv);
-        const k = (oy * w + ox) * 3;
-        out[k] = rr;
-        out[k + 1] = gg;
-        out[k + 2] = bb;
-        lum[oy * w + ox] = wr * rr + wg * gg + wb * bb;
-        if (clipMask !== null && (rr >= clipLinear || gg >= clipLinear || bb >= clipLinear)) clipMask[oy * w + ox] = 1;
+        this.put(oy * w + ox, a0, a1, a2, 1 / (rows * cols));
       }
     }
     this.clipped += clipped;
@@ -729,15 +718,13 @@ class Emitter {
   }
 
   private emitAny(my: number): void {
-    const { f, opts, ycc, acc, out, lum, clipMask, w } = this;
+    const { f, opts, ycc, acc, w } = this;
     const W = f.W;
     const H = f.H;
     const s = opts.scale;
     const table = linearTable(opts.transfer);
-    const [wr, wg, wb] = opts.weights;
     const clipAt = opts.clipCode - 0.5;
     const darkBelow = opts.darkCode - 0.5;
-    const clipLinear = opts.clipLinear ?? Infinity;
     const c0 = f.comps[0]!;
     const c1 = f.comps[1];
     const c2 = f.comps[2];
@@ -802,23 +789,28 @@ class Emitter {
         const base = oy * w;
         for (let ox = 0; ox < w; ox++) {
           const cols = Math.min(W, ox * s + s) - ox * s;
-          const inv = 1 / (rows * cols);
           const o = ox * 3;
-          const r = Math.fround(acc[o]! * inv);
-          const g = Math.fround(acc[o + 1]! * inv);
-          const b = Math.fround(acc[o + 2]! * inv);
-          const k = (base + ox) * 3;
-          out[k] = r;
-          out[k + 1] = g;
-          out[k + 2] = b;
-          lum[base + ox] = wr * r + wg * g + wb * b;
-          if (clipMask !== null && (r >= clipLinear || g >= clipLinear || b >= clipLinear)) clipMask[base + ox] = 1;
+          this.put(base + ox, acc[o]!, acc[o + 1]!, acc[o + 2]!, 1 / (rows * cols));
         }
         acc.fill(0);
       }
     }
     this.clipped += clipped;
     this.dark += dark;
+  }
+
+  /** Output pixel q: the means of its block's linear sums, its luminance and its clip-mask bit. */
+  private put(q: number, a0: number, a1: number, a2: number, inv: number): void {
+    const [wr, wg, wb] = this.opts.weights;
+    const r = Math.fround(a0 * inv);
+    const g = Math.fround(a1 * inv);
+    const b = Math.fround(a2 * inv);
+    this.out[3 * q] = r;
+    this.out[3 * q + 1] = g;
+    this.out[3 * q + 2] = b;
+    this.lum[q] = wr * r + wg * g + wb * b;
+    const cl = this.opts.clipLinear;
+    if (this.clipMask !== null && cl !== null && (r >= cl || g >= cl || b >= cl)) this.clipMask[q] = 1;
   }
 
   result(lumaDcQuant: number): FloatDecoded {

@@ -70,6 +70,8 @@ describe('glow on black fields', () => {
 });
 
 describe('what black fields report', () => {
+  // common practice: a black field is inspected for light that leaks (bleed, clouding); a region darker
+  // than its surround there is not a defect of the black
   it('reports a bright cloud (clouding) and not a dark one (less leakage)', () => {
     const r = run(
       [
