@@ -250,7 +250,11 @@ function featureMask(ctx: Ctx, opts: MuraOptions): Uint8Array {
   // A band or line across the panel touches two edges by nature and is masked like any feature.
   const spans = (f: Found): boolean =>
     (f.bbox[2] - f.bbox[0]) >= opts.bandMinSpan * w || (f.bbox[3] - f.bbox[1]) >= opts.bandMinSpan * h;
-  const atEdge = (f: Found): boolean => !ctx.black && f.touch.left + f.touch.right + f.touch.top + f.touch.bottom > 0 && !spans(f);
+  // (a band running along the panel's edge, touching it along its length, is the surface missing that edge)
+  const alongEdge = (f: Found): boolean =>
+    f.axis === 'vertical' ? f.touch.left + f.touch.right > 0 : f.axis === 'horizontal' ? f.touch.top + f.touch.bottom > 0 : false;
+  const atEdge = (f: Found): boolean =>
+    !ctx.black && (spans(f) ? alongEdge(f) : f.touch.left + f.touch.right + f.touch.top + f.touch.bottom > 0);
   const strong = ctx.found.filter((f) => semu(f.contrastPct, f.areaMm2, opts.semuConstants) >= 0.5 * opts.semuFloor && !atEdge(f));
   if (strong.length === 0) return mask;
   let valid = 0;

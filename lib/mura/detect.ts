@@ -63,12 +63,18 @@ interface Candidate {
   snr: number;
   /** the region's bounding box is taller than wide */
   vertical: boolean;
+  /** level px of the region covered by a sharper feature standing on this one (sorted): part of its
+   *  extent, left out of its mean contrast; null for none */
+  hidden: Int32Array | null;
 }
 
 /** most candidates kept per level and sign (the strongest): a guard against pathological maps */
 const MAX_CANDIDATES = 400;
 /** largest half-peak region flooded on a level that has a coarser one, level px */
 const MAX_REGION = 40000;
+/** a peak joined to a higher one above its half height is looked at as a feature under that one when it
+ *  stands this many detection thresholds above the saddle */
+const MERGED_PROMINENCE = 1.5;
 /** levels beyond this index are never skipped for size */
 const MAX_LEVEL_INDEX = 3;
 
@@ -391,6 +397,7 @@ function candidatesOn(lv: Level, sign: 1 | -1, thr: number, out: Candidate[]): v
   const stack: number[] = [];
   const comp: number[] = [];
   const peaks: number[] = [];
+  const merged: number[] = [];
   for (let i0 = 0; i0 < w * h; i0++) {
     if (seen[i0] || !(sign * s[i0] > thr)) continue;
     // connected component above threshold
@@ -409,12 +416,40 @@ function candidatesOn(lv: Level, sign: 1 | -1, thr: number, out: Candidate[]): v
     if (comp.length < 2) continue;
     // several peaks in one component (features touching above the threshold): each peak standing
     // clearly above its saddle gets its own half-peak region
-    peaks.push(...peaksOf(lv, comp, sign, thr));
+    peaksOf(lv, comp, sign, thr, peaks, merged);
   }
   peaks.sort((a, b) => sign * s[b] - sign * s[a]);
+  const mine: Candidate[] = [];
   for (const p of peaks.slice(0, MAX_CANDIDATES)) {
     const c = halfPeak(lv, p, sign, thr);
-    if (c) out.push(c);
+    if (!c) continue;
+    out.push(c);
+    mine.push(c);
+    // a feature on a plateau of its sign: the plateau is a feature too
+    if (c.pedestal !== 0) {
+      const under = plateauUnder(lv, c, sign, thr, null);
+      if (under) out.push(under);
+    }
+  }
+  // A broad peak joined to a higher, sharper one above half its own height (a cloud with a spot on its
+  // flank) has no half-peak region of its own that stops short of the spot, yet it is a feature: its
+  // half-peak region is flooded through the spot's surroundings.
+  for (const lo of merged) {
+    let near: Candidate | null = null;
+    let dBest = Infinity;
+    const lx = lo % lv.w;
+    const ly = (lo - lx) / lv.w;
+    for (const c of mine) {
+      if (!(sign * c.peak > sign * s[lo])) continue;
+      const d = Math.hypot((c.cx + 0.5) / lv.f - 0.5 - lx, (c.cy + 0.5) / lv.f - 0.5 - ly);
+      if (d < dBest) {
+        dBest = d;
+        near = c;
+      }
+    }
+    if (!near) continue;
+    const under = plateauUnder(lv, near, sign, thr, lo);
+    if (under) out.push(under);
   }
   function push(j: number): void {
     if (!seen[j] && sign * s[j] > thr) {
@@ -430,7 +465,7 @@ function candidatesOn(lv: Level, sign: 1 | -1, thr: number, out: Candidate[]): v
  * when the meeting level (the saddle) is at most half of its height, i.e. its half-peak region does not
  * reach the higher one. The highest peak is always kept.
  */
-function peaksOf(lv: Level, comp: number[], sign: 1 | -1, thr: number): number[] {
+function peaksOf(lv: Level, comp: number[], sign: 1 | -1, thr: number, keptOut: number[], mergedOut: number[]): void {
   const { w, s } = lv;
   const order = comp.slice().sort((a, b) => sign * s[b] - sign * s[a]);
   const parent = new Map<number, number>();
@@ -447,6 +482,7 @@ function peaksOf(lv: Level, comp: number[], sign: 1 | -1, thr: number): number[]
     return r;
   };
   const kept: number[] = [order[0]];
+  const merged: number[] = [];
   for (const i of order) {
     const v = sign * s[i];
     parent.set(i, i);
@@ -463,11 +499,15 @@ function peaksOf(lv: Level, comp: number[], sign: 1 | -1, thr: number): number[]
       const [hi, lo] = sign * s[pa] >= sign * s[pb] ? [pa, pb] : [pb, pa];
       const loV = sign * s[lo];
       if (lo !== i && v <= 0.5 * loV && loV >= 2 * thr && kept.length < 50) kept.push(lo);
+      // joined above its half height but standing out of the saddle by more than the noise could
+      // raise it (MERGED_PROMINENCE x the threshold): a feature of its own under a sharper one, maybe
+      else if (lo !== i && loV - v >= MERGED_PROMINENCE * thr && loV >= 2 * thr && merged.length < 50) merged.push(lo);
       parent.set(a, b);
       peakOf.set(b, hi);
     }
   }
-  return kept;
+  keptOut.push(...kept);
+  mergedOut.push(...merged);
 }
 
 /** Noise of the smoothed level at a pixel: its tile's figure, or the level's. */
@@ -512,7 +552,7 @@ function flood(lv: Level, start: number, sign: 1 | -1, level: number): { region:
 /** The half-peak region around a peak on a level, against the local surround. */
 function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number): Candidate | null {
   const { w, s } = lv;
-  const peak = s[peakIdx];
+  let peak = s[peakIdx];
   // First against the global background. A feature sitting on a plateau of the same sign (a spot on a
   // cloud) is measured against the plateau: the ring around the region is well above the background,
   // and so is a ring twice as far out (a feature's own tail, an exponential glow say, falls away
@@ -523,6 +563,16 @@ function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number): Candid
   let fl = flood(lv, peakIdx, sign, 0.5 * sign * peak);
   if (!fl) return null;
   const noise = noiseAt(lv, peakIdx);
+  // The largest pixel of a noisy level stands above the feature's true top by about
+  // noise x sqrt(2 ln n) for n pixels near the top (3.5 sigma for a few thousand), which raises the
+  // half-peak level and shrinks the region: a 3 % cloud on a level of 0.2 % noise came out with 40 % of
+  // its area. The top is taken from a quadratic surface fitted around the peak instead.
+  const top = fittedTop(lv, peakIdx, halfWidth(fl.region, w), sign);
+  if (top !== null && sign * top < sign * peak) {
+    peak = top;
+    fl = flood(lv, peakIdx, sign, 0.5 * sign * peak);
+    if (!fl) return null;
+  }
   if (sign * peak < (thr * noise) / lv.noiseS) return null;
   let pedestal = 0;
   const near = surround(lv, fl.region, fl.gen, 1.5, 2.5);
@@ -536,7 +586,21 @@ function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number): Candid
       fl = again;
     }
   }
-  const region = fl.region.sort();
+  return candidateOf(lv, sign, peak, peakIdx, pedestal, fl.region.sort(), noise, null);
+}
+
+/** A candidate from its half-peak region (sorted level px): centroid, extents, margin over the noise. */
+function candidateOf(
+  lv: Level,
+  sign: 1 | -1,
+  peak: number,
+  peakIdx: number,
+  pedestal: number,
+  region: Int32Array,
+  noise: number,
+  hidden: Int32Array | null,
+): Candidate {
+  const { w } = lv;
   let sx = 0;
   let sy = 0;
   let sxx = 0;
@@ -583,7 +647,213 @@ function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number): Candid
     major,
     snr: (sign * (peak - pedestal)) / Math.max(noise, 1e-9),
     vertical: by1 - by0 > bx1 - bx0,
+    hidden,
   };
+}
+
+/**
+ * The plateau under a feature that stands on one (halfPeak found a pedestal): the sharper feature's
+ * surroundings - a disc of 2.5 x its half-peak radius, where a Gaussian is down to 1.3 % of its top -
+ * are taken as the plateau's own, the plateau's top is the highest pixel outside that disc, and its
+ * half-peak region is flooded from there through the disc. Null when the plateau does not stand out of
+ * the noise on its own or its top is not the top of its region.
+ */
+function plateauUnder(lv: Level, c: Candidate, sign: 1 | -1, thr: number, start: number | null): Candidate | null {
+  const { w, h, s, stamp } = lv;
+  const f = lv.f;
+  const ccx = (c.cx + 0.5) / f - 0.5;
+  const ccy = (c.cy + 0.5) / f - 0.5;
+  const rr = 2.5 * Math.max(1, Math.sqrt(c.region.length / Math.PI));
+  const inDisc = (i: number): boolean => {
+    const x = i % w;
+    const y = (i - x) / w;
+    return (x - ccx) * (x - ccx) + (y - ccy) * (y - ccy) <= rr * rr;
+  };
+  let gen = 0;
+  if (start !== null && inDisc(start)) return null;
+  const best = start ?? highestAround();
+  if (best < 0) return null;
+  const noise = noiseAt(lv, best);
+  let top = s[best];
+  if (sign * top < 2 * thr) return null;
+  // flood at half the top, the disc passable (its pixels neither stop the flood nor count as higher)
+  const flood2 = (level: number): Int32Array | null => {
+    gen = ++lv.gen;
+    const out: number[] = [best];
+    stamp[best] = gen;
+    const peakV = sign * s[best];
+    for (let k = 0; k < out.length; k++) {
+      if (out.length > MAX_REGION && lv.l < MAX_LEVEL_INDEX) return null;
+      const i = out[k];
+      const x = i % w;
+      const nb = [x > 0 ? i - 1 : -1, x < w - 1 ? i + 1 : -1, i >= w ? i - w : -1, i < w * h - w ? i + w : -1];
+      for (const j of nb) {
+        if (j < 0 || stamp[j] === gen) continue;
+        const v = sign * s[j];
+        const disc = inDisc(j);
+        if (!disc && !(v >= level)) continue;
+        if (disc && !Number.isFinite(v)) continue;
+        if (!disc && v > peakV) return null;
+        stamp[j] = gen;
+        out.push(j);
+      }
+    }
+    return Int32Array.from(out).sort();
+  };
+  let region = flood2(0.5 * sign * top);
+  if (!region) return null;
+  const fitted = fittedTop(lv, best, halfWidth(region, w), sign, inDisc);
+  if (fitted !== null && sign * fitted < sign * top) {
+    top = fitted;
+    region = flood2(0.5 * sign * top);
+    if (!region) return null;
+  }
+  // the region must reach well past the disc: otherwise it is the sharper feature's own shoulder
+  const hidden = region.filter(inDisc);
+  if (region.length < 2 * hidden.length) return null;
+  return candidateOf(lv, sign, top, best, 0, region, noise, hidden.length ? hidden : null);
+
+  /** the highest pixel outside the disc among those joined to the feature above the detection
+   *  threshold (the disc passable); -1 for none */
+  function highestAround(): number {
+    gen = ++lv.gen;
+    const comp: number[] = [c.peakIdx];
+    stamp[c.peakIdx] = gen;
+    let hi = -1;
+    for (let k = 0; k < comp.length; k++) {
+      if (comp.length > MAX_REGION && lv.l < MAX_LEVEL_INDEX) return -1;
+      const i = comp[k];
+      if (!inDisc(i) && (hi < 0 || sign * s[i] > sign * s[hi])) hi = i;
+      const x = i % w;
+      const nb = [x > 0 ? i - 1 : -1, x < w - 1 ? i + 1 : -1, i >= w ? i - w : -1, i < w * h - w ? i + w : -1];
+      for (const j of nb) {
+        if (j < 0 || stamp[j] === gen) continue;
+        const v = sign * s[j];
+        if (!(v >= thr) && !(Number.isFinite(v) && inDisc(j))) continue;
+        stamp[j] = gen;
+        comp.push(j);
+      }
+    }
+    return hi;
+  }
+}
+
+
+/**
+ * The top of a feature from a least-squares quadratic surface z = a + bx + cy + dx² + exy + fy² over the
+ * level pixels within 0.4 x its half-peak half-width (radius, for a round one) of the largest pixel (a Gaussian falls 7 % there, well
+ * within a quadratic's reach): the surface's largest value within that disc. Null when the disc holds
+ * fewer than 12 pixels with data (a small feature: its largest pixel stands for it).
+ */
+function fittedTop(lv: Level, peakIdx: number, halfRadius: number, sign: 1 | -1, skip: ((i: number) => boolean) | null = null): number | null {
+  const { w, h, s } = lv;
+  const r = Math.max(1.5, 0.4 * halfRadius);
+  const px = peakIdx % w;
+  const py = (peakIdx - px) / w;
+  const ri = Math.ceil(r);
+  // normal equations of the six terms, in coordinates scaled by r
+  const A = new Float64Array(36);
+  const b = new Float64Array(6);
+  const t = new Float64Array(6);
+  let n = 0;
+  for (let y = Math.max(0, py - ri); y <= Math.min(h - 1, py + ri); y++) {
+    for (let x = Math.max(0, px - ri); x <= Math.min(w - 1, px + ri); x++) {
+      const dx = (x - px) / r;
+      const dy = (y - py) / r;
+      if (dx * dx + dy * dy > 1) continue;
+      const v = s[y * w + x];
+      if (!Number.isFinite(v) || (skip && skip(y * w + x))) continue;
+      t[0] = 1;
+      t[1] = dx;
+      t[2] = dy;
+      t[3] = dx * dx;
+      t[4] = dx * dy;
+      t[5] = dy * dy;
+      for (let i = 0; i < 6; i++) {
+        b[i] += t[i] * v;
+        for (let j = 0; j < 6; j++) A[i * 6 + j] += t[i] * t[j];
+      }
+      n++;
+    }
+  }
+  if (n < 12) return null;
+  const c = solve6(A, b);
+  if (!c) return null;
+  const f = (dx: number, dy: number): number => c[0] + c[1] * dx + c[2] * dy + c[3] * dx * dx + c[4] * dx * dy + c[5] * dy * dy;
+  // the stationary point when the surface is a cap (of the feature's sign) and it lies in the disc;
+  // otherwise the largest value on a ring of the disc's edge or at its centre
+  let best = sign * f(0, 0);
+  const det = 4 * c[3] * c[5] - c[4] * c[4];
+  if (det > 0 && sign * c[3] < 0) {
+    const sx = (c[4] * c[2] - 2 * c[5] * c[1]) / det;
+    const sy = (c[4] * c[1] - 2 * c[3] * c[2]) / det;
+    if (sx * sx + sy * sy <= 1) best = Math.max(best, sign * f(sx, sy));
+  }
+  for (let k = 0; k < 16; k++) {
+    const a = (k * Math.PI) / 8;
+    best = Math.max(best, sign * f(Math.cos(a), Math.sin(a)));
+  }
+  return sign * best;
+}
+
+/**
+ * Half the narrow extent of a region (level px): its radius for a round one, about 0.6 x the width of a
+ * straight one (from the smaller second moment, as candidateOf's minor extent).
+ */
+function halfWidth(region: Int32Array, w: number): number {
+  let sx = 0;
+  let sy = 0;
+  let sxx = 0;
+  let syy = 0;
+  let sxy = 0;
+  for (const i of region) {
+    const x = i % w;
+    const y = (i - x) / w;
+    sx += x;
+    sy += y;
+    sxx += x * x;
+    syy += y * y;
+    sxy += x * y;
+  }
+  const n = region.length;
+  const vxx = sxx / n - (sx / n) ** 2 + 1 / 12;
+  const vyy = syy / n - (sy / n) ** 2 + 1 / 12;
+  const vxy = sxy / n - (sx / n) * (sy / n);
+  const tr = vxx + vyy;
+  const disc = Math.sqrt(Math.max(0, (tr * tr) / 4 - (vxx * vyy - vxy * vxy)));
+  return 2 * Math.sqrt(Math.max(tr / 2 - disc, 1 / 12));
+}
+
+/** Gaussian elimination with partial pivoting of a 6 x 6 system (row-major); null when singular. */
+function solve6(A: Float64Array, b: Float64Array): Float64Array | null {
+  const m = Float64Array.from(A);
+  const x = Float64Array.from(b);
+  for (let col = 0; col < 6; col++) {
+    let piv = col;
+    for (let r = col + 1; r < 6; r++) if (Math.abs(m[r * 6 + col]) > Math.abs(m[piv * 6 + col])) piv = r;
+    if (Math.abs(m[piv * 6 + col]) < 1e-12) return null;
+    if (piv !== col) {
+      for (let j = 0; j < 6; j++) {
+        const tmp = m[col * 6 + j];
+        m[col * 6 + j] = m[piv * 6 + j];
+        m[piv * 6 + j] = tmp;
+      }
+      const tb = x[col];
+      x[col] = x[piv];
+      x[piv] = tb;
+    }
+    for (let r = col + 1; r < 6; r++) {
+      const k = m[r * 6 + col] / m[col * 6 + col];
+      for (let j = col; j < 6; j++) m[r * 6 + j] -= k * m[col * 6 + j];
+      x[r] -= k * x[col];
+    }
+  }
+  for (let r = 5; r >= 0; r--) {
+    let acc = x[r];
+    for (let j = r + 1; j < 6; j++) acc -= m[r * 6 + j] * x[j];
+    x[r] = acc / m[r * 6 + r];
+  }
+  return x;
 }
 
 /**
@@ -667,7 +937,8 @@ function contains(c: Candidate, [wx, wy]: [number, number]): boolean {
       const x = lx + dx;
       const y = ly + dy;
       if (x < 0 || y < 0 || x >= w || y >= h) continue;
-      if (sortedHas(c.region, y * w + x)) return true;
+      // not in the part another feature stands on (a spot on the flank of a cloud is not the cloud)
+      if (sortedHas(c.region, y * w + x) && !(c.hidden && sortedHas(c.hidden, y * w + x))) return true;
     }
   }
   return false;
@@ -709,14 +980,27 @@ function toFound(ctx: Ctx, c: Candidate): Found | null {
   const f = lv.f;
   const { w: W, h: H } = ctx;
   const px: number[] = [];
+  // the hidden part (a sharper feature on this one) counts towards the extent, not the mean contrast
+  let all = 0;
+  let shown = 0;
   for (const i of c.region) {
+    const isHidden = c.hidden !== null && sortedHas(c.hidden, i);
     const lx = i % lv.w;
     const ly = (i - lx) / lv.w;
     const x0 = lx * f;
     const y0 = ly * f;
     const x1 = Math.min(W, x0 + f);
     const y1 = Math.min(H, y0 + f);
-    for (let y = y0; y < y1; y++) for (let x = x0; x < x1; x++) if (ctx.wt[y * W + x] > 0) px.push(y * W + x);
+    for (let y = y0; y < y1; y++) {
+      for (let x = x0; x < x1; x++) {
+        const q = ctx.wt[y * W + x];
+        if (!(q > 0)) continue;
+        all += q;
+        if (isHidden) continue;
+        shown += q;
+        px.push(y * W + x);
+      }
+    }
   }
   if (px.length === 0) return null;
   const pixels = Int32Array.from(px);
@@ -725,6 +1009,7 @@ function toFound(ctx: Ctx, c: Candidate): Found | null {
   const axis: Axis | null = null;
   const found = measureRegion(ctx, pixels, c.pedestal, c.peak, [(pkx + 0.5) * f - 0.5, (pky + 0.5) * f - 0.5], c.sign, 'blob', axis);
   if (!found) return null;
+  if (shown < all) found.areaMm2 *= all / shown;
   // take the level's blur out of the extent (quadrature, per axis, as for a Gaussian profile)
   const a2 = c.major * c.major;
   const b2 = c.minor * c.minor;
@@ -856,6 +1141,8 @@ function findBands(ctx: Ctx, lv: Level, floor: number): BandProfile[] {
     const noise = quantileOf(Float32Array.from(diffs), 0.75) / 1.15 / gain;
     const thr = Math.max(o.thresholdSigma * noise, floor, 1e-9);
     const taken = new Uint8Array(across);
+    // columns (rows) of the bands found so far with a margin of half their width: not a new band's surround
+    const blocked = new Uint8Array(across);
     for (const sign of [1, -1] as const) {
       // local extrema beyond the threshold, strongest first
       const peaks: number[] = [];
@@ -868,25 +1155,39 @@ function findBands(ctx: Ctx, lv: Level, floor: number): BandProfile[] {
       peaks.sort((p, q) => sign * S[q] - sign * S[p]);
       for (const pk of peaks.slice(0, 10)) {
         if (taken[pk]) continue;
-        const half = 0.5 * sign * S[pk];
+        let half = 0.5 * sign * S[pk];
         let c0 = pk;
         let c1 = pk;
-        while (c0 > 0 && sign * S[c0 - 1] >= half) c0--;
-        while (c1 < across - 1 && sign * S[c1 + 1] >= half) c1++;
+        const extent = (level: number): void => {
+          c0 = pk;
+          c1 = pk;
+          while (c0 > 0 && sign * S[c0 - 1] >= level) c0--;
+          while (c1 < across - 1 && sign * S[c1 + 1] >= level) c1++;
+        };
+        extent(half);
         if (c0 === 0 && c1 === across - 1) continue; // the whole panel: not a band
         let clash = false;
         for (let c = c0; c <= c1; c++) if (taken[c]) clash = true;
         if (clash) continue;
         // there along the panel, evenly: in four of five stretches along it the band's mean is between
         // 0.4 and 2.5 times the median of the five (a cloud that pulls the medians of the rows through
-        // it is strong in one or two stretches and faint in the rest)
-        const means: number[] = [];
-        for (let part = 0; part < 5; part++) {
-          const a0 = Math.floor((part * along) / 5);
-          const a1 = Math.floor(((part + 1) * along) / 5);
+        // it is strong in one or two stretches and faint in the rest). Each stretch is taken against a
+        // strip beside the band (half its width away, as wide as it), so that a broad feature the band
+        // crosses - a cloud's flank - does not hide it there.
+        let sideA: [number, number] = [0, -1];
+        let sideB: [number, number] = [0, -1];
+        const sides = (): void => {
+          const wd = c1 - c0 + 1;
+          const gap = Math.ceil(wd / 2);
+          sideA = [Math.max(0, c0 - gap - wd), c0 - gap - 1];
+          sideB = [c1 + gap + 1, Math.min(across - 1, c1 + gap + wd)];
+        };
+        sides();
+        const stretchMean = (a0: number, a1: number, from: number, to: number, surround = false): number | null => {
           let sum = 0;
           let cnt = 0;
-          for (let c = c0; c <= c1; c++) {
+          for (let c = from; c <= to; c++) {
+            if (surround && blocked[c]) continue;
             for (let a = a0; a < a1; a++) {
               const i = at(a, c);
               if (lv.n[i] > 0) {
@@ -895,33 +1196,105 @@ function findBands(ctx: Ctx, lv: Level, floor: number): BandProfile[] {
               }
             }
           }
-          means.push(cnt > 0 ? (sign * sum) / cnt : 0);
+          return cnt > 0 ? sum / cnt : null;
+        };
+        // 'mean': the mean of the two strips (a straight flank cancels); 'near': the strip nearer the
+        // band's own level (see profileBeside)
+        const beside = (a0: number, a1: number, mode: 'mean' | 'near'): number => {
+          const va = sideA[1] >= sideA[0] ? stretchMean(a0, a1, sideA[0], sideA[1], true) : null;
+          const vb = sideB[1] >= sideB[0] ? stretchMean(a0, a1, sideB[0], sideB[1], true) : null;
+          if (va === null || vb === null) return va ?? vb ?? 0;
+          if (mode === 'mean') return 0.5 * (va + vb);
+          const [pa, pb] = profileSides();
+          return pa !== null && pb !== null && sign * pb > sign * pa ? vb : va;
+        };
+        // The level beside the band over its whole length: the band's pedestal. A band crossing a broad
+        // feature (a cloud's flank) is measured against it, as the eye sees it, and its half-peak extent
+        // is taken halfway between the pedestal and its peak.
+        let pedestal = 0;
+        for (let iter = 0; iter < 2; iter++) {
+          const p = profileBeside();
+          if (!(Math.abs(p) > 0.25 * Math.abs(S[pk]))) break;
+          pedestal = p;
+          half = sign * (pedestal + 0.5 * (S[pk] - pedestal));
+          extent(half);
+          sides();
+        }
+        if (sign * (S[pk] - pedestal) < thr) continue;
+        if (c0 === 0 && c1 === across - 1) continue;
+        /** the row-median profile over the strips beside the band: the one nearer the band's own level
+         *  (a band on a broad feature's flank has that feature's rise on one side only) */
+        function profileBeside(average = false): number {
+          const m = profileSides().filter((v): v is number => v !== null);
+          if (!m.length) return 0;
+          return average ? m.reduce((x, y) => x + y, 0) / m.length : sign * Math.max(...m.map((v) => sign * v));
+        }
+        /** the row-median profile's mean over each strip beside the band (null: off the panel) */
+        function profileSides(): [number | null, number | null] {
+          const out: (number | null)[] = [];
+          for (const [a, b] of [sideA, sideB]) {
+            let sum = 0;
+            let cnt = 0;
+            for (let c = a; c <= b; c++) {
+              if (Number.isFinite(S[c]) && !blocked[c]) {
+                sum += S[c];
+                cnt++;
+              }
+            }
+            out.push(cnt > 0 ? sum / cnt : null);
+          }
+          return [out[0], out[1]];
+        }
+        const means: number[] = [];
+        for (let part = 0; part < 5; part++) {
+          const a0 = Math.floor((part * along) / 5);
+          const a1 = Math.floor(((part + 1) * along) / 5);
+          const m = stretchMean(a0, a1, c0, c1);
+          means.push(m !== null ? sign * (m - beside(a0, a1, 'mean')) : 0);
         }
         const typical = [...means].sort((p, q) => p - q)[2];
-        if (!(typical >= half * (2 / 3))) continue;
+        if (!(typical >= 0.5 * sign * (S[pk] - pedestal) * (2 / 3))) continue;
         const even = means.filter((v) => v >= 0.4 * typical && v <= 2.5 * typical).length;
         if (even < 4) continue;
         // and smooth along it: the band's mean at each position along it scatters (robustly) by less
         // than half of its level - a row of separate zones (hot spots) alternates between them and the gaps
         const alongMeans: number[] = [];
+        const alongNear: number[] = [];
         for (let a = 0; a < along; a++) {
-          let sum = 0;
-          let cnt = 0;
-          for (let c = c0; c <= c1; c++) {
-            const i = at(a, c);
-            if (lv.n[i] > 0) {
-              sum += lv.m[i];
-              cnt++;
-            }
-          }
-          if (cnt > 0) alongMeans.push((sign * sum) / cnt);
+          const m = stretchMean(a, a + 1, c0, c1);
+          if (m === null) continue;
+          alongMeans.push(sign * (m - beside(a, a + 1, 'mean')));
+          alongNear.push(sign * (m - beside(a, a + 1, 'near')));
         }
         if (!(robustSigma(alongMeans) < 0.5 * typical)) continue;
+        // on a pedestal, or between strips that differ from the background, the band's mean contrast is
+        // the median along it of its mean less the mean of the strips beside it (a broad feature under
+        // part of its length moves both alike), provided it also stands out of the strip nearer its own
+        // level (another band beside it is not its pedestal)
+        const around = profileBeside(true);
+        let local: number;
+        if (pedestal !== 0 || Math.abs(around) > 0.25 * Math.abs(S[pk])) {
+          // it must stand out of the nearer strip too (a dip between a band and the background is no band)
+          const near = medianOfFirst(Float64Array.from(alongNear), alongNear.length);
+          if (!(near >= 0.5 * Math.max(floor, thr))) continue;
+          local = sign * medianOfFirst(Float64Array.from(alongMeans), alongMeans.length);
+        } else {
+          // against the background: the median along it of its mean across (a feature crossing it -
+          // another band, a cloud - covers a part of its length and moves the plain mean)
+          const plain: number[] = [];
+          for (let a = 0; a < along; a++) {
+            const m = stretchMean(a, a + 1, c0, c1);
+            if (m !== null) plain.push(m);
+          }
+          local = medianOfFirst(Float64Array.from(plain), plain.length);
+        }
         for (let c = c0; c <= c1; c++) taken[c] = 1;
-        const f = bandFound(ctx, lv, axis, c0, c1, sign, S[pk]);
+        const f = bandFound(ctx, lv, axis, c0, c1, sign, S[pk], pedestal, local);
         if (f && Math.abs(f.contrastPct) >= floor && f.zNoise >= o.thresholdSigma && !isDuplicate(ctx, f)) {
           register(ctx, f);
           bands.push({ axis, c0, c1, f: lv.f, S: S.slice() });
+          const margin = Math.ceil((c1 - c0 + 1) / 2);
+          for (let c = Math.max(0, c0 - margin); c <= Math.min(across - 1, c1 + margin); c++) blocked[c] = 1;
         }
       }
     }
@@ -935,7 +1308,17 @@ function medianOfFirst(a: Float64Array, k: number): number {
 }
 
 /** The band between profile positions c0..c1 (level px) across the panel, measured at working resolution. */
-function bandFound(ctx: Ctx, lv: Level, axis: Axis, c0: number, c1: number, sign: 1 | -1, peak: number): Found | null {
+function bandFound(
+  ctx: Ctx,
+  lv: Level,
+  axis: Axis,
+  c0: number,
+  c1: number,
+  sign: 1 | -1,
+  peak: number,
+  pedestal: number,
+  localContrast: number,
+): Found | null {
   const { w: W, h: H } = ctx;
   const f = lv.f;
   const px: number[] = [];
@@ -948,8 +1331,14 @@ function bandFound(ctx: Ctx, lv: Level, axis: Axis, c0: number, c1: number, sign
   }
   if (px.length === 0) return null;
   const mid = ((c0 + c1 + 1) / 2) * f - 0.5;
-  const found = measureRegion(ctx, Int32Array.from(px), 0, peak, axis === 'horizontal' ? [W / 2, mid] : [mid, H / 2], sign, 'profile', axis);
+  const found = measureRegion(ctx, Int32Array.from(px), pedestal, peak, axis === 'horizontal' ? [W / 2, mid] : [mid, H / 2], sign, 'profile', axis);
   if (!found) return null;
+  // the mean contrast from the profile along the band (see findBands), not the plain mean over its pixels
+  const c = localContrast / (1 + pedestal / 100);
+  const k = Math.abs(c) / Math.max(Math.abs(found.contrastPct), 1e-9);
+  found.contrastPct = c;
+  found.zNoise *= k;
+  found.zFit *= k;
   // the profile's blur (box of one level px and the 1-px kernel) out of the width, in quadrature
   const wpx = c1 - c0 + 1;
   const cb = Math.sqrt(Math.max(wpx * wpx - BLUR_FWHM2, 0.25 * wpx * wpx)) / wpx;

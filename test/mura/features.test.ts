@@ -58,6 +58,51 @@ describe('round features', () => {
   });
 });
 
+describe('features on features', () => {
+  it('finds a cloud whose flank carries a sharper spot, and measures the cloud without the spot', () => {
+    // The spot stands one cloud sigma from the cloud's top, where the cloud is at exp(-1/2) = 61 % of its
+    // peak: the two share one region above half the cloud's height and the spot is its highest point.
+    const cloud = { sigma: 25, peak: 6, x: 150, y: 90 };
+    const spot = { sigma: 4, peak: 12, x: 170, y: 105 };
+    const map = synthMap({
+      widthMm: 300,
+      heightMm: 180,
+      pxPerMm: 2,
+      noisePct: 0.5,
+      seed: 21,
+      smooth: SMOOTH,
+      features: [
+        { kind: 'gauss', xMm: cloud.x, yMm: cloud.y, sigmaMm: cloud.sigma, contrastPct: cloud.peak },
+        { kind: 'gauss', xMm: spot.x, yMm: spot.y, sigmaMm: spot.sigma, contrastPct: spot.peak },
+      ],
+    });
+    const r = analyseMura(map, { pattern: 'gray' });
+    const clouds = r.blobs.filter((b) => b.kind === 'cloud');
+    const spots = r.blobs.filter((b) => b.kind === 'spot');
+    expect(clouds).toHaveLength(1);
+    expect(spots).toHaveLength(1);
+    const c = clouds[0];
+    const tc = gaussTruth(cloud.sigma, cloud.peak); // 1362 mm² (41.6 mm across), mean 4.33 %
+    expect(Math.hypot(c.xMm - cloud.x, c.yMm - cloud.y)).toBeLessThan(5);
+    expect(relErr(c.contrastPct, tc.contrastPct)).toBeLessThan(0.25);
+    expect(relErr(c.areaMm2, tc.areaMm2)).toBeLessThan(0.3);
+    expect(Math.hypot(spots[0].xMm - spot.x, spots[0].yMm - spot.y)).toBeLessThan(1);
+  });
+
+  it('measures a faint cloud on a noisy map at its true size (the top taken from a fitted surface)', () => {
+    // peak 1.5 % on 1 % pixel noise: the largest pixel of the smoothed level it is measured on stands
+    // several noise sigmas above the true top, and a half-peak level taken from it shrinks the region
+    // (to 0.66 of the true area on this map, before the top was fitted)
+    const cloud = { sigma: 20, peak: 1.5, x: 120, y: 75 };
+    const r = run([{ kind: 'gauss', xMm: cloud.x, yMm: cloud.y, sigmaMm: cloud.sigma, contrastPct: cloud.peak }], 31, 1.0);
+    const c = nearest(r.blobs, cloud.x, cloud.y)!;
+    const tc = gaussTruth(cloud.sigma, cloud.peak); // 1742 mm², mean 1.08 %
+    expect(relErr(c.areaMm2, tc.areaMm2)).toBeLessThan(0.3);
+    expect(relErr(c.contrastPct, tc.contrastPct)).toBeLessThan(0.25);
+    expect(relErr(c.peakContrastPct, cloud.peak)).toBeLessThan(0.15);
+  });
+});
+
 describe('lines and bands', () => {
   it('finds a vertical band and a partial horizontal line with their half-peak figures', () => {
     const bandW = 15; // raised-cosine FWHM, mm
