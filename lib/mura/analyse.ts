@@ -248,19 +248,31 @@ function featureMask(ctx: Ctx, opts: MuraOptions): Uint8Array {
   // would keep the surface from ever reaching there. A true feature there is still found, partly
   // absorbed. On black fields glow is at the edges by nature and is masked like any feature.
   // A band or line across the panel touches two edges by nature and is masked like any feature.
+  const half = (f: Found): number =>
+    (f.lengthMm < 2 * f.widthMm ? Math.sqrt(f.areaMm2 / Math.PI) : f.widthMm / 2) / ctx.mmPerPx;
   const spans = (f: Found): boolean =>
     (f.bbox[2] - f.bbox[0]) >= opts.bandMinSpan * w || (f.bbox[3] - f.bbox[1]) >= opts.bandMinSpan * h;
   // (a band running along the panel's edge, touching it along its length, is the surface missing that edge)
   const alongEdge = (f: Found): boolean =>
     f.axis === 'vertical' ? f.touch.left + f.touch.right > 0 : f.axis === 'horizontal' ? f.touch.top + f.touch.bottom > 0 : false;
+  // A round feature whose top lies well inside, falling towards the edge it touches, is a feature that
+  // reaches the edge (a cloud near it), not the surface missing the edge: masked like any other.
+  const inward = (f: Found): boolean => {
+    const r = half(f);
+    const d = Math.min(f.px - 0, f.py - 0, w - 1 - f.px, h - 1 - f.py);
+    if (d < Math.max(0.5 * r, 10 / ctx.mmPerPx)) return false;
+    const e = f.edgeContrast;
+    for (const k of ['top', 'bottom', 'left', 'right'] as const) {
+      if (f.touch[k] > 0 && f.sign * e[k] > 0.7 * f.sign * f.peakContrastPct) return false;
+    }
+    return true;
+  };
   const atEdge = (f: Found): boolean =>
-    !ctx.black && (spans(f) ? alongEdge(f) : f.touch.left + f.touch.right + f.touch.top + f.touch.bottom > 0);
+    !ctx.black && (spans(f) ? alongEdge(f) : f.touch.left + f.touch.right + f.touch.top + f.touch.bottom > 0 && !inward(f));
   const strong = ctx.found.filter((f) => semu(f.contrastPct, f.areaMm2, opts.semuConstants) >= 0.5 * opts.semuFloor && !atEdge(f));
   if (strong.length === 0) return mask;
   let valid = 0;
   for (let i = 0; i < w * h; i++) if (ctx.wt[i] > 0) valid++;
-  const half = (f: Found): number =>
-    (f.lengthMm < 2 * f.widthMm ? Math.sqrt(f.areaMm2 / Math.PI) : f.widthMm / 2) / ctx.mmPerPx;
   // The tails: out to where the lightly smoothed contrast falls to a tenth of the feature's peak, up to
   // 4 x its half-size. A feature found against a surface that partly absorbed it (the first, low-order
   // round) is found smaller than it is; its tails show how far it really reaches, and a mask that stops

@@ -1143,8 +1143,10 @@ function findBands(ctx: Ctx, lv: Level, floor: number): BandProfile[] {
     const taken = new Uint8Array(across);
     // columns (rows) of the bands found so far with a margin of half their width: not a new band's surround
     const blocked = new Uint8Array(across);
+    // local extrema beyond the threshold, of either sign, strongest first (a bright gap between two dark
+    // bands is looked at after them, with their strips blocked)
+    const extrema: [number, 1 | -1][] = [];
     for (const sign of [1, -1] as const) {
-      // local extrema beyond the threshold, strongest first
       const peaks: number[] = [];
       for (let c = 0; c < across; c++) {
         const v = sign * S[c];
@@ -1153,7 +1155,11 @@ function findBands(ctx: Ctx, lv: Level, floor: number): BandProfile[] {
         peaks.push(c);
       }
       peaks.sort((p, q) => sign * S[q] - sign * S[p]);
-      for (const pk of peaks.slice(0, 10)) {
+      for (const pk of peaks.slice(0, 10)) extrema.push([pk, sign]);
+    }
+    extrema.sort((a, b) => Math.abs(S[b[0]]) - Math.abs(S[a[0]]));
+    {
+      for (const [pk, sign] of extrema) {
         if (taken[pk]) continue;
         let half = 0.5 * sign * S[pk];
         let c0 = pk;
