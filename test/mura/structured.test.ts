@@ -55,6 +55,30 @@ describe('hot-spot arrays', () => {
     expect(r.blobs.filter((x) => x.kind === 'hotspot-array')).toHaveLength(1);
     expect(r.blobs.filter((x) => x.kind === 'spot')).toHaveLength(0);
   });
+
+  it('counts a zone centred just beyond the edge, of which a sliver is left, into the array', () => {
+    // 234 x 150 mm: lattice rows at y = -5 and 155 mm, 5 mm outside the top and bottom edges; what is
+    // left of those zones inside the analysed border is a strip about 2 mm wide, a "line" on its own
+    // (one was reported, SEMU 0.76, before edge zones could be lines)
+    const Wn = 234;
+    const map = synthMap({
+      widthMm: Wn,
+      heightMm: H,
+      pxPerMm: 2,
+      noisePct: 0.5,
+      seed: 34,
+      smooth: [[0, 0.02], [0.03], [-0.05]],
+      features: [{ kind: 'hotspots', pitchMm: 40, fwhmMm: 14, contrastPct: 3 }],
+    });
+    const valid = map.valid.slice();
+    const b = 4;
+    for (let y = 0; y < map.height; y++) {
+      for (let x = 0; x < map.width; x++) if (x < b || y < b || x >= map.width - b || y >= map.height - b) valid[y * map.width + x] = 0;
+    }
+    const r = analyseMura({ ...map, valid }, { pattern: 'white' });
+    expect(r.blobs.filter((x) => x.kind === 'hotspot-array')).toHaveLength(1);
+    expect(r.blobs.filter((x) => x.kind === 'line')).toHaveLength(0);
+  });
 });
 
 describe('tiled displays', () => {
