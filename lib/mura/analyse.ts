@@ -7,7 +7,7 @@
 
 import { EvenfieldError } from '../errors.js';
 import type { Blob, MuraResult, PanelMap, Plane } from '../types.js';
-import { fitBackground, type BackgroundFit, type RadialTerm, type WorkRaster } from './background.js';
+import { fitBackground, type BackgroundFit, type WorkRaster } from './background.js';
 import { buildLevels, detectFeatures, noiseCorrelation } from './detect.js';
 import { classify, round } from './classify.js';
 import { panelEdges, type Ctx, type Found } from './context.js';
@@ -28,53 +28,6 @@ export interface MuraAnalysis extends MuraResult {
   notes: string[];
 }
 
-/**
- * A drop-off that comes to a sharp peak (luminance falling as the distance to the brightest point to a
- * power under 2) leaves a polynomial surface short at the peak, where it reads as a bright cloud. With the
- * features masked, a cone term (d / dn)^p about the surface's highest point is tried; it is kept when it
- * falls away from the peak (negative coefficient) and cuts the model's error outside the mask by CONE_GAIN.
- * A bright cloud at the centre of a smooth dome is masked and leaves no such error outside: no cone.
- */
-const CONE_GAIN = 0.7;
-function withConeIfBetter(
-  work: WorkRaster,
-  mask: Uint8Array,
-  base: BackgroundFit,
-  bg: MuraOptions['background'],
-  noise: number,
-  black: boolean,
-): BackgroundFit {
-  const { w, h, B } = { w: work.w, h: work.h, B: base.B };
-  let top = -1;
-  for (let i = 0; i < w * h; i++) if (work.wt[i] > 0 && (top < 0 || B[i] > B[top])) top = i;
-  if (top < 0) return base;
-  const tx = top % w;
-  const ty = (top - tx) / w;
-  // a peak on the panel's edge is a tilt, not a cone
-  if (tx < 0.1 * w || tx > 0.9 * w || ty < 0.1 * h || ty > 0.9 * h) return base;
-  // candidates compared by one solve each on the base fit's cells; the best refitted in full
-  // (the power first, at the surface's top; then the top moved by 15 mm each way)
-  let best: RadialTerm | null = null;
-  let bestErr = base.fitErrorPct;
-  const tryCone = (cone: RadialTerm): void => {
-    const f = fitBackground(work, mask, bg, noise, null, black, cone, base.clipped);
-    if (f.radialCoef < 0 && f.fitErrorPct < bestErr) {
-      best = cone;
-      bestErr = f.fitErrorPct;
-    }
-  };
-  for (const power of [1.2, 1.5, 1.8]) tryCone({ x: tx, y: ty, power });
-  const p0 = best as RadialTerm | null; // (set inside tryCone)
-  if (!p0) return base;
-  const step = Math.round(15 / work.mmPerPx);
-  for (const [dx, dy] of [[step, 0], [-step, 0], [0, step], [0, -step]]) tryCone({ x: p0.x + dx, y: p0.y + dy, power: p0.power });
-  const chosen = best as RadialTerm | null;
-  if (!chosen || !(bestErr < CONE_GAIN * base.fitErrorPct)) return base;
-  const full = fitBackground(work, mask, bg, noise, null, black, chosen, null, base.clipped);
-  if (process.env.MURA_DBG) console.log(`cone: error ${base.fitErrorPct.toFixed(3)} -> ${full.fitErrorPct.toFixed(3)} (p ${chosen.power}, coefficient ${full.radialCoef.toFixed(4)})`);
-  return full.radialCoef < 0 && full.fitErrorPct < CONE_GAIN * base.fitErrorPct ? full : base;
-}
-
 /** Diameters (mm) at which the smallest resolvable contrast is reported. */
 export const RESOLVABLE_DIAMETERS_MM = [3, 10, 30, 100];
 
@@ -92,7 +45,6 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
   let fit: BackgroundFit | null = null;
   let ctx: Ctx | null = null;
   let C: Float32Array = new Float32Array(N);
-  let cone: RadialTerm | null | undefined;
   for (let round = 1; round <= opts.background.rounds; round++) {
     // The first round fits a surface of order 2 at most: a large cloud is partly representable by a
     // surface of higher order, which would absorb it before it could be found and masked. The later
@@ -100,16 +52,6 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
     const first = round === 1 && opts.background.rounds > 1;
     const order = first ? Math.min(2, opts.background.order) : opts.background.order;
     fit = fitBackground(work, mask, { ...opts.background, order }, rho * noisePct, opts.tileGrid, black);
-    if (!first && !opts.tileGrid && mask) {
-      // the cone is looked for once, in the first round with features masked; later rounds keep the choice
-      if (cone === undefined) {
-        fit = withConeIfBetter(work, mask, fit, { ...opts.background, order }, rho * noisePct, black);
-        cone = fit.radial;
-      } else if (cone) {
-        const withCone = fitBackground(work, mask, { ...opts.background, order }, rho * noisePct, null, black, cone, null, fit.clipped);
-        if (withCone.radialCoef < 0) fit = withCone;
-      }
-    }
     C = contrastOf(work, fit);
     const Cdet = opts.tileGrid ? withoutTileSteps(C, work, fit, opts.tileGrid) : C;
     noisePct = Math.max(neighbourNoise(Cdet, work), 1e-4);
@@ -180,10 +122,7 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
   const backgroundModel =
     `polynomial surface of order ${fit.order} (Legendre terms) fitted robustly on ${round(fit.cellPx * work.mmPerPx, 2)} mm cells; ` +
     `${round(maskedPct, 1)} % of the panel masked as features; model error ${round(fit.fitErrorPct, 3)} %` +
-    (opts.tileGrid ? `; one level offset per tile (${opts.tileGrid[0]} x ${opts.tileGrid[1]})` : '') +
-    (fit.radial
-      ? `; plus a cone term (distance from u ${round((fit.radial.x + 0.5) / work.w, 3)}, v ${round((fit.radial.y + 0.5) / work.h, 3)})^${fit.radial.power}`
-      : '');
+    (opts.tileGrid ? `; one level offset per tile (${opts.tileGrid[0]} x ${opts.tileGrid[1]})` : '');
 
   const out = new Float32Array(N);
   const bg = new Float32Array(N);

@@ -12,7 +12,7 @@
 // tile-to-tile steps are measured as such instead of bending the surface; the returned background
 // excludes them, so the steps stay visible in the contrast map.
 
-import { Matrix, QrDecomposition, solve } from 'ml-matrix';
+import { CholeskyDecomposition, Matrix, QrDecomposition, solve } from 'ml-matrix';
 import type { BackgroundOptions } from './options.js';
 import { robustSigma } from './raster.js';
 
@@ -32,11 +32,6 @@ export interface BackgroundFit {
   /** smooth background at working resolution (tile offsets not included) */
   B: Float32Array;
   order: number;
-  /** the radial term fitted, if any, and its coefficient (0 without one) */
-  radial: RadialTerm | null;
-  radialCoef: number;
-  /** 1 = cell left out of the fit as an outlier (cells in fitting order) */
-  clipped: Uint8Array;
   cellPx: number;
   cellsUsed: number;
   cellsClipped: number;
@@ -77,14 +72,6 @@ interface Cell {
  * @param brightOnly black fields: glow and clouding are bright, so bright residuals are clipped at
  *        clipSigma but dark ones only at twice that
  */
-/** A cone-like term (d / dn)^power about a point (working px), dn the half-diagonal: a drop-off that
- *  comes to a sharp peak, which no polynomial follows. */
-export interface RadialTerm {
-  x: number;
-  y: number;
-  power: number;
-}
-
 export function fitBackground(
   work: WorkRaster,
   mask: Uint8Array | null,
@@ -92,12 +79,6 @@ export function fitBackground(
   noisePct: number,
   tileGrid: [number, number] | null,
   brightOnly: boolean,
-  radial: RadialTerm | null = null,
-  /** the clipped cells of an earlier fit with the same mask: one solve with them, no clipping rounds
-   *  (to compare models quickly) */
-  fixedClipped: Uint8Array | null = null,
-  /** the clipped cells to start the clipping rounds from (an earlier fit with the same mask) */
-  startClipped: Uint8Array | null = null,
 ): BackgroundFit {
   const { w, h } = work;
   const longMm = Math.max(w, h) * work.mmPerPx;
@@ -156,10 +137,7 @@ export function fitBackground(
   const nTileTerms = nTiles - 1;
   while (order > 0 && cells.length < 3 * (termList(order).length + nTileTerms)) order--;
   const terms = termList(order);
-  const nRadial = radial ? 1 : 0;
-  const nTerms = terms.length + nTileTerms + nRadial;
-  const dn = 0.5 * Math.hypot(w, h);
-  const radialAt = (x: number, y: number): number => (radial ? (Math.hypot(x - radial.x, y - radial.y) / dn) ** radial.power : 0);
+  const nTerms = terms.length + nTileTerms;
   const px = new Float64Array(order + 1);
   const py = new Float64Array(order + 1);
   const rowsOf = (c: Cell, out: Float64Array): void => {
@@ -167,7 +145,6 @@ export function fitBackground(
     legendre(order, (2 * (c.y + 0.5)) / h - 1, py);
     for (let t = 0; t < terms.length; t++) out[t] = px[terms[t][0]] * py[terms[t][1]];
     for (let t = 1; t < nTiles; t++) out[terms.length + t - 1] = c.tile === t ? 1 : 0;
-    if (radial) out[terms.length + nTileTerms] = radialAt(c.x, c.y);
   };
   const design = cells.map((c) => {
     const r = new Float64Array(nTerms);
@@ -176,7 +153,7 @@ export function fitBackground(
   });
 
   const cellNoise = cells.map((c) => noisePct / Math.sqrt(Math.max(1, c.weight)));
-  let clipped: Uint8Array = new Uint8Array(cells.length);
+  let clipped = new Uint8Array(cells.length);
   let coef: Float64Array = new Float64Array(nTerms);
   const predicted = new Float64Array(cells.length);
   const resid = new Float64Array(cells.length);
@@ -213,9 +190,7 @@ export function fitBackground(
     const nearY = c.y < opts.cornerZone * h || c.y > (1 - opts.cornerZone) * h;
     if (anchor[k] && nearX && nearY) c.weight *= opts.edgeWeight;
   });
-  if (fixedClipped && fixedClipped.length === cells.length) clipped = fixedClipped;
-  else if (startClipped && startClipped.length === cells.length) clipped = startClipped.slice();
-  for (let iter = 0; iter < (fixedClipped && fixedClipped.length === cells.length ? 0 : 15); iter++) {
+  for (let iter = 0; iter < 15; iter++) {
     coef = solveWeighted(design, cells, clipped, nTerms);
     for (let k = 0; k < cells.length; k++) {
       let p = 0;
@@ -286,9 +261,8 @@ export function fitBackground(
     tileOffsetsPct = beta; // converted to % below, once B is known
   }
 
-  // 5. evaluate at working resolution (not for a quick comparison)
-  const quick = fixedClipped !== null && fixedClipped.length === cells.length;
-  const B = new Float32Array(quick ? 0 : w * h);
+  // 5. evaluate at working resolution
+  const B = new Float32Array(w * h);
   const colVals = new Float64Array((order + 1) * w);
   const rowVals = new Float64Array((order + 1) * h);
   for (let x = 0; x < w; x++) {
@@ -300,16 +274,15 @@ export function fitBackground(
     for (let j = 0; j <= order; j++) rowVals[j * h + y] = py[j];
   }
   const rowCoef = new Float64Array(order + 1);
-  for (let y = 0; y < (quick ? 0 : h); y++) {
+  for (let y = 0; y < h; y++) {
     // collapse the y-dependence: B(x, y) = sum_i P_i(x) * sum_j c_ij P_j(y)
     rowCoef.fill(0);
     for (let t = 0; t < terms.length; t++) rowCoef[terms[t][0]] += coef[t] * rowVals[terms[t][1] * h + y];
     const row = y * w;
-    const rc = radial ? coef[terms.length + nTileTerms] : 0;
     for (let x = 0; x < w; x++) {
       let s = 0;
       for (let i = 0; i <= order; i++) s += rowCoef[i] * colVals[i * w + x];
-      B[row + x] = radial ? s + rc * radialAt(x, y) : s;
+      B[row + x] = s;
     }
   }
 
@@ -334,9 +307,6 @@ export function fitBackground(
   return {
     B,
     order,
-    radial,
-    radialCoef: radial ? coef[terms.length + nTileTerms] : 0,
-    clipped,
     cellPx,
     cellsUsed: cells.length - nClipped,
     cellsClipped: nClipped,
@@ -352,7 +322,42 @@ function median1(a: number[]): number {
   return s[s.length >> 1];
 }
 
+/**
+ * Weighted least squares over the cells not clipped: the normal equations (nTerms² sums, one pass over
+ * the cells) solved by Cholesky; the Legendre terms on [-1, 1] keep them well conditioned. Falls back
+ * to a QR solve of the whole system when they are not positive definite (a tile with no usable cell).
+ */
 function solveWeighted(design: Float64Array[], cells: Cell[], clipped: Uint8Array, nTerms: number): Float64Array {
+  const ata = new Float64Array(nTerms * nTerms);
+  const atb = new Float64Array(nTerms);
+  let used = 0;
+  for (let k = 0; k < cells.length; k++) {
+    if (clipped[k]) continue;
+    used++;
+    const r = design[k];
+    const wk = cells[k].weight;
+    const v = cells[k].value * wk;
+    for (let i = 0; i < nTerms; i++) {
+      const ri = r[i] * wk;
+      if (ri === 0) continue;
+      atb[i] += r[i] * v;
+      for (let j = i; j < nTerms; j++) ata[i * nTerms + j] += ri * r[j];
+    }
+  }
+  if (used >= nTerms) {
+    for (let i = 0; i < nTerms; i++) for (let j = 0; j < i; j++) ata[i * nTerms + j] = ata[j * nTerms + i];
+    const chol = new CholeskyDecomposition(new Matrix(Array.from({ length: nTerms }, (_, i) => Array.from(ata.subarray(i * nTerms, (i + 1) * nTerms)))));
+    if (chol.isPositiveDefinite()) {
+      const x = chol.solve(Matrix.columnVector(Array.from(atb)));
+      const out = new Float64Array(nTerms);
+      for (let t = 0; t < nTerms; t++) out[t] = x.get(t, 0);
+      if (out.every(Number.isFinite)) return out;
+    }
+  }
+  return solveByQr(design, cells, clipped, nTerms);
+}
+
+function solveByQr(design: Float64Array[], cells: Cell[], clipped: Uint8Array, nTerms: number): Float64Array {
   const rowsUsed: number[] = [];
   for (let k = 0; k < cells.length; k++) if (!clipped[k]) rowsUsed.push(k);
   const A = new Matrix(rowsUsed.length, nTerms);
