@@ -600,39 +600,7 @@ function candidateOf(
   noise: number,
   hidden: Int32Array | null,
 ): Candidate {
-  const { w } = lv;
-  let sx = 0;
-  let sy = 0;
-  let sxx = 0;
-  let syy = 0;
-  let sxy = 0;
-  let bx0 = Infinity;
-  let bx1 = -Infinity;
-  let by0 = Infinity;
-  let by1 = -Infinity;
-  for (const i of region) {
-    const x = i % w;
-    const y = (i - x) / w;
-    if (x < bx0) bx0 = x;
-    if (x > bx1) bx1 = x;
-    if (y < by0) by0 = y;
-    if (y > by1) by1 = y;
-    sx += x;
-    sy += y;
-    sxx += x * x;
-    syy += y * y;
-    sxy += x * y;
-  }
-  const n = region.length;
-  const mx = sx / n;
-  const my = sy / n;
-  const vxx = sxx / n - mx * mx + 1 / 12;
-  const vyy = syy / n - my * my + 1 / 12;
-  const vxy = sxy / n - mx * my;
-  const tr = vxx + vyy;
-  const disc = Math.sqrt(Math.max(0, (tr * tr) / 4 - (vxx * vyy - vxy * vxy)));
-  const major = 4 * Math.sqrt(tr / 2 + disc);
-  const minor = 4 * Math.sqrt(Math.max(tr / 2 - disc, 1 / 12));
+  const { mx, my, minor, major, bbox } = shapeOf(region, lv.w);
   const f = lv.f;
   return {
     level: lv,
@@ -646,7 +614,7 @@ function candidateOf(
     minor,
     major,
     snr: (sign * (peak - pedestal)) / Math.max(noise, 1e-9),
-    vertical: by1 - by0 > bx1 - bx0,
+    vertical: bbox[3] - bbox[1] > bbox[2] - bbox[0],
     hidden,
   };
 }
@@ -797,18 +765,24 @@ function fittedTop(lv: Level, peakIdx: number, halfRadius: number, sign: 1 | -1,
 }
 
 /**
- * Half the narrow extent of a region (level px): its radius for a round one, about 0.6 x the width of a
- * straight one (from the smaller second moment, as candidateOf's minor extent).
+ * A region's centroid, its larger and smaller extent (4 x the square roots of the eigenvalues of its
+ * second moments, pixel discretisation included: the full width of a uniform disc, about 1.15 x that of
+ * a straight strip) and its bounding box [x0, y0, x1, y1] (inclusive), level px.
  */
-function halfWidth(region: Int32Array, w: number): number {
+function shapeOf(region: Int32Array, w: number): { mx: number; my: number; major: number; minor: number; bbox: [number, number, number, number] } {
   let sx = 0;
   let sy = 0;
   let sxx = 0;
   let syy = 0;
   let sxy = 0;
+  const bbox: [number, number, number, number] = [Infinity, Infinity, -Infinity, -Infinity];
   for (const i of region) {
     const x = i % w;
     const y = (i - x) / w;
+    if (x < bbox[0]) bbox[0] = x;
+    if (y < bbox[1]) bbox[1] = y;
+    if (x > bbox[2]) bbox[2] = x;
+    if (y > bbox[3]) bbox[3] = y;
     sx += x;
     sy += y;
     sxx += x * x;
@@ -816,12 +790,20 @@ function halfWidth(region: Int32Array, w: number): number {
     sxy += x * y;
   }
   const n = region.length;
-  const vxx = sxx / n - (sx / n) ** 2 + 1 / 12;
-  const vyy = syy / n - (sy / n) ** 2 + 1 / 12;
-  const vxy = sxy / n - (sx / n) * (sy / n);
+  const mx = sx / n;
+  const my = sy / n;
+  const vxx = sxx / n - mx * mx + 1 / 12;
+  const vyy = syy / n - my * my + 1 / 12;
+  const vxy = sxy / n - mx * my;
   const tr = vxx + vyy;
   const disc = Math.sqrt(Math.max(0, (tr * tr) / 4 - (vxx * vyy - vxy * vxy)));
-  return 2 * Math.sqrt(Math.max(tr / 2 - disc, 1 / 12));
+  return { mx, my, major: 4 * Math.sqrt(tr / 2 + disc), minor: 4 * Math.sqrt(Math.max(tr / 2 - disc, 1 / 12)), bbox };
+}
+
+/** Half the narrow extent of a region (level px): its radius for a round one, about 0.6 x the width of a
+ *  straight one. */
+function halfWidth(region: Int32Array, w: number): number {
+  return shapeOf(region, w).minor / 2;
 }
 
 /** Gaussian elimination with partial pivoting of a 6 x 6 system (row-major); null when singular. */
