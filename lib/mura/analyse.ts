@@ -259,7 +259,7 @@ function featureMask(ctx: Ctx, opts: MuraOptions): Uint8Array {
   // reaches the edge (a cloud near it), not the surface missing the edge: masked like any other.
   const inward = (f: Found): boolean => {
     const r = half(f);
-    const d = Math.min(f.px - 0, f.py - 0, w - 1 - f.px, h - 1 - f.py);
+    const d = Math.min(f.px, f.py, w - 1 - f.px, h - 1 - f.py);
     if (d < Math.max(0.5 * r, 10 / ctx.mmPerPx)) return false;
     const e = f.edgeContrast;
     for (const k of ['top', 'bottom', 'left', 'right'] as const) {
