@@ -660,6 +660,9 @@ class Emitter {
    * sample. The same sums as emitAny (up to the order of the additions), with the chroma terms formed
    * once per block.
    */
+  // emit420Half and emitAny repeat the same few lines per pixel (clamp, clip and dark counts, linearise
+  // and sum): kept inline in both on purpose, as these are the decoder's hottest loops; what they share
+  // per output pixel is put().
   private emit420Half(my: number): void {
     const { f, opts, w } = this;
     const W = f.W;

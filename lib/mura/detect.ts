@@ -1186,15 +1186,18 @@ function findBands(ctx: Ctx, lv: Level, floor: number): BandProfile[] {
           }
           return cnt > 0 ? sum / cnt : null;
         };
-        // 'mean': the mean of the two strips (a straight flank cancels); 'near': the strip nearer the
-        // band's own level (see profileBeside)
-        const beside = (a0: number, a1: number, mode: 'mean' | 'near'): number => {
+        // the strips' means over a stretch along the band: 'mean' is the mean of the two (a straight
+        // flank cancels), 'near' the one nearer the band's own level (nearB: see profileBeside); either
+        // one alone where the other is off the panel
+        let nearB = false;
+        const beside = (a0: number, a1: number): { mean: number; near: number } => {
           const va = sideA[1] >= sideA[0] ? stretchMean(a0, a1, sideA[0], sideA[1], true) : null;
           const vb = sideB[1] >= sideB[0] ? stretchMean(a0, a1, sideB[0], sideB[1], true) : null;
-          if (va === null || vb === null) return va ?? vb ?? 0;
-          if (mode === 'mean') return 0.5 * (va + vb);
-          const [pa, pb] = profileSides();
-          return pa !== null && pb !== null && sign * pb > sign * pa ? vb : va;
+          if (va === null || vb === null) {
+            const one = va ?? vb ?? 0;
+            return { mean: one, near: one };
+          }
+          return { mean: 0.5 * (va + vb), near: nearB ? vb : va };
         };
         // The level beside the band over its whole length: the band's pedestal. A band crossing a broad
         // feature (a cloud's flank) is measured against it, as the eye sees it, and its half-peak extent
@@ -1233,12 +1236,16 @@ function findBands(ctx: Ctx, lv: Level, floor: number): BandProfile[] {
           }
           return [out[0], out[1]];
         }
+        {
+          const [pa, pb] = profileSides();
+          nearB = pa !== null && pb !== null && sign * pb > sign * pa;
+        }
         const means: number[] = [];
         for (let part = 0; part < 5; part++) {
           const a0 = Math.floor((part * along) / 5);
           const a1 = Math.floor(((part + 1) * along) / 5);
           const m = stretchMean(a0, a1, c0, c1);
-          means.push(m !== null ? sign * (m - beside(a0, a1, 'mean')) : 0);
+          means.push(m !== null ? sign * (m - beside(a0, a1).mean) : 0);
         }
         const typical = [...means].sort((p, q) => p - q)[2];
         if (!(typical >= 0.5 * sign * (S[pk] - pedestal) * (2 / 3))) continue;
@@ -1251,8 +1258,9 @@ function findBands(ctx: Ctx, lv: Level, floor: number): BandProfile[] {
         for (let a = 0; a < along; a++) {
           const m = stretchMean(a, a + 1, c0, c1);
           if (m === null) continue;
-          alongMeans.push(sign * (m - beside(a, a + 1, 'mean')));
-          alongNear.push(sign * (m - beside(a, a + 1, 'near')));
+          const b = beside(a, a + 1);
+          alongMeans.push(sign * (m - b.mean));
+          alongNear.push(sign * (m - b.near));
         }
         if (!(robustSigma(alongMeans) < 0.5 * typical)) continue;
         // on a pedestal, or between strips that differ from the background, the band's mean contrast is

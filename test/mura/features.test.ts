@@ -82,7 +82,8 @@ describe('features on features', () => {
     expect(clouds).toHaveLength(1);
     expect(spots).toHaveLength(1);
     const c = clouds[0];
-    const tc = gaussTruth(cloud.sigma, cloud.peak); // 1362 mm² (41.6 mm across), mean 4.33 %
+    // analytic truth of a Gaussian's half-peak disc (helpers.ts, derived by hand): 2722 mm² (58.9 mm across), mean 4.33 %
+    const tc = gaussTruth(cloud.sigma, cloud.peak);
     expect(Math.hypot(c.xMm - cloud.x, c.yMm - cloud.y)).toBeLessThan(5);
     expect(relErr(c.contrastPct, tc.contrastPct)).toBeLessThan(0.25);
     expect(relErr(c.areaMm2, tc.areaMm2)).toBeLessThan(0.3);
@@ -96,7 +97,8 @@ describe('features on features', () => {
     const cloud = { sigma: 20, peak: 1.5, x: 120, y: 75 };
     const r = run([{ kind: 'gauss', xMm: cloud.x, yMm: cloud.y, sigmaMm: cloud.sigma, contrastPct: cloud.peak }], 31, 1.0);
     const c = nearest(r.blobs, cloud.x, cloud.y)!;
-    const tc = gaussTruth(cloud.sigma, cloud.peak); // 1742 mm², mean 1.08 %
+    // analytic truth (helpers.ts, derived by hand): 1742 mm², mean 1.08 %
+    const tc = gaussTruth(cloud.sigma, cloud.peak);
     expect(relErr(c.areaMm2, tc.areaMm2)).toBeLessThan(0.3);
     expect(relErr(c.contrastPct, tc.contrastPct)).toBeLessThan(0.25);
     expect(relErr(c.peakContrastPct, cloud.peak)).toBeLessThan(0.15);
@@ -131,7 +133,8 @@ describe('features against the panel edge or crossing others', () => {
     const cloud = { sigma: 40, peak: -2.5, x: 220, y: 205 };
     const r = big([{ kind: 'gauss', xMm: cloud.x, yMm: cloud.y, sigmaMm: cloud.sigma, contrastPct: cloud.peak }], 41);
     const c = nearest(r.blobs, cloud.x, cloud.y)!;
-    const tc = gaussTruth(cloud.sigma, cloud.peak); // 6970 mm², mean -1.80 %
+    // analytic truth (helpers.ts, derived by hand): 6970 mm², mean -1.80 %
+    const tc = gaussTruth(cloud.sigma, cloud.peak);
     expect(c.kind).toBe('cloud');
     expect(relErr(c.areaMm2, tc.areaMm2)).toBeLessThan(0.3);
     expect(relErr(c.contrastPct, tc.contrastPct)).toBeLessThan(0.25);

@@ -8,6 +8,19 @@ import { meanOverHalfPeak, relErr } from './helpers.js';
 const W = 240;
 const H = 150;
 
+/** A panel map with a centred lattice of bright Gaussian zones (14 mm FWHM, +3 %) on a smooth field. */
+function hotspotMap(widthMm: number, seed: number, pitchMm: number) {
+  return synthMap({
+    widthMm,
+    heightMm: H,
+    pxPerMm: 2,
+    noisePct: 0.5,
+    seed,
+    smooth: [[0, 0.02], [0.03], [-0.05]],
+    features: [{ kind: 'hotspots', pitchMm, fwhmMm: 14, contrastPct: 3 }],
+  });
+}
+
 /** The map with a border of b pixels marked as without data, as the pipeline leaves the edge transition. */
 function withoutBorder<M extends { width: number; height: number; valid: Uint8Array }>(map: M, b: number): M {
   const valid = map.valid.slice();
@@ -20,15 +33,7 @@ function withoutBorder<M extends { width: number; height: number; valid: Uint8Ar
 describe('hot-spot arrays', () => {
   it('reports a lattice of bright zones as one finding with its pitch', () => {
     const pitch = 40;
-    const map = synthMap({
-      widthMm: W,
-      heightMm: H,
-      pxPerMm: 2,
-      noisePct: 0.5,
-      seed: 31,
-      smooth: [[0, 0.02], [0.03], [-0.05]],
-      features: [{ kind: 'hotspots', pitchMm: pitch, fwhmMm: 14, contrastPct: 3 }],
-    });
+    const map = hotspotMap(W, 31, pitch);
     const r = analyseMura(map, { pattern: 'white' });
     const arrays = r.blobs.filter((b) => b.kind === 'hotspot-array');
     expect(arrays.length).toBe(1);
@@ -46,15 +51,7 @@ describe('hot-spot arrays', () => {
   it('counts the zones cut by the edge into the array when the map border is left out, as photos have it', () => {
     // the pipeline leaves a few map pixels along the edge out of the analysis (the edge transition); the
     // lattice runs off the left and right edges (nodes at x = 0 and 240 mm), so those zones are cut
-    const map = synthMap({
-      widthMm: W,
-      heightMm: H,
-      pxPerMm: 2,
-      noisePct: 0.5,
-      seed: 33,
-      smooth: [[0, 0.02], [0.03], [-0.05]],
-      features: [{ kind: 'hotspots', pitchMm: 40, fwhmMm: 14, contrastPct: 3 }],
-    });
+    const map = hotspotMap(W, 33, 40);
     const r = analyseMura(withoutBorder(map, 4), { pattern: 'white' });
     expect(r.blobs.filter((x) => x.kind === 'hotspot-array')).toHaveLength(1);
     expect(r.blobs.filter((x) => x.kind === 'spot')).toHaveLength(0);
@@ -65,15 +62,7 @@ describe('hot-spot arrays', () => {
     // left of those zones inside the analysed border is a strip about 2 mm wide, a "line" on its own
     // (one was reported, SEMU 0.76, before edge zones could be lines)
     const Wn = 234;
-    const map = synthMap({
-      widthMm: Wn,
-      heightMm: H,
-      pxPerMm: 2,
-      noisePct: 0.5,
-      seed: 34,
-      smooth: [[0, 0.02], [0.03], [-0.05]],
-      features: [{ kind: 'hotspots', pitchMm: 40, fwhmMm: 14, contrastPct: 3 }],
-    });
+    const map = hotspotMap(Wn, 34, 40);
     const r = analyseMura(withoutBorder(map, 4), { pattern: 'white' });
     expect(r.blobs.filter((x) => x.kind === 'hotspot-array')).toHaveLength(1);
     expect(r.blobs.filter((x) => x.kind === 'line')).toHaveLength(0);
