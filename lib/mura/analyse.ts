@@ -7,7 +7,7 @@
 
 import { EvenfieldError } from '../errors.js';
 import type { Blob, MuraResult, PanelMap, Plane } from '../types.js';
-import { fitBackground, type BackgroundFit, type WorkRaster } from './background.js';
+import { fitBackground, type BackgroundFit, type Bump, type WorkRaster } from './background.js';
 import { buildLevels, detectFeatures, noiseCorrelation } from './detect.js';
 import { classify, round } from './classify.js';
 import { panelEdges, type Ctx, type Found } from './context.js';
@@ -88,6 +88,7 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
     mask = next;
   }
   if (!fit || !ctx) throw new EvenfieldError('internal', 'mura analysis ran no round');
+  remeasureLargeClouds(ctx, work, fit, mask, opts);
 
   // findings: single features, hot-spot arrays, tile seams and steps
   const singles: Finding[] = ctx.found.map((f) => findingOf(ctx!, f, opts));
@@ -297,6 +298,190 @@ function featureMask(ctx: Ctx, opts: MuraOptions): Uint8Array {
     scale *= 0.6;
   }
   return mask;
+}
+
+/**
+ * Large clouds measured again against a surface fitted together with them.
+ *
+ * A cloud over about a third of the panel's short side can be masked out of the surface fit only out to
+ * where the mask leaves the surface enough of the panel to stand on (maxMaskedFraction, maskPadMaxFraction);
+ * its flanks beyond the mask pull the surface up under it (down under a dark one), and its contrast and
+ * area come out low: 30-60 % faint for clouds of 165-200 mm on a 598 x 336 mm panel in the accuracy study.
+ * Here each such cloud gets one more fit in which an elliptical Gaussian of its size (the width chosen
+ * by least squares) carries its flanks, its half-peak core stays masked, and the other features keep
+ * their masks; the cloud is then found again on that fit's contrast map and its figures replaced.
+ * Only the cloud's own figures change: the contrast map and the other findings keep the common surface.
+ * Clouds fainter than bumpMinContrastPct are left as they are (see the option).
+ */
+function remeasureLargeClouds(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, mask: Uint8Array | null, opts: MuraOptions): void {
+  const shortMm = Math.min(work.w, work.h) * ctx.mmPerPx;
+  const large = (f: Found): boolean =>
+    f.source === 'blob' &&
+    f.lengthMm < 2 * f.widthMm &&
+    2 * Math.sqrt(f.areaMm2 / Math.PI) >= opts.background.bumpMinFraction * shortMm &&
+    Math.abs(f.contrastPct) >= opts.background.bumpMinContrastPct;
+  const todo = ctx.found.map((f, index) => ({ f, index })).filter(({ f }) => large(f));
+  if (todo.length === 0) return;
+  // A cloud a third of the panel across needs no fine pixels: the fits and searches run on the working
+  // raster box-averaged to at most REMEASURE_PIXELS, and the region found is carried back.
+  const k = Math.max(1, Math.ceil(Math.sqrt((work.w * work.h) / REMEASURE_PIXELS)));
+  const coarse = k === 1 ? work : coarsened(work, k);
+  const level = k === 1 ? fit.B : coarsenedPlane(fit.B, work.w, work.h, k);
+  const cMask = mask ? (k === 1 ? mask : coarsenedMask(mask, work.w, work.h, k)) : null;
+  const N = coarse.w * coarse.h;
+  const edges = panelEdges(coarse.wt, coarse.w, coarse.h);
+  const maxSigma = opts.maxFeatureMm / (2.3548 * coarse.mmPerPx);
+  for (const { f: f0, index } of todo) {
+    // the cloud in coarse pixels (pixel centres: coarse c covers fine k c .. k c + k - 1)
+    let cx = (f0.px + 0.5) / k - 0.5;
+    let cy = (f0.py + 0.5) / k - 0.5;
+    let f = f0;
+    let got: Found | null = null;
+    let cPixels: Int32Array = coarsePixels(f0.pixels, work.w, coarse.w, k);
+    for (let pass = 0; pass < PASSES; pass++) {
+      // half-peak ellipse semi-axes from the equivalent rectangle (a = L / sqrt 3); Gaussian sigma = a / 1.1774
+      const s = 1 / (Math.sqrt(3) * 1.1774 * coarse.mmPerPx);
+      const bump: Bump = { x: cx, y: cy, sLong: f.lengthMm * s, sShort: f.widthMm * s, angleRad: (f.angleDeg * Math.PI) / 180 };
+      const m = new Uint8Array(N);
+      if (cMask) for (let i = 0; i < N; i++) if (cMask[i] && !withinBump(bump, i % coarse.w, Math.floor(i / coarse.w))) m[i] = 1;
+      for (let j = 0; j < cPixels.length; j++) m[cPixels[j]] = 1;
+      const fit2 = fitBackground(coarse, m, opts.background, (ctx.rho * ctx.noisePct) / k, opts.tileGrid, ctx.black, {
+        list: [bump],
+        level,
+        maxSigma,
+      });
+      const C2 = contrastOf(coarse, fit2);
+      const Cdet = opts.tileGrid ? withoutTileSteps(C2, coarse, fit2, opts.tileGrid) : C2;
+      const ctx2: Ctx = {
+        ...ctx,
+        w: coarse.w,
+        h: coarse.h,
+        mmPerPx: coarse.mmPerPx,
+        C: Cdet,
+        wt: coarse.wt,
+        noisePct: Math.max(neighbourNoise(Cdet, coarse), 1e-4),
+        rho: 1,
+        fitErrorPct: fit2.fitErrorPct,
+        B: fit2.B,
+        label: new Int32Array(N),
+        edges,
+        found: [],
+      };
+      const levels = buildLevels(ctx2);
+      ctx2.rho = noiseCorrelation(levels);
+      detectFeatures(ctx2, levels, true);
+      const r = Math.sqrt(f.areaMm2 / Math.PI) / coarse.mmPerPx;
+      let best: Found | null = null;
+      for (const g of ctx2.found) {
+        if (g.sign !== f.sign || g.source !== 'blob' || Math.hypot(g.px - cx, g.py - cy) > 0.5 * r) continue;
+        if (!best || Math.abs(g.contrastPct) * g.areaMm2 > Math.abs(best.contrastPct) * best.areaMm2) best = g;
+      }
+      if (process.env.MURA_DBG) {
+        console.log(`  remeasure x${k} (${(cx * coarse.mmPerPx).toFixed(0)},${(cy * coarse.mmPerPx).toFixed(0)}) bump s ${(fit2.bumps[0].sLong * coarse.mmPerPx).toFixed(0)} amp ${(100 * fit2.bumps[0].amplitude).toFixed(2)} % -> ${best ? `A ${best.areaMm2.toFixed(0)} C ${best.contrastPct.toFixed(3)}` : 'not found'}`);
+      }
+      if (!best) break;
+      got = best;
+      f = best;
+      cx = best.px;
+      cy = best.py;
+      cPixels = best.pixels;
+    }
+    if (got) ctx.found[index] = k === 1 ? got : refined(got, k, work.w, work.h, coarse.w);
+  }
+}
+
+/** Largest working raster (pixels) the large clouds are measured again on. */
+const REMEASURE_PIXELS = 250_000;
+/** Re-measurements per large cloud: the second starts from the size the first found (a cloud measured
+ *  small gets a bump too narrow the first time). */
+const PASSES = 2;
+
+/** The working raster box-averaged by k (weighted by the data). */
+function coarsened(work: WorkRaster, k: number): WorkRaster {
+  const w = Math.ceil(work.w / k);
+  const h = Math.ceil(work.h / k);
+  const Y = new Float32Array(w * h);
+  const wt = new Float32Array(w * h);
+  const cells = new Float32Array(w * h);
+  for (let y = 0; y < work.h; y++) {
+    const row = Math.floor(y / k) * w;
+    for (let x = 0; x < work.w; x++) {
+      const j = row + Math.floor(x / k);
+      const q = work.wt[y * work.w + x];
+      cells[j]++;
+      if (q <= 0) continue;
+      Y[j] += q * work.Y[y * work.w + x];
+      wt[j] += q;
+    }
+  }
+  for (let j = 0; j < w * h; j++) {
+    if (wt[j] > 0) Y[j] /= wt[j];
+    wt[j] /= cells[j];
+  }
+  return { w, h, mmPerPx: work.mmPerPx * k, Y, wt };
+}
+
+function coarsenedPlane(p: Float32Array, W: number, H: number, k: number): Float32Array {
+  const w = Math.ceil(W / k);
+  const h = Math.ceil(H / k);
+  const out = new Float32Array(w * h);
+  const n = new Float32Array(w * h);
+  for (let y = 0; y < H; y++) for (let x = 0; x < W; x++) {
+    const j = Math.floor(y / k) * w + Math.floor(x / k);
+    out[j] += p[y * W + x];
+    n[j]++;
+  }
+  for (let j = 0; j < w * h; j++) out[j] /= n[j];
+  return out;
+}
+
+/** A coarse pixel is masked when at least half of its fine pixels are. */
+function coarsenedMask(m: Uint8Array, W: number, H: number, k: number): Uint8Array {
+  const frac = coarsenedPlane(Float32Array.from(m), W, H, k);
+  const out = new Uint8Array(frac.length);
+  for (let j = 0; j < frac.length; j++) out[j] = frac[j] >= 0.5 ? 1 : 0;
+  return out;
+}
+
+function coarsePixels(pixels: Int32Array, W: number, w: number, k: number): Int32Array {
+  const set = new Set<number>();
+  for (let i = 0; i < pixels.length; i++) {
+    const x = pixels[i] % W;
+    const y = (pixels[i] - x) / W;
+    set.add(Math.floor(y / k) * w + Math.floor(x / k));
+  }
+  return Int32Array.from(set);
+}
+
+/** A region found on the raster coarsened by k, carried back to the working raster. */
+function refined(g: Found, k: number, W: number, H: number, w: number): Found {
+  const pixels: number[] = [];
+  for (let i = 0; i < g.pixels.length; i++) {
+    const x = g.pixels[i] % w;
+    const y = (g.pixels[i] - x) / w;
+    for (let yy = y * k; yy < Math.min(H, (y + 1) * k); yy++) for (let xx = x * k; xx < Math.min(W, (x + 1) * k); xx++) pixels.push(yy * W + xx);
+  }
+  const at = (v: number): number => (v + 0.5) * k - 0.5;
+  return {
+    ...g,
+    pixels: Int32Array.from(pixels),
+    cx: at(g.cx),
+    cy: at(g.cy),
+    px: at(g.px),
+    py: at(g.py),
+    bbox: [g.bbox[0] * k, g.bbox[1] * k, Math.min(W, g.bbox[2] * k), Math.min(H, g.bbox[3] * k)],
+  };
+}
+
+/** Within 2.5 sigma of the bump (where a Gaussian is above 4 % of its peak). */
+function withinBump(b: Bump, x: number, y: number): boolean {
+  const dx = x - b.x;
+  const dy = y - b.y;
+  const c = Math.cos(b.angleRad);
+  const s = Math.sin(b.angleRad);
+  const a = (dx * c + dy * s) / b.sLong;
+  const q = (-dx * s + dy * c) / b.sShort;
+  return a * a + q * q <= 6.25;
 }
 
 /** Contrast averaged over a (2r+1)^2 box, weighted by the data (running sums). */

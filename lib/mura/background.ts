@@ -8,6 +8,9 @@
 // When the cloud is not masked the surface bends towards it and absorbs part of its contrast, which
 // biases the measured contrast low and the area small; hence fit -> find -> mask -> refit.
 //
+// Large clouds: the surface can also be fitted together with Gaussian bumps (analyse.ts measures the
+// clouds over a third of the panel's short side again that way); the returned background excludes them.
+//
 // Tiled displays: with a tile grid the fit carries one level offset per tile (summing to zero), so
 // tile-to-tile steps are measured as such instead of bending the surface; the returned background
 // excludes them, so the steps stay visible in the contrast map.
@@ -41,6 +44,35 @@ export interface BackgroundFit {
   fitErrorPct: number;
   /** per-tile relative level offsets (%), row by row, mean 0; null without a tile grid */
   tileOffsetsPct: Float64Array | null;
+  /** the bumps fitted with the surface, each with the width scale chosen and its fitted amplitude
+   *  (relative to the background: 0.05 = a 5 % cloud) */
+  bumps: (Bump & { amplitude: number })[];
+}
+
+/**
+ * A large cloud fitted together with the surface instead of masked out of it: an elliptical Gaussian
+ * (working px; sigmas along and across its long axis) scaled by the previous round's background.
+ */
+export interface Bump {
+  x: number;
+  y: number;
+  sLong: number;
+  sShort: number;
+  angleRad: number;
+}
+
+/** Width scales tried for each bump; the one with the least weighted residual is kept. */
+const BUMP_SCALES = [0.8, 1, 1.25, 1.55, 1.9];
+
+function bumpValue(b: Bump, scale: number, x: number, y: number): number {
+  const dx = x - b.x;
+  const dy = y - b.y;
+  const c = Math.cos(b.angleRad);
+  const s = Math.sin(b.angleRad);
+  const a = (dx * c + dy * s) / (b.sLong * scale);
+  const q = (-dx * s + dy * c) / (b.sShort * scale);
+  const e = 0.5 * (a * a + q * q);
+  return e > 30 ? 0 : Math.exp(-e);
 }
 
 /** Legendre polynomials P_0..P_n at x in [-1, 1] (three-term recurrence). */
@@ -79,6 +111,7 @@ export function fitBackground(
   noisePct: number,
   tileGrid: [number, number] | null,
   brightOnly: boolean,
+  bumps: { list: Bump[]; level: Float32Array; maxSigma: number } | null = null,
 ): BackgroundFit {
   const { w, h } = work;
   const longMm = Math.max(w, h) * work.mmPerPx;
@@ -137,7 +170,19 @@ export function fitBackground(
   const nTileTerms = nTiles - 1;
   while (order > 0 && cells.length < 3 * (termList(order).length + nTileTerms)) order--;
   const terms = termList(order);
-  const nTerms = terms.length + nTileTerms;
+  const bumpList = bumps?.list ?? [];
+  const nBase = terms.length + nTileTerms;
+  const nTerms = nBase + bumpList.length;
+  const bumpScale = bumpList.map(() => 1);
+  const levelAt = (c: Cell): number => {
+    if (!bumps) return 0;
+    const xi = Math.min(w - 1, Math.max(0, Math.round(c.x)));
+    const yi = Math.min(h - 1, Math.max(0, Math.round(c.y)));
+    return bumps.level[yi * w + xi];
+  };
+  const setBump = (k: number, c: Cell, r: Float64Array): void => {
+    r[nBase + k] = levelAt(c) * bumpValue(bumpList[k], bumpScale[k], c.x, c.y);
+  };
   const px = new Float64Array(order + 1);
   const py = new Float64Array(order + 1);
   const rowsOf = (c: Cell, out: Float64Array): void => {
@@ -145,6 +190,7 @@ export function fitBackground(
     legendre(order, (2 * (c.y + 0.5)) / h - 1, py);
     for (let t = 0; t < terms.length; t++) out[t] = px[terms[t][0]] * py[terms[t][1]];
     for (let t = 1; t < nTiles; t++) out[terms.length + t - 1] = c.tile === t ? 1 : 0;
+    for (let k = 0; k < bumpList.length; k++) setBump(k, c, out);
   };
   const design = cells.map((c) => {
     const r = new Float64Array(nTerms);
@@ -190,44 +236,76 @@ export function fitBackground(
     const nearY = c.y < opts.cornerZone * h || c.y > (1 - opts.cornerZone) * h;
     if (anchor[k] && nearX && nearY) c.weight *= opts.edgeWeight;
   });
-  for (let iter = 0; iter < 15; iter++) {
-    coef = solveWeighted(design, cells, clipped, nTerms);
-    for (let k = 0; k < cells.length; k++) {
-      let p = 0;
-      const r = design[k];
-      for (let t = 0; t < nTerms; t++) p += coef[t] * r[t];
-      predicted[k] = p;
-      resid[k] = p > 0 ? (100 * (cells[k].value - p)) / p : 0;
-    }
-    const sigma = Math.max(robustSigma(resid), median1(cellNoise), 1e-4);
-    const hiLimit = opts.clipSigma * sigma;
-    const loLimit = (brightOnly ? 2 : 1) * opts.clipSigma * sigma;
-    const next = new Uint8Array(cells.length);
-    for (let k = 0; k < cells.length; k++) {
-      // edge cells only for what stands far out of the fit (a bright zone of a hot-spot array on the edge)
-      const loose = anchor[k] ? 3 : 1;
-      if (resid[k] > loose * hiLimit || resid[k] < -loose * loLimit) {
-        const gx = Math.floor(cells[k].x / cellPx);
-        const gy = Math.floor(cells[k].y / cellPx);
-        for (let dy = -1; dy <= 1; dy++) {
-          for (let dx = -1; dx <= 1; dx++) {
-            const xx = gx + dx;
-            const yy = gy + dy;
-            if (xx < 0 || yy < 0 || xx >= gw || yy >= gh) continue;
-            const j = gridIndex[yy * gw + xx];
-            if (j >= 0) next[j] = 1;
+  // robust fit: cells beyond clipSigma of the fit are left out (with their neighbours), until no change
+  const clipRounds = (): void => {
+    for (let iter = 0; iter < 15; iter++) {
+      coef = solveWeighted(design, cells, clipped, nTerms);
+      for (let k = 0; k < cells.length; k++) {
+        let p = 0;
+        const r = design[k];
+        for (let t = 0; t < nTerms; t++) p += coef[t] * r[t];
+        predicted[k] = p;
+        resid[k] = p > 0 ? (100 * (cells[k].value - p)) / p : 0;
+      }
+      const sigma = Math.max(robustSigma(resid), median1(cellNoise), 1e-4);
+      const hiLimit = opts.clipSigma * sigma;
+      const loLimit = (brightOnly ? 2 : 1) * opts.clipSigma * sigma;
+      const next = new Uint8Array(cells.length);
+      for (let k = 0; k < cells.length; k++) {
+        // edge cells only for what stands far out of the fit (a bright zone of a hot-spot array on the edge)
+        const loose = anchor[k] ? 3 : 1;
+        if (resid[k] > loose * hiLimit || resid[k] < -loose * loLimit) {
+          const gx = Math.floor(cells[k].x / cellPx);
+          const gy = Math.floor(cells[k].y / cellPx);
+          for (let dy = -1; dy <= 1; dy++) {
+            for (let dx = -1; dx <= 1; dx++) {
+              const xx = gx + dx;
+              const yy = gy + dy;
+              if (xx < 0 || yy < 0 || xx >= gw || yy >= gh) continue;
+              const j = gridIndex[yy * gw + xx];
+              if (j >= 0) next[j] = 1;
+            }
           }
         }
       }
+      // never clip so much that the fit loses its footing
+      let kept = 0;
+      for (let k = 0; k < cells.length; k++) if (!next[k]) kept++;
+      if (kept < Math.max(3 * nTerms, 0.3 * cells.length)) break;
+      let same = true;
+      for (let k = 0; k < cells.length; k++) if (next[k] !== clipped[k]) same = false;
+      clipped = next;
+      if (same) break;
     }
-    // never clip so much that the fit loses its footing
-    let kept = 0;
-    for (let k = 0; k < cells.length; k++) if (!next[k]) kept++;
-    if (kept < Math.max(3 * nTerms, 0.3 * cells.length)) break;
-    let same = true;
-    for (let k = 0; k < cells.length; k++) if (next[k] !== clipped[k]) same = false;
-    clipped = next;
-    if (same) break;
+  };
+  clipRounds();
+  // each bump's width: the scale with the least weighted residual over the cells kept, then the
+  // clipping once more with the widths chosen
+  if (bumpList.length) {
+    for (let k = 0; k < bumpList.length; k++) {
+      let best = Infinity;
+      let bestScale = 1;
+      for (const sc of BUMP_SCALES) {
+        if (sc > 1 && bumpList[k].sLong * sc > bumps!.maxSigma) continue;
+        bumpScale[k] = sc;
+        cells.forEach((c, j) => setBump(k, c, design[j]));
+        const cf = solveWeighted(design, cells, clipped, nTerms);
+        let ssr = 0;
+        for (let j = 0; j < cells.length; j++) {
+          if (clipped[j]) continue;
+          let p = 0;
+          for (let t = 0; t < nTerms; t++) p += cf[t] * design[j][t];
+          ssr += cells[j].weight * (cells[j].value - p) ** 2;
+        }
+        if (ssr < best) {
+          best = ssr;
+          bestScale = sc;
+        }
+      }
+      bumpScale[k] = bestScale;
+      cells.forEach((c, j) => setBump(k, c, design[j]));
+    }
+    clipRounds();
   }
   coef = solveWeighted(design, cells, clipped, nTerms);
 
@@ -313,6 +391,7 @@ export function fitBackground(
     cellsMasked,
     fitErrorPct,
     tileOffsetsPct,
+    bumps: bumpList.map((b, k) => ({ ...b, sLong: b.sLong * bumpScale[k], sShort: b.sShort * bumpScale[k], amplitude: coef[nBase + k] })),
   };
 }
 

@@ -34,6 +34,12 @@ export interface BackgroundOptions {
   /** the margin masked past a feature's half-peak region is at most this fraction of the panel's short
    *  side (default 0.1); the feature's measured tails are masked whatever their reach */
   maskPadMaxFraction: number;
+  /** round clouds at least this fraction of the panel's short side across (half-peak, equal-area
+   *  diameter) are fitted with the surface as a Gaussian bump instead of masked (default 0.3) */
+  bumpMinFraction: number;
+  /** ...and whose mean contrast is at least this (%, default 2): fainter ones are as likely the
+   *  surface missing a sharp-peaked roll-off, which a bump would fit and so make stronger */
+  bumpMinContrastPct: number;
 }
 
 export interface MuraOptions {
@@ -119,6 +125,8 @@ export function resolveMuraOptions(input: MuraOptionsInput): MuraOptions {
     edgeWeight: 10,
     cornerZone: 0.3,
     maskPadMaxFraction: 0.1,
+    bumpMinFraction: 0.3,
+    bumpMinContrastPct: 2,
     ...stripUndefined(input.background ?? {}),
   };
   const o: MuraOptions = {
@@ -191,6 +199,8 @@ function validate(o: MuraOptions): void {
   if (!(Number.isFinite(b.edgeWeight) && b.edgeWeight > 0)) bad(`background.edgeWeight must be > 0, got ${b.edgeWeight}`);
   if (!(b.cornerZone >= 0 && b.cornerZone <= 0.5)) bad(`background.cornerZone must be in [0, 0.5], got ${b.cornerZone}`);
   if (!(b.maskPadMaxFraction > 0 && b.maskPadMaxFraction <= 1)) bad('background.maskPadMaxFraction must be in (0, 1]');
+  if (!(b.bumpMinFraction > 0)) bad('background.bumpMinFraction must be above 0');
+  if (!(b.bumpMinContrastPct >= 0)) bad('background.bumpMinContrastPct must be 0 or more');
   if (o.tileGrid !== null) {
     const [c, r] = o.tileGrid;
     if (!(Number.isInteger(c) && Number.isInteger(r) && c >= 1 && r >= 1 && c * r >= 2 && c <= 64 && r <= 64)) {
