@@ -88,7 +88,7 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
     mask = next;
   }
   if (!fit || !ctx) throw new EvenfieldError('internal', 'mura analysis ran no round');
-  remeasureLargeClouds(ctx, work, fit, mask, opts);
+  const remeasured = remeasureLargeClouds(ctx, work, fit, mask, opts);
 
   // findings: single features, hot-spot arrays, tile seams and steps
   const singles: Finding[] = ctx.found.map((f) => findingOf(ctx!, f, opts));
@@ -123,7 +123,10 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
   const backgroundModel =
     `polynomial surface of order ${fit.order} (Legendre terms) fitted robustly on ${round(fit.cellPx * work.mmPerPx, 2)} mm cells; ` +
     `${round(maskedPct, 1)} % of the panel masked as features; model error ${round(fit.fitErrorPct, 3)} %` +
-    (opts.tileGrid ? `; one level offset per tile (${opts.tileGrid[0]} x ${opts.tileGrid[1]})` : '');
+    (opts.tileGrid ? `; one level offset per tile (${opts.tileGrid[0]} x ${opts.tileGrid[1]})` : '') +
+    (remeasured
+      ? `; ${remeasured} large cloud${remeasured > 1 ? 's' : ''} measured against a surface fitted together with a Gaussian bump of ${remeasured > 1 ? 'their' : 'its'} size (the map shows the common surface)`
+      : '');
 
   const out = new Float32Array(N);
   const bg = new Float32Array(N);
@@ -313,7 +316,7 @@ function featureMask(ctx: Ctx, opts: MuraOptions): Uint8Array {
  * Only the cloud's own figures change: the contrast map and the other findings keep the common surface.
  * Clouds fainter than bumpMinContrastPct are left as they are (see the option).
  */
-function remeasureLargeClouds(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, mask: Uint8Array | null, opts: MuraOptions): void {
+function remeasureLargeClouds(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, mask: Uint8Array | null, opts: MuraOptions): number {
   const shortMm = Math.min(work.w, work.h) * ctx.mmPerPx;
   const large = (f: Found): boolean =>
     f.source === 'blob' &&
@@ -321,7 +324,8 @@ function remeasureLargeClouds(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, ma
     2 * Math.sqrt(f.areaMm2 / Math.PI) >= opts.background.bumpMinFraction * shortMm &&
     Math.abs(f.contrastPct) >= opts.background.bumpMinContrastPct;
   const todo = ctx.found.map((f, index) => ({ f, index })).filter(({ f }) => large(f));
-  if (todo.length === 0) return;
+  if (todo.length === 0) return 0;
+  let count = 0;
   // A cloud a third of the panel across needs no fine pixels: the fits and searches run on the working
   // raster box-averaged to at most REMEASURE_PIXELS, and the region found is carried back.
   const k = Math.max(1, Math.ceil(Math.sqrt((work.w * work.h) / REMEASURE_PIXELS)));
@@ -386,8 +390,12 @@ function remeasureLargeClouds(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, ma
       cy = best.py;
       cPixels = best.pixels;
     }
-    if (got) ctx.found[index] = k === 1 ? got : refined(got, k, work.w, work.h, coarse.w);
+    if (got) {
+      ctx.found[index] = k === 1 ? got : refined(got, k, work.w, work.h, coarse.w);
+      count++;
+    }
   }
+  return count;
 }
 
 /** Largest working raster (pixels) the large clouds are measured again on. */
