@@ -53,7 +53,7 @@ describe('surface with a bump', () => {
 describe('clouds over half the panel short side', () => {
   // a 600 x 340 mm panel with smooth variation up to order 4 (about +-15 %)
   const smooth = [[0, 0.04, -0.08, 0, 0.02], [0.03, 0.01, 0.01], [-0.1, 0.01], [0.01]];
-  const measure = (sigma: number, peak: number, x: number, y: number, seed: number) => {
+  const measure = (sigma: number, peak: number, x: number, y: number, seed: number, pattern: 'gray' | 'black' = 'gray') => {
     const map = synthMap({
       widthMm: 600,
       heightMm: 340,
@@ -63,7 +63,7 @@ describe('clouds over half the panel short side', () => {
       smooth,
       features: [{ kind: 'gauss', xMm: x, yMm: y, sigmaMm: sigma, contrastPct: peak }],
     });
-    const r = analyseMura(map, { pattern: 'gray' });
+    const r = analyseMura(map, { pattern });
     return { ...nearest(r.blobs, x, y)!, model: r.backgroundModel };
   };
 
@@ -91,5 +91,13 @@ describe('clouds over half the panel short side', () => {
     expect(c.polarity).toBe('dark');
     expect(relErr(c.contrastPct, t.contrastPct)).toBeLessThan(0.25);
     expect(relErr(c.areaMm2, t.areaMm2)).toBeLessThan(0.3);
+  });
+
+  it('leaves black fields as they are', () => {
+    // on a black field a broad centre "cloud" is more often the order-2 surface missing the roll-off
+    // (lot study): the same cloud is found but not measured against a bump
+    const c = measure(80, 6, 330, 160, 3, 'black');
+    expect(c.polarity).toBe('bright');
+    expect(c.model).not.toContain('large cloud');
   });
 });
