@@ -7,7 +7,7 @@
 
 import { EvenfieldError } from '../errors.js';
 import type { Blob, MuraResult, PanelMap, Plane } from '../types.js';
-import { fitBackground, type BackgroundFit, type Bump, type WorkRaster } from './background.js';
+import { bumpDistance2, fitBackground, type BackgroundFit, type Bump, type WorkRaster } from './background.js';
 import { buildLevels, detectFeatures, noiseCorrelation } from './detect.js';
 import { classify, round } from './classify.js';
 import { panelEdges, type Ctx, type Found } from './context.js';
@@ -487,13 +487,7 @@ function refined(g: Found, k: number, W: number, H: number, w: number): Found {
 
 /** Within 2.5 sigma of the bump (where a Gaussian is above 4 % of its peak). */
 function withinBump(b: Bump, x: number, y: number): boolean {
-  const dx = x - b.x;
-  const dy = y - b.y;
-  const c = Math.cos(b.angleRad);
-  const s = Math.sin(b.angleRad);
-  const a = (dx * c + dy * s) / b.sLong;
-  const q = (-dx * s + dy * c) / b.sShort;
-  return a * a + q * q <= 6.25;
+  return bumpDistance2(b, x, y) <= 6.25;
 }
 
 /** Contrast averaged over a (2r+1)^2 box, weighted by the data (running sums). */

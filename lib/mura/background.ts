@@ -64,14 +64,19 @@ export interface Bump {
 /** Width scales tried for each bump; the one with the least weighted residual is kept. */
 const BUMP_SCALES = [0.8, 1, 1.25, 1.55, 1.9];
 
-function bumpValue(b: Bump, scale: number, x: number, y: number): number {
+/** Squared distance of (x, y) from the bump's centre in its sigmas (widths times scale). */
+export function bumpDistance2(b: Bump, x: number, y: number, scale = 1): number {
   const dx = x - b.x;
   const dy = y - b.y;
   const c = Math.cos(b.angleRad);
   const s = Math.sin(b.angleRad);
   const a = (dx * c + dy * s) / (b.sLong * scale);
   const q = (-dx * s + dy * c) / (b.sShort * scale);
-  const e = 0.5 * (a * a + q * q);
+  return a * a + q * q;
+}
+
+function bumpValue(b: Bump, scale: number, x: number, y: number): number {
+  const e = 0.5 * bumpDistance2(b, x, y, scale);
   return e > 30 ? 0 : Math.exp(-e);
 }
 
