@@ -408,31 +408,17 @@ const REMEASURE_PIXELS = 250_000;
  *  small gets a bump too narrow the first time). */
 const PASSES = 2;
 
-/** The working raster box-averaged by k (weighted by the data). */
+/** The working raster box-averaged by k (luminance weighted by the data, as workRaster does). */
 function coarsened(work: WorkRaster, k: number): WorkRaster {
-  const w = Math.ceil(work.w / k);
-  const h = Math.ceil(work.h / k);
-  const Y = new Float32Array(w * h);
-  const wt = new Float32Array(w * h);
-  const cells = new Float32Array(w * h);
-  for (let y = 0; y < work.h; y++) {
-    const row = Math.floor(y / k) * w;
-    for (let x = 0; x < work.w; x++) {
-      const j = row + Math.floor(x / k);
-      const q = work.wt[y * work.w + x];
-      cells[j]++;
-      if (q <= 0) continue;
-      Y[j] += q * work.Y[y * work.w + x];
-      wt[j] += q;
-    }
-  }
-  for (let j = 0; j < w * h; j++) {
-    if (wt[j] > 0) Y[j] /= wt[j];
-    wt[j] /= cells[j];
-  }
-  return { w, h, mmPerPx: work.mmPerPx * k, Y, wt };
+  const yw = new Float32Array(work.Y.length);
+  for (let i = 0; i < yw.length; i++) yw[i] = work.wt[i] > 0 ? work.Y[i] * work.wt[i] : 0;
+  const Y = coarsenedPlane(yw, work.w, work.h, k);
+  const wt = coarsenedPlane(work.wt, work.w, work.h, k);
+  for (let j = 0; j < Y.length; j++) Y[j] = wt[j] > 0 ? Y[j] / wt[j] : 0;
+  return { w: Math.ceil(work.w / k), h: Math.ceil(work.h / k), mmPerPx: work.mmPerPx * k, Y, wt };
 }
 
+/** A plane box-averaged by k (plain mean of the pixels each coarse pixel covers). */
 function coarsenedPlane(p: Float32Array, W: number, H: number, k: number): Float32Array {
   const w = Math.ceil(W / k);
   const h = Math.ceil(H / k);
