@@ -317,16 +317,16 @@ function featureMask(ctx: Ctx, opts: MuraOptions): Uint8Array {
  * Clouds fainter than bumpMinContrastPct are left as they are (see the option), and so are black fields.
  */
 function remeasureLargeClouds(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, mask: Uint8Array | null, opts: MuraOptions): number {
+  // Black fields are left as they are: their surface is of order 2 and their level a few code values, so
+  // a broad centre "cloud" there is more often the surface missing the roll-off (seen in the lot study:
+  // a false 2.5 % cloud on a good panel's black field made 3.3 % by a bump)
+  if (ctx.black) return 0;
   const shortMm = Math.min(work.w, work.h) * ctx.mmPerPx;
   const large = (f: Found): boolean =>
     f.source === 'blob' &&
     f.lengthMm < 2 * f.widthMm &&
     2 * Math.sqrt(f.areaMm2 / Math.PI) >= opts.background.bumpMinFraction * shortMm &&
     Math.abs(f.contrastPct) >= opts.background.bumpMinContrastPct;
-  // Black fields are left as they are: their surface is of order 2 and their level a few code values, so
-  // a broad centre "cloud" there is more often the surface missing the roll-off (seen in the lot study:
-  // a false 2.5 % cloud on a good panel's black field made 3.3 % by a bump)
-  if (ctx.black) return 0;
   const todo = ctx.found.map((f, index) => ({ f, index })).filter(({ f }) => large(f));
   if (todo.length === 0) return 0;
   let count = 0;
@@ -453,16 +453,17 @@ function coarsePixels(pixels: Int32Array, W: number, w: number, k: number): Int3
 
 /** A region found on the raster coarsened by k, carried back to the working raster. */
 function refined(g: Found, k: number, W: number, H: number, w: number): Found {
-  const pixels: number[] = [];
+  const pixels = new Int32Array(g.pixels.length * k * k);
+  let n = 0;
   for (let i = 0; i < g.pixels.length; i++) {
     const x = g.pixels[i] % w;
     const y = (g.pixels[i] - x) / w;
-    for (let yy = y * k; yy < Math.min(H, (y + 1) * k); yy++) for (let xx = x * k; xx < Math.min(W, (x + 1) * k); xx++) pixels.push(yy * W + xx);
+    for (let yy = y * k; yy < Math.min(H, (y + 1) * k); yy++) for (let xx = x * k; xx < Math.min(W, (x + 1) * k); xx++) pixels[n++] = yy * W + xx;
   }
   const at = (v: number): number => (v + 0.5) * k - 0.5;
   return {
     ...g,
-    pixels: Int32Array.from(pixels),
+    pixels: pixels.slice(0, n),
     cx: at(g.cx),
     cy: at(g.cy),
     px: at(g.px),

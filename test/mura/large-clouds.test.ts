@@ -1,5 +1,5 @@
-// Large clouds: a surface fitted together with a Gaussian bump, and clouds over half the panel's short
-// side measured against it. Truths are analytical (derived by hand; see helpers.ts for the Gaussian's
+// Large clouds: a surface fitted together with a Gaussian bump, and clouds of about half the panel's
+// short side measured against it. Truths are analytical (derived by hand; see helpers.ts for the Gaussian's
 // half-peak area and mean).
 import { describe, expect, it } from 'vitest';
 import { analyseMura, fitBackground, legendre, resolveMuraOptions, type WorkRaster } from '../../lib/mura/index.js';
@@ -50,7 +50,7 @@ describe('surface with a bump', () => {
   });
 });
 
-describe('clouds over half the panel short side', () => {
+describe('clouds of about half the panel short side', () => {
   // a 600 x 340 mm panel with smooth variation up to order 4 (about +-15 %)
   const smooth = [[0, 0.04, -0.08, 0, 0.02], [0.03, 0.01, 0.01], [-0.1, 0.01], [0.01]];
   const measure = (sigma: number, peak: number, x: number, y: number, seed: number, pattern: 'gray' | 'black' = 'gray') => {
