@@ -45,6 +45,9 @@ export interface SynthSpec {
   level?: number;
   /** smooth variation: S = 1 + sum c[i][j] U^i V^j (c[0][0] ignored) */
   smooth?: number[][];
+  /** roll-off from a peak at (u0, v0) (fractions of the panel, default the centre): S -= loss (d / half
+   *  diagonal)^power, d the distance from the peak in mm */
+  radial?: { loss: number; power: number; u0?: number; v0?: number };
   /** white Gaussian noise, % of the local level per map pixel */
   noisePct?: number;
   seed?: number;
@@ -197,6 +200,10 @@ export function synthMap(spec: SynthSpec): PanelMap {
       const U = (2 * x) / W - 1;
       let s = 1;
       for (let a = 0; a < c.length; a++) for (let b = 0; b < c[a].length; b++) if (a + b > 0) s += c[a][b] * U ** a * V ** b;
+      if (spec.radial) {
+        const { loss, power, u0 = 0.5, v0 = 0.5 } = spec.radial;
+        s -= loss * (Math.hypot(x - u0 * W, y - v0 * H) / Math.hypot(W / 2, H / 2)) ** power;
+      }
       let f = 1;
       for (const ft of feats) f += featureContrast(ft, x, y, W, H);
       Y[j * width + i] = level * s * Math.max(0, f) * (1 + noise * rng.gauss());

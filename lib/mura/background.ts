@@ -42,6 +42,8 @@ export interface BackgroundFit {
   /** robust sigma of the cell residuals (%) after the fit, noise of the cell means removed: the
    *  background model's own error, which does not average down with feature area */
   fitErrorPct: number;
+  /** the cells' own noise (%, median over the cells' photo noise) */
+  cellNoisePct: number;
   /** per-tile relative level offsets (%), row by row, mean 0; null without a tile grid */
   tileOffsetsPct: Float64Array | null;
   /** the bumps fitted with the surface, each with the width scale chosen and its fitted amplitude
@@ -87,6 +89,11 @@ export function legendre(n: number, x: number, out: Float64Array): void {
   for (let k = 1; k < n; k++) out[k + 1] = ((2 * k + 1) * x * out[k] - k * out[k - 1]) / (k + 1);
 }
 
+/** Powers of the radial terms (distance from a given centre) a fit may add to the polynomial: with the
+ *  polynomial's even powers they follow a roll-off whose profile is not a polynomial, e.g. one falling
+ *  as the 1.5th power of the distance from its peak (sharper at the peak than any low-order surface). */
+const RADIAL_POWERS = [1, 3];
+
 function termList(order: number): [number, number][] {
   const t: [number, number][] = [];
   for (let s = 0; s <= order; s++) for (let j = 0; j <= s; j++) t.push([s - j, j]);
@@ -117,6 +124,7 @@ export function fitBackground(
   tileGrid: [number, number] | null,
   brightOnly: boolean,
   bumps: { list: Bump[]; level: Float32Array; maxSigma: number } | null = null,
+  radial: { x: number; y: number } | null = null,
 ): BackgroundFit {
   const { w, h } = work;
   const longMm = Math.max(w, h) * work.mmPerPx;
@@ -177,7 +185,11 @@ export function fitBackground(
   const terms = termList(order);
   const bumpList = bumps?.list ?? [];
   const nBase = terms.length + nTileTerms;
-  const nTerms = nBase + bumpList.length;
+  const nRadial = radial ? RADIAL_POWERS.length : 0;
+  const nTerms = nBase + bumpList.length + nRadial;
+  // radial terms: odd powers of the distance from a centre, over the half-diagonal
+  const radialScale = 1 / Math.hypot(w / 2, h / 2);
+  const radialAt = (x: number, y: number, t: number): number => Math.hypot(x - radial!.x, y - radial!.y) ** RADIAL_POWERS[t] * radialScale ** RADIAL_POWERS[t];
   const bumpScale = bumpList.map(() => 1);
   const levelAt = (c: Cell): number => {
     if (!bumps) return 0;
@@ -196,6 +208,7 @@ export function fitBackground(
     for (let t = 0; t < terms.length; t++) out[t] = px[terms[t][0]] * py[terms[t][1]];
     for (let t = 1; t < nTiles; t++) out[terms.length + t - 1] = c.tile === t ? 1 : 0;
     for (let k = 0; k < bumpList.length; k++) setBump(k, c, out);
+    for (let t = 0; t < nRadial; t++) out[nBase + bumpList.length + t] = radialAt(c.x, c.y, t);
   };
   const design = cells.map((c) => {
     const r = new Float64Array(nTerms);
@@ -368,6 +381,10 @@ export function fitBackground(
       B[row + x] = s;
     }
   }
+  for (let t = 0; t < nRadial; t++) {
+    const a = coef[nBase + bumpList.length + t];
+    for (let y = 0; y < h; y++) for (let x = 0; x < w; x++) B[y * w + x] += a * radialAt(x, y, t);
+  }
 
   if (tileOffsetsPct && tileGrid) {
     for (let t = 0; t < nTiles; t++) {
@@ -395,6 +412,7 @@ export function fitBackground(
     cellsClipped: nClipped,
     cellsMasked,
     fitErrorPct,
+    cellNoisePct: noiseLevel,
     tileOffsetsPct,
     bumps: bumpList.map((b, k) => ({ ...b, sLong: b.sLong * bumpScale[k], sShort: b.sShort * bumpScale[k], amplitude: coef[nBase + k] })),
   };
