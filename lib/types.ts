@@ -166,6 +166,16 @@ export interface MuraResult {
   /** smallest resolvable contrast (%) at a few feature diameters, mm -> % */
   resolvableContrastPct: Record<string, number>;
   backgroundModel: string;
+  /** candidates found and then left out, with the reason (absent in results written before it) */
+  leftOut?: LeftOutFinding[];
+}
+
+/** A cloud left out of the findings because a radial roll-off of the panel explained it better. */
+export interface LeftOutFinding extends Blob {
+  reason: 'roll-off';
+  /** model error (%) within three radii of it: with a radial roll-off about it, and with a cloud there */
+  modelErrorRollOffPct: number;
+  modelErrorCloudPct: number;
 }
 
 export interface FalloffRecord {

@@ -6,7 +6,7 @@
 //   -> kind, contrast, area, SEMU -> hot-spot arrays, tile seams -> ranked list.
 
 import { EvenfieldError } from '../errors.js';
-import type { Blob, MuraResult, PanelMap, Plane } from '../types.js';
+import type { Blob, LeftOutFinding, MuraResult, PanelMap, Plane } from '../types.js';
 import { bumpDistance2, fitBackground, type BackgroundFit, type Bump, type WorkRaster } from './background.js';
 import { buildLevels, detectFeatures, noiseCorrelation } from './detect.js';
 import { classify, round } from './classify.js';
@@ -89,7 +89,8 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
   }
   if (!fit || !ctx) throw new EvenfieldError('internal', 'mura analysis ran no round');
   const remeasured = remeasureLargeClouds(ctx, work, fit, mask, opts);
-  const rollOff = dropRollOffClouds(ctx, work, fit, opts);
+  const droppedClouds = dropRollOffClouds(ctx, work, fit, opts);
+  const rollOff = droppedClouds.length;
 
   // findings: single features, hot-spot arrays, tile seams and steps
   const singles: Finding[] = ctx.found.map((f) => findingOf(ctx!, f, opts));
@@ -138,8 +139,15 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
     out[i] = work.wt[i] > 0 ? C[i] : NaN;
     bg[i] = work.wt[i] > 0 ? fit.B[i] : NaN;
   }
+  const leftOut: LeftOutFinding[] = droppedClouds.map((d, k) => ({
+    ...toBlob(findingOf(ctx!, d.f, opts), k + 1, map, factor),
+    reason: 'roll-off',
+    modelErrorRollOffPct: round(d.errRadial, 4),
+    modelErrorCloudPct: round(d.errCloud, 4),
+  }));
   return {
     blobs,
+    leftOut,
     maxSemu: blobs.length ? blobs[0].semu : 0,
     noiseFloorPct: round(noisePct, 5),
     resolvableContrastPct: resolvable,
@@ -447,9 +455,9 @@ function findAgain(ctx: Ctx, coarse: WorkRaster, fit2: BackgroundFit, edges: Ret
  * lost real clouds (19 of 102 features in the accuracy study when every cloud was tested), since radial
  * terms about a masked centre also follow a cloud's flanks.
  * Runs after the large-cloud re-measurement, so a large cloud is judged by its contrast against its bump.
- * Returns the number left out.
+ * Returns the clouds left out, with the two model errors.
  */
-function dropRollOffClouds(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, opts: MuraOptions): number {
+function dropRollOffClouds(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, opts: MuraOptions): { f: Found; errRadial: number; errCloud: number }[] {
   // where the surface peaks and dips inside the panel, and how far it falls
   let hi = -Infinity;
   let lo = Infinity;
@@ -467,7 +475,7 @@ function dropRollOffClouds(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, opts:
       iLo = i;
     }
   }
-  if (!(hi > 0) || iHi < 0) return 0;
+  if (!(hi > 0) || iHi < 0) return [];
   const range = (hi - lo) / hi;
   const inside = (i: number): boolean => {
     const x = i % work.w;
@@ -483,13 +491,14 @@ function dropRollOffClouds(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, opts:
     if (Math.abs(f.contrastPct) > opts.background.rollOffMaxShare * 100 * range) return false;
     return extrema.some(([x, y]) => Math.hypot(f.px - x, f.py - y) * ctx.mmPerPx <= r);
   };
-  if (!ctx.found.some(isCandidate)) return 0;
+  if (!ctx.found.some(isCandidate)) return [];
   const c = coarseOf(work, null);
   const { k, raster } = c;
   const level = k === 1 ? fit.B : coarsenedPlane(fit.B, work.w, work.h, k);
   const maxSigma = opts.maxFeatureMm / (2.3548 * raster.mmPerPx);
-  const keep = ctx.found.map((f) => {
-    if (!isCandidate(f)) return true;
+  const dropped: { f: Found; errRadial: number; errCloud: number }[] = [];
+  for (const f of ctx.found) {
+    if (!isCandidate(f)) continue;
     const cx = (f.px + 0.5) / k - 0.5;
     const cy = (f.py + 0.5) / k - 0.5;
     // the other features masked as in the rounds, this one not: both models must account for it
@@ -506,11 +515,10 @@ function dropRollOffClouds(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, opts:
     if (process.env.MURA_DBG) {
       console.log(`  roll-off test (${(f.cx * ctx.mmPerPx).toFixed(0)},${(f.cy * ctx.mmPerPx).toFixed(0)}) C ${f.contrastPct.toFixed(3)} range ${(100 * range).toFixed(1)} %: model error near it: radial ${errRadial.toFixed(4)} cloud ${errCloud.toFixed(4)}`);
     }
-    return !(errRadial < opts.background.rollOffMaxErrorRatio * errCloud);
-  });
-  const before = ctx.found.length;
-  ctx.found = ctx.found.filter((_, i) => keep[i]);
-  return before - ctx.found.length;
+    if (errRadial < opts.background.rollOffMaxErrorRatio * errCloud) dropped.push({ f, errRadial, errCloud });
+  }
+  ctx.found = ctx.found.filter((f) => !dropped.some((d) => d.f === f));
+  return dropped;
 }
 
 /** The roll-off test scores the two surfaces over a disc of this many times the cloud's equivalent

@@ -1,7 +1,7 @@
 // The per-panel PDF report: verdict and reasons first, then the evidence per pattern, then the
 // method and traceability, then the cautions. Pure: returns the bytes; the caller writes them.
 
-import type { Blob, GridPoint, PhotoResult, Plane, Reason } from '../types.js';
+import type { Blob, GridPoint, LeftOutFinding, PhotoResult, Plane, Reason } from '../types.js';
 import { EvenfieldError } from '../errors.js';
 import { worstMargin } from '../judge/index.js';
 import { COLOUR_MAPS, type ColourMap, falseColour } from './colourmaps.js';
@@ -771,14 +771,26 @@ function drawMura(ctx: Ctx, p: PreparedPhoto): void {
   if (block) drawMapBlock(ctx, block);
   if (ph.blobs.length === 0) {
     flow.text('No mura was found above the detection threshold.', { size: 9, after: 6 });
-    return;
+  } else {
+    drawTable(flow, columns, rows, opts);
+    flow.text('Contrast is the signed mean over the half-peak region (negative = darker than the background). Blobs are numbered in order of SEMU, as in the reasons.', {
+      size: 7,
+      colour: MUTED,
+      after: 6,
+    });
   }
-  drawTable(flow, columns, rows, opts);
-  flow.text('Contrast is the signed mean over the half-peak region (negative = darker than the background). Blobs are numbered in order of SEMU, as in the reasons.', {
-    size: 7,
-    colour: MUTED,
-    after: 6,
-  });
+  for (const t of leftOutLines(m.leftOut ?? [])) flow.text(t, { size: 7.6, after: 4 });
+}
+
+/** One sentence per candidate left out of the findings, with the figures the decision rested on. */
+export function leftOutLines(list: LeftOutFinding[]): string[] {
+  return list.map(
+    (b) =>
+      `Left out as the panel's own roll-off, not mura: a ${b.polarity} cloud (${placeWords(b.u, b.v)}; x ${fmtMm(b.xMm)}, y ${fmtMm(b.yMm)} mm), ` +
+      `${fmtMm(b.areaMm2)} mm\u00b2, mean contrast ${fmtContrast(b.contrastPct)} %, SEMU ${fmtSemu(b.semu)} if it were counted. ` +
+      `It sits on the background's peak or dip; within three radii of it a radial roll-off about it leaves a model error of ` +
+      `${b.modelErrorRollOffPct.toFixed(3)} %, a cloud there ${b.modelErrorCloudPct.toFixed(3)} %. The contrast map still shows it.`,
+  );
 }
 
 function drawProfiles(ctx: Ctx, p: PreparedPhoto): void {

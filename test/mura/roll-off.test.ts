@@ -4,6 +4,7 @@
 // the Gaussian's half-peak area and mean (helpers.ts, derived by hand).
 import { describe, expect, it } from 'vitest';
 import { analyseMura, fitBackground, legendre, resolveMuraOptions, type WorkRaster } from '../../lib/mura/index.js';
+import { leftOutLines } from '../../lib/report/panel.js';
 import { synthMap } from '../../scripts/mura-synth.js';
 import { gaussTruth, nearest, relErr } from './helpers.js';
 
@@ -60,8 +61,17 @@ describe('sharp-peaked and flat-topped roll-offs', () => {
       const map = synthMap({ widthMm: W, heightMm: H, pxPerMm: 2, noisePct: 0.4, seed: 71, radial: c, level: c.pattern === 'black' ? 0.002 : 0.2 });
       const r = analyseMura(map, { pattern: c.pattern });
       expect(r.blobs.filter((b) => b.kind === 'cloud')).toEqual([]);
-      // the report's description of the background says a cloud was left out, and why
+      // the report's description of the background says a cloud was left out, and why; results.json lists
+      // it with the two model errors the choice rested on, and the report says so in words
       expect(r.backgroundModel).toMatch(/1 faint cloud on the surface's peak or dip left out: a radial roll-off/);
+      expect(r.leftOut).toHaveLength(1);
+      const out = r.leftOut![0];
+      expect(out.kind).toBe('cloud');
+      expect(Math.hypot(out.u - c.u0, out.v - c.v0)).toBeLessThan(0.1);
+      expect(out.modelErrorRollOffPct).toBeLessThan(out.modelErrorCloudPct);
+      const line = leftOutLines(r.leftOut!)[0];
+      expect(line).toContain(`mean contrast ${out.contrastPct.toFixed(2)} %`);
+      expect(line).toContain(`roll-off about it leaves a model error of ${out.modelErrorRollOffPct.toFixed(3)} %`);
       expect(r.blobs.filter((b) => b.kind !== 'edge-glow' && b.kind !== 'corner-glow' && b.semu >= 1)).toEqual([]);
     });
   }
