@@ -43,9 +43,9 @@ export interface BackgroundOptions {
    *  surface missing a sharp-peaked roll-off, which a bump would fit and so make stronger */
   bumpMinContrastPct: number;
   /** a cloud centred on the surface's peak or dip inside the panel, whose contrast is at most this share
-   *  of the surface's whole fall (max - min over max; default 0.1), is tested against a surface with a
-   *  radial roll-off about it and left out if it is not found again (see dropRollOffClouds in
-   *  analyse.ts). The false "clouds" a sharp-peaked or flat-topped roll-off leaves measured 2-6 % of
+   *  of the surface's whole fall (max - min over max; default 0.1), is explained both as a radial
+   *  roll-off about it and as a cloud, and left out if the roll-off explains it better (see
+   *  dropRollOffClouds in analyse.ts). The false "clouds" a sharp-peaked or flat-topped roll-off leaves measured 2-6 % of
    *  its fall (generated panels and photos, 19-44 % fall). 0 turns the test off. */
   rollOffMaxShare: number;
   /** ...and it is left out when, within 3 times its radius, the surface with a radial roll-off about it
