@@ -521,6 +521,10 @@ function dropRollOffClouds(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, opts:
   return dropped;
 }
 
+/** An edge glow's figures are carried to the edge by at most this factor (a glow so steep that its
+ *  half-peak depth is under 0.7 of the strip left out is measured at most twice as strong as seen). */
+const GLOW_EXTRAPOLATION_MAX = 2;
+
 /** The roll-off test scores the two surfaces over a disc of this many times the cloud's equivalent
  *  radius about its centre, where they differ. */
 const LOCAL_REACH = 3;
@@ -776,6 +780,15 @@ function sameMask(a: Uint8Array, b: Uint8Array): boolean {
 
 function findingOf(ctx: Ctx, f: Found, opts: MuraOptions): Finding {
   const k = classify(ctx, f);
+  // An edge glow peaks at the edge itself, but the map starts edgeBorderMm inside it: carried across
+  // that strip along the exponential fall its half-peak depth gives (depth = decay length x ln 2; the
+  // half-peak region keeps its width, so its area stands and its mean scales as its peak does)
+  let gain = 1;
+  const depthMm = typeof k.detail?.depthMm === 'number' ? k.detail.depthMm : 0;
+  if (k.kind === 'edge-glow' && opts.edgeBorderMm > 0 && depthMm > 0) {
+    gain = Math.min(Math.exp((opts.edgeBorderMm * Math.LN2) / depthMm), GLOW_EXTRAPOLATION_MAX);
+  }
+  const contrastPct = f.contrastPct * gain;
   return {
     kind: k.kind,
     polarity: f.sign > 0 ? 'bright' : 'dark',
@@ -783,11 +796,12 @@ function findingOf(ctx: Ctx, f: Found, opts: MuraOptions): Finding {
     cy: f.cy,
     bbox: f.bbox,
     areaMm2: f.areaMm2,
-    contrastPct: f.contrastPct,
-    peakContrastPct: f.peakContrastPct,
-    semu: semu(f.contrastPct, f.areaMm2, opts.semuConstants),
+    contrastPct,
+    peakContrastPct: f.peakContrastPct * gain,
+    semu: semu(contrastPct, f.areaMm2, opts.semuConstants),
     detail: {
       ...k.detail,
+      ...(gain !== 1 ? { seenPeakPct: round(f.peakContrastPct, 3), carriedToEdgeMm: round(opts.edgeBorderMm, 2) } : {}),
       significanceSigma: round(Math.min(f.zNoise, 1e6), 1),
       ...(f.pedestalPct !== 0 ? { surroundPct: round(f.pedestalPct, 3) } : {}),
     },

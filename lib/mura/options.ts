@@ -89,6 +89,11 @@ export interface MuraOptions {
    *  block wide. A finding must reach across two blocks along its longer dimension to be told from
    *  that. */
   jpegBlockMm: number | null;
+  /** width (mm) of the strip along the panel's edges left out of the map before the analysis (the
+   *  edge's transition from bezel to panel), default 0. An edge glow peaks at the edge itself: its
+   *  contrast and peak are carried across this strip along the exponential fall its half-peak depth
+   *  gives (at most GLOW_EXTRAPOLATION_MAX times; see findingOf in analyse.ts) */
+  edgeBorderMm: number;
   /** contrast (%) of the smallest level step of the 8-bit photo as decoded at the panel's level (one code
    *  value; for a JPEG decoded in float, its DC quantiser over 8 of one: see CodeLevel.stepCodes), or null
    *  (default; linear or 16-bit input). Without noise enough to dither it, 8-bit coding turns a smooth
@@ -161,6 +166,7 @@ export function resolveMuraOptions(input: MuraOptionsInput): MuraOptions {
     hotspotMinCount: input.hotspotMinCount ?? 6,
     maxWorkPixels: input.maxWorkPixels ?? 4e6,
     jpegBlockMm: input.jpegBlockMm ?? null,
+    edgeBorderMm: input.edgeBorderMm ?? 0,
     codeStepPct: input.codeStepPct ?? null,
     codeStepFactor: input.codeStepFactor ?? 1,
     jpegPlateauShare: input.jpegPlateauShare ?? 0.6,
@@ -186,6 +192,7 @@ function positive(name: string, v: number): void {
 
 function validate(o: MuraOptions): void {
   positive('minFeatureMm', o.minFeatureMm);
+  if (!(o.edgeBorderMm >= 0 && Number.isFinite(o.edgeBorderMm))) bad(`edgeBorderMm must be 0 or more, got ${o.edgeBorderMm}`);
   positive('maxFeatureMm', o.maxFeatureMm);
   if (o.maxFeatureMm < 2 * o.minFeatureMm) bad('maxFeatureMm must be at least twice minFeatureMm');
   positive('thresholdSigma', o.thresholdSigma);

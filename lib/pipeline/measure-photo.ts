@@ -336,7 +336,7 @@ async function measureInner(
       codeStepPct !== null && centreY !== undefined && centreY > 0 ? { centreY, gain: gainGrid, stepCodes: result.decode?.levelStepCodes ?? 1 } : null;
     const mura = analyseMura(
       { ...map, valid: withoutBorder(map.valid, map.width, map.height, border) },
-      { jpegBlockMm, codeStepPct, codeLevel, ...opts.muraOptions, pattern: opts.pattern },
+      { jpegBlockMm, codeStepPct, codeLevel, edgeBorderMm: border / map.pxPerMm, ...opts.muraOptions, pattern: opts.pattern },
     );
     if (codeStepPct !== null && codeStepPct > 1.5) {
       result.warnings.push(

@@ -29,6 +29,38 @@ describe('glow on black fields', () => {
     expect(r.notes.some((n) => /extrapolation/.test(n))).toBe(true);
   });
 
+  it('carries an edge glow measured inside a left-out border strip to the edge', () => {
+    // exp(-x / 14) with 100 % at the edge; the outer 3 mm of the map left out (as the pipeline does for
+    // the bezel transition): seen from x = 3 mm, the peak is exp(-3 / 14) = 0.807 of the edge's and the
+    // mean over the half-peak strip 0.7213 of that; carried to the edge, 100 % and 72.1 % (integral of exp
+    // by hand). Tolerance on the mean: issue 4's 25 %
+    const decay = 14;
+    const border = 3;
+    const map = synthMap({ widthMm: W, heightMm: H, pxPerMm: 2, level: 0.002, noisePct: 3, seed: 25, smooth: [[0, 0.02], [0.03], [-0.05]], features: [{ kind: 'edge-glow', edge: 'left', decayMm: decay, contrastPct: 100 }] });
+    const b = border * 2;
+    for (let y = 0; y < map.height; y++) for (let x = 0; x < map.width; x++) {
+      if (x < b || y < b || x >= map.width - b || y >= map.height - b) map.valid[y * map.width + x] = 0;
+    }
+    const seen = analyseMura(map, { pattern: 'black' }).blobs[0];
+    const carried = analyseMura(map, { pattern: 'black', edgeBorderMm: border }).blobs[0];
+    expect(seen.kind).toBe('edge-glow');
+    expect(carried.kind).toBe('edge-glow');
+    // the gain is exp(border ln2 / depth) for the half-peak depth found (an exponential halves over
+    // decay x ln 2)
+    const depth = seen.detail.depthMm as number;
+    expect(Math.abs(depth - decay * Math.LN2)).toBeLessThan(1);
+    expect(carried.peakContrastPct / seen.peakContrastPct).toBeCloseTo(Math.exp((border * Math.LN2) / depth), 3);
+    // seen: 29 % under the edge's 100 % (19 % the strip, the rest the order-2 black surface lifted under
+    // the glow); carried: within 15 %
+    expect(Math.abs(seen.peakContrastPct - 100) / 100).toBeGreaterThan(0.2);
+    expect(Math.abs(carried.peakContrastPct - 100) / 100).toBeLessThan(0.15);
+    expect(Math.abs(carried.contrastPct - 72.13) / 72.13).toBeLessThan(0.25);
+    // the region keeps its width, so its area; the figure seen is kept in the detail
+    expect(carried.areaMm2).toBe(seen.areaMm2);
+    expect(carried.detail.seenPeakPct).toBeCloseTo(seen.peakContrastPct, 2);
+    expect(carried.detail.carriedToEdgeMm).toBe(border);
+  });
+
   it('finds a glow patch on part of an edge and a corner glow, each in its place', () => {
     const r = run(
       [
