@@ -698,6 +698,9 @@ const DETAIL_WORDS: Record<string, (v: string) => string> = {
   seam: (v) => `seam at ${v}`,
   at: (v) => `at ${v} of the edge`,
   form: (v) => v,
+  seenPeakPct: (v) => `peak ${v} % where the map begins`,
+  carriedToEdgeMm: (v) => `carried ${v} mm out to the edge`,
+  surroundPct: (v) => `on a surround of ${v} %`,
 };
 
 function blobKind(b: Blob): string {

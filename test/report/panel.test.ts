@@ -80,6 +80,13 @@ describe('per-panel report (three patterns, fabricated test data)', () => {
     }
   });
 
+  it('describes the details of each blob in words, not by their field names', () => {
+    // an edge glow carries its depth, the peak seen where the map begins and the strip it was carried over
+    const t = flat(text);
+    expect(t).toMatch(/reaching 9\.20* mm in, peak 12\.50* % where the map begins, carried 2\.560* mm out to the edge/);
+    for (const key of ['seenPeakPct', 'carriedToEdgeMm', 'depthMm', 'surroundPct']) expect(t).not.toContain(key);
+  });
+
   it('says next to the verdict that it is a camera estimate, and has method, hashes and cautions', () => {
     const pages = text.split('\f');
     expect(flat(pages[0]!)).toMatch(/Camera-based estimate[^]*not with a calibrated photometer/);
