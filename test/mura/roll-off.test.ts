@@ -79,22 +79,26 @@ describe('sharp-peaked and flat-topped roll-offs', () => {
 
 // guards: the test must not take real clouds at a panel's peak for a roll-off
 describe('real clouds with the roll-off test', () => {
-  it('keeps a cloud at the peak of a smooth panel, with its contrast and area', () => {
-    // sigma 25 mm (FWHM 59 mm), +5 % peak at the centre of a quadratic roll-off: half-peak area
-    // pi 2 ln2 sigma², mean contrast peak / (2 ln 2) (helpers.ts)
-    const sigma = 25;
+  // a Gaussian cloud of sigma 25 mm (FWHM 59 mm), +5 % peak, at the centre of the panel, on the
+  // smooth variation given; the cloud found nearest the centre
+  const SIGMA = 25;
+  const cloudAtCentre = (seed: number, variation: { smooth?: number[][]; radial?: { loss: number; power: number } }) => {
     const map = synthMap({
       widthMm: W,
       heightMm: H,
       pxPerMm: 2,
       noisePct: 0.4,
-      seed: 72,
-      smooth: [[0, 0, -0.08], [0], [-0.12]],
-      features: [{ kind: 'gauss', xMm: W / 2, yMm: H / 2, sigmaMm: sigma, contrastPct: 5 }],
+      seed,
+      ...variation,
+      features: [{ kind: 'gauss', xMm: W / 2, yMm: H / 2, sigmaMm: SIGMA, contrastPct: 5 }],
     });
-    const r = analyseMura(map, { pattern: 'gray' });
-    const b = nearest(r.blobs, W / 2, H / 2);
-    const truth = gaussTruth(sigma, 5);
+    return nearest(analyseMura(map, { pattern: 'gray' }).blobs, W / 2, H / 2);
+  };
+
+  it('keeps a cloud at the peak of a smooth panel, with its contrast and area', () => {
+    // on a quadratic roll-off: half-peak area pi 2 ln2 sigma², mean contrast peak / (2 ln 2) (helpers.ts)
+    const b = cloudAtCentre(72, { smooth: [[0, 0, -0.08], [0], [-0.12]] });
+    const truth = gaussTruth(SIGMA, 5);
     expect(b?.kind).toBe('cloud');
     // issue 4's tolerances: contrast within 25 %, area within 30 %
     expect(relErr(b!.contrastPct, truth.contrastPct)).toBeLessThan(0.25);
@@ -102,18 +106,7 @@ describe('real clouds with the roll-off test', () => {
   });
 
   it('keeps a cloud standing at the peak of a sharp-peaked roll-off', () => {
-    const sigma = 25;
-    const map = synthMap({
-      widthMm: W,
-      heightMm: H,
-      pxPerMm: 2,
-      noisePct: 0.4,
-      seed: 73,
-      radial: { loss: 0.3, power: 1.5 },
-      features: [{ kind: 'gauss', xMm: W / 2, yMm: H / 2, sigmaMm: sigma, contrastPct: 5 }],
-    });
-    const r = analyseMura(map, { pattern: 'gray' });
-    const b = nearest(r.blobs, W / 2, H / 2);
+    const b = cloudAtCentre(73, { radial: { loss: 0.3, power: 1.5 } });
     expect(b?.kind).toBe('cloud');
     expect(b!.contrastPct).toBeGreaterThan(0);
   });
