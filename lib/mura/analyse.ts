@@ -521,8 +521,8 @@ function dropRollOffClouds(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, opts:
   return dropped;
 }
 
-/** An edge glow's figures are carried to the edge by at most this factor (a glow so steep that its
- *  half-peak depth is under 0.7 of the strip left out is measured at most twice as strong as seen). */
+/** A glow's figures are carried to its edge or corner by at most this factor (an edge glow so steep
+ *  that its half-peak depth is under the strip left out is measured at most twice as strong as seen). */
 const GLOW_EXTRAPOLATION_MAX = 2;
 
 /** The roll-off test scores the two surfaces over a disc of this many times the cloud's equivalent
@@ -783,11 +783,22 @@ function findingOf(ctx: Ctx, f: Found, opts: MuraOptions): Finding {
   // An edge glow peaks at the edge itself, but the map starts edgeBorderMm inside it: carried across
   // that strip along the exponential fall its half-peak depth gives (depth = decay length x ln 2; the
   // half-peak region keeps its width, so its area stands and its mean scales as its peak does)
+  // A corner glow is seen from the strip's inner corner, b sqrt 2 from the panel's corner; falling as
+  // exp(-d / decay) with d from the corner, it halves its seen peak at d = b sqrt 2 + decay ln 2, which
+  // meets the strip's edge at its reach (from the strip) plus b along it. Its peak and mean are carried
+  // the same way; its area is left as seen (the half-peak region of a corner's fall is not the seen one
+  // moved, and the difference is under the strip's width along two edges).
+  const b = opts.edgeBorderMm;
   let gain = 1;
   const depthMm = typeof k.detail?.depthMm === 'number' ? k.detail.depthMm : 0;
-  if (k.kind === 'edge-glow' && opts.edgeBorderMm > 0 && depthMm > 0) {
-    gain = Math.min(Math.exp((opts.edgeBorderMm * Math.LN2) / depthMm), GLOW_EXTRAPOLATION_MAX);
+  const reachMm = typeof k.detail?.reachMm === 'number' ? k.detail.reachMm : 0;
+  if (k.kind === 'edge-glow' && b > 0 && depthMm > 0) {
+    gain = Math.exp((b * Math.LN2) / depthMm);
+  } else if (k.kind === 'corner-glow' && b > 0 && reachMm > 0) {
+    const decay = (Math.hypot(reachMm + b, b) - b * Math.SQRT2) / Math.LN2;
+    if (decay > 0) gain = Math.exp((b * Math.SQRT2) / decay);
   }
+  gain = Math.min(gain, GLOW_EXTRAPOLATION_MAX);
   const contrastPct = f.contrastPct * gain;
   return {
     kind: k.kind,

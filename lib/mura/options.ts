@@ -90,9 +90,9 @@ export interface MuraOptions {
    *  that. */
   jpegBlockMm: number | null;
   /** width (mm) of the strip along the panel's edges left out of the map before the analysis (the
-   *  edge's transition from bezel to panel), default 0. An edge glow peaks at the edge itself: its
-   *  contrast and peak are carried across this strip along the exponential fall its half-peak depth
-   *  gives (at most GLOW_EXTRAPOLATION_MAX times; see findingOf in analyse.ts) */
+   *  edge's transition from bezel to panel), default 0. Glow peaks at the edge or corner itself: an edge
+   *  or corner glow's contrast and peak are carried across this strip along the exponential fall its
+   *  half-peak depth or reach gives (at most GLOW_EXTRAPOLATION_MAX times; see findingOf in analyse.ts) */
   edgeBorderMm: number;
   /** contrast (%) of the smallest level step of the 8-bit photo as decoded at the panel's level (one code
    *  value; for a JPEG decoded in float, its DC quantiser over 8 of one: see CodeLevel.stepCodes), or null

@@ -61,6 +61,32 @@ describe('glow on black fields', () => {
     expect(carried.detail.carriedToEdgeMm).toBe(border);
   });
 
+  it('carries a corner glow measured inside the left-out border strips to the corner', () => {
+    // exp(-d / 15), d from the top-right corner, 100 % there; the outer 3 mm of the map left out: the
+    // nearest pixel seen is 3 sqrt 2 mm from the corner, exp(-4.24 / 15) = 0.754 of the corner's peak;
+    // its seen peak halves at d = 4.24 + 15 ln2 = 14.64 mm, which meets the strip's edge
+    // sqrt(14.64² - 3²) - 3 = 11.33 mm along it (hand-worked)
+    const border = 3;
+    const map = synthMap({ widthMm: W, heightMm: H, pxPerMm: 2, level: 0.002, noisePct: 3, seed: 26, smooth: [[0, 0.02], [0.03], [-0.05]], features: [{ kind: 'corner-glow', corner: 'top-right', decayMm: 15, contrastPct: 100 }] });
+    const b = border * 2;
+    for (let y = 0; y < map.height; y++) for (let x = 0; x < map.width; x++) {
+      if (x < b || y < b || x >= map.width - b || y >= map.height - b) map.valid[y * map.width + x] = 0;
+    }
+    const seen = analyseMura(map, { pattern: 'black' }).blobs[0];
+    const carried = analyseMura(map, { pattern: 'black', edgeBorderMm: border }).blobs[0];
+    expect(seen.kind).toBe('corner-glow');
+    expect(carried.kind).toBe('corner-glow');
+    const reach = seen.detail.reachMm as number;
+    expect(Math.abs(reach - 11.33)).toBeLessThan(1.5);
+    const decay = (Math.hypot(reach + border, border) - border * Math.SQRT2) / Math.LN2;
+    expect(carried.peakContrastPct / seen.peakContrastPct).toBeCloseTo(Math.exp((border * Math.SQRT2) / decay), 3);
+    expect(Math.abs(carried.peakContrastPct - 100)).toBeLessThan(Math.abs(seen.peakContrastPct - 100));
+    // seen: 31 % under the corner's 100 % (25 % the strips, the rest the black surface lifted under the
+    // glow); carried: within 15 %
+    expect(Math.abs(seen.peakContrastPct - 100) / 100).toBeGreaterThan(0.2);
+    expect(Math.abs(carried.peakContrastPct - 100) / 100).toBeLessThan(0.15);
+  });
+
   it('finds a glow patch on part of an edge and a corner glow, each in its place', () => {
     const r = run(
       [
