@@ -13,6 +13,17 @@ function run(features: SynthFeature[], seed: number, pattern: 'black' | 'gray' =
   return analyseMura(map, { pattern });
 }
 
+/** A glow on a black map whose outer `border` mm are left out (as the pipeline does for the bezel
+ *  transition), analysed without and with the strip's width given: its first finding each time. */
+function seenAndCarried(glow: SynthFeature, seed: number, border: number) {
+  const map = synthMap({ widthMm: W, heightMm: H, pxPerMm: 2, level: 0.002, noisePct: 3, seed, smooth: [[0, 0.02], [0.03], [-0.05]], features: [glow] });
+  const b = border * map.pxPerMm;
+  for (let y = 0; y < map.height; y++) for (let x = 0; x < map.width; x++) {
+    if (x < b || y < b || x >= map.width - b || y >= map.height - b) map.valid[y * map.width + x] = 0;
+  }
+  return { seen: analyseMura(map, { pattern: 'black' }).blobs[0], carried: analyseMura(map, { pattern: 'black', edgeBorderMm: border }).blobs[0] };
+}
+
 describe('glow on black fields', () => {
   it('finds light along a whole edge as edge glow on that edge', () => {
     const decay = 12;
@@ -36,13 +47,7 @@ describe('glow on black fields', () => {
     // by hand). Tolerance on the mean: issue 4's 25 %
     const decay = 14;
     const border = 3;
-    const map = synthMap({ widthMm: W, heightMm: H, pxPerMm: 2, level: 0.002, noisePct: 3, seed: 25, smooth: [[0, 0.02], [0.03], [-0.05]], features: [{ kind: 'edge-glow', edge: 'left', decayMm: decay, contrastPct: 100 }] });
-    const b = border * 2;
-    for (let y = 0; y < map.height; y++) for (let x = 0; x < map.width; x++) {
-      if (x < b || y < b || x >= map.width - b || y >= map.height - b) map.valid[y * map.width + x] = 0;
-    }
-    const seen = analyseMura(map, { pattern: 'black' }).blobs[0];
-    const carried = analyseMura(map, { pattern: 'black', edgeBorderMm: border }).blobs[0];
+    const { seen, carried } = seenAndCarried({ kind: 'edge-glow', edge: 'left', decayMm: decay, contrastPct: 100 }, 25, border);
     expect(seen.kind).toBe('edge-glow');
     expect(carried.kind).toBe('edge-glow');
     // the gain is exp(border ln2 / depth) for the half-peak depth found (an exponential halves over
@@ -67,13 +72,7 @@ describe('glow on black fields', () => {
     // its seen peak halves at d = 4.24 + 15 ln2 = 14.64 mm, which meets the strip's edge
     // sqrt(14.64² - 3²) - 3 = 11.33 mm along it (hand-worked)
     const border = 3;
-    const map = synthMap({ widthMm: W, heightMm: H, pxPerMm: 2, level: 0.002, noisePct: 3, seed: 26, smooth: [[0, 0.02], [0.03], [-0.05]], features: [{ kind: 'corner-glow', corner: 'top-right', decayMm: 15, contrastPct: 100 }] });
-    const b = border * 2;
-    for (let y = 0; y < map.height; y++) for (let x = 0; x < map.width; x++) {
-      if (x < b || y < b || x >= map.width - b || y >= map.height - b) map.valid[y * map.width + x] = 0;
-    }
-    const seen = analyseMura(map, { pattern: 'black' }).blobs[0];
-    const carried = analyseMura(map, { pattern: 'black', edgeBorderMm: border }).blobs[0];
+    const { seen, carried } = seenAndCarried({ kind: 'corner-glow', corner: 'top-right', decayMm: 15, contrastPct: 100 }, 26, border);
     expect(seen.kind).toBe('corner-glow');
     expect(carried.kind).toBe('corner-glow');
     const reach = seen.detail.reachMm as number;
