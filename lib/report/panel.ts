@@ -699,7 +699,7 @@ const DETAIL_WORDS: Record<string, (v: string) => string> = {
   at: (v) => `at ${v} of the edge`,
   form: (v) => v,
   seenPeakPct: (v) => `peak ${v} % where the map begins`,
-  carriedToEdgeMm: (v) => `carried ${v} mm out to the edge`,
+  carriedToEdgeMm: (v) => `carried across the ${v} mm strip left out along the edges`,
   surroundPct: (v) => `on a surround of ${v} %`,
 };
 

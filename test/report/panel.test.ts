@@ -83,7 +83,7 @@ describe('per-panel report (three patterns, fabricated test data)', () => {
   it('describes the details of each blob in words, not by their field names', () => {
     // an edge glow carries its depth, the peak seen where the map begins and the strip it was carried over
     const t = flat(text);
-    expect(t).toMatch(/reaching 9\.20* mm in, peak 12\.50* % where the map begins, carried 2\.560* mm out to the edge/);
+    expect(t).toMatch(/reaching 9\.20* mm in, peak 12\.50* % where the map begins, carried across the 2\.560* mm strip left out along the edges/);
     for (const key of ['seenPeakPct', 'carriedToEdgeMm', 'depthMm', 'surroundPct']) expect(t).not.toContain(key);
   });
 
