@@ -53,10 +53,11 @@ describe('glow on black fields', () => {
     // the gain is exp(border ln2 / depth) for the half-peak depth found (an exponential halves over
     // decay x ln 2)
     const depth = seen.detail.depthMm as number;
+    // within 1 mm: two map pixels at 2 px/mm (common practice)
     expect(Math.abs(depth - decay * Math.LN2)).toBeLessThan(1);
     expect(carried.peakContrastPct / seen.peakContrastPct).toBeCloseTo(Math.exp((border * Math.LN2) / depth), 3);
     // seen: 29 % under the edge's 100 % (19 % the strip, the rest the order-2 black surface lifted under
-    // the glow); carried: within 15 %
+    // the glow); carried: within 15 % (tolerance: common practice, wide enough for that lift)
     expect(Math.abs(seen.peakContrastPct - 100) / 100).toBeGreaterThan(0.2);
     expect(Math.abs(carried.peakContrastPct - 100) / 100).toBeLessThan(0.15);
     expect(Math.abs(carried.contrastPct - 72.13) / 72.13).toBeLessThan(0.25);
@@ -76,12 +77,13 @@ describe('glow on black fields', () => {
     expect(seen.kind).toBe('corner-glow');
     expect(carried.kind).toBe('corner-glow');
     const reach = seen.detail.reachMm as number;
+    // within 1.5 mm: three map pixels at 2 px/mm (common practice)
     expect(Math.abs(reach - 11.33)).toBeLessThan(1.5);
     const decay = (Math.hypot(reach + border, border) - border * Math.SQRT2) / Math.LN2;
     expect(carried.peakContrastPct / seen.peakContrastPct).toBeCloseTo(Math.exp((border * Math.SQRT2) / decay), 3);
     expect(Math.abs(carried.peakContrastPct - 100)).toBeLessThan(Math.abs(seen.peakContrastPct - 100));
     // seen: 31 % under the corner's 100 % (25 % the strips, the rest the black surface lifted under the
-    // glow); carried: within 15 %
+    // glow); carried: within 15 % (tolerance: common practice, wide enough for that lift)
     expect(Math.abs(seen.peakContrastPct - 100) / 100).toBeGreaterThan(0.2);
     expect(Math.abs(carried.peakContrastPct - 100) / 100).toBeLessThan(0.15);
   });

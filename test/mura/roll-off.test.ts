@@ -67,6 +67,7 @@ describe('sharp-peaked and flat-topped roll-offs', () => {
       expect(r.leftOut).toHaveLength(1);
       const out = r.leftOut![0];
       expect(out.kind).toBe('cloud');
+      // at the roll-off's peak: within a tenth of the panel (common practice: the false cloud's own radius)
       expect(Math.hypot(out.u - c.u0, out.v - c.v0)).toBeLessThan(0.1);
       expect(out.modelErrorRollOffPct).toBeLessThan(out.modelErrorCloudPct);
       const line = leftOutLines(r.leftOut!)[0];
