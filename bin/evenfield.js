@@ -1,12 +1,22 @@
 #!/usr/bin/env node
 // Thin launcher: the command lives in lib/cli (compiled to dist/ by `npm install` / `npm run build`).
+// On Linux, `inspect` runs in a child process with the C allocator set for large image arrays
+// (lib/cli/relaunch.ts says why); every other command runs here.
 import { existsSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
 
 const entry = new URL('../dist/lib/cli/main.js', import.meta.url);
-if (!existsSync(fileURLToPath(entry))) {
+const relaunch = new URL('../dist/lib/cli/relaunch.js', import.meta.url);
+if (!existsSync(fileURLToPath(entry)) || !existsSync(fileURLToPath(relaunch))) {
   process.stderr.write('evenfield: not built yet: run "npm install" (or "npm run build") in the project folder\n');
   process.exit(2);
 }
-const { run } = await import(entry.href);
-await run();
+const { relaunchEnv, runInChild, followLauncher } = await import(relaunch.href);
+const extraEnv = relaunchEnv(process.argv.slice(2), process.env, process.platform, process.execArgv);
+if (extraEnv) {
+  process.exitCode = await runInChild(fileURLToPath(import.meta.url), extraEnv);
+} else {
+  followLauncher();
+  const { run } = await import(entry.href);
+  await run();
+}

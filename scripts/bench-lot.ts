@@ -45,7 +45,7 @@ export interface CommandRun {
   loadAfter: number[];
 }
 
-/** Run `evenfield inspect` in a child process with the usage hook; wall time from spawn to exit. */
+/** Run `evenfield inspect` in a child process with the usage hook; wall time from spawn to exit; memory and CPU of the launcher and its child added. */
 export async function runInspect(root: string, hook: string, lotDir: string, outDir: string, extra: string[], env: NodeJS.ProcessEnv = process.env): Promise<CommandRun> {
   const args = ['--import', pathToFileURL(hook).href, join(root, 'bin', 'evenfield.js'), 'inspect', lotDir, '--out', outDir, '--force', '--quiet', '--date', '2026-01-01T00:00:00Z', ...extra];
   const loadBefore = loadavg();
@@ -60,8 +60,15 @@ export async function runInspect(root: string, hook: string, lotDir: string, out
   });
   const wallMs = performance.now() - t0;
   const loadAfter = loadavg();
-  const line = stderr.split('\n').find((l) => l.startsWith('evenfield-bench-usage '));
-  const usage = line ? (JSON.parse(line.slice('evenfield-bench-usage '.length)) as { maxRssKb: number; userMs: number; systemMs: number }) : null;
+  // one line per process (the launcher and the child it runs the command in): CPU times add up, and so
+  // do the peaks, an upper bound of the pair's peak (the launcher holds about 45 MB throughout)
+  const lines = stderr.split('\n').filter((l) => l.startsWith('evenfield-bench-usage '));
+  const usage =
+    lines.length === 0
+      ? null
+      : lines
+          .map((l) => JSON.parse(l.slice('evenfield-bench-usage '.length)) as { maxRssKb: number; userMs: number; systemMs: number })
+          .reduce((x, y) => ({ maxRssKb: x.maxRssKb + y.maxRssKb, userMs: x.userMs + y.userMs, systemMs: x.systemMs + y.systemMs }));
   let photos = 0;
   let photoErrors = 0;
   let panels = 0;

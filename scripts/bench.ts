@@ -1,10 +1,11 @@
 // Speed and memory benchmark: `npm run bench` (builds, then runs node --expose-gc dist/scripts/bench.js).
 //
 //   npm run bench -- [--runs N] [--sizes 12MP,24MP] [--lot-panels N] [--memory 20,200]
-//                    [--skip-lot] [--skip-memory] [--tuned-malloc] [--json FILE]
+//                    [--skip-lot] [--skip-memory] [--default-allocator] [--json FILE]
 //
-// --tuned-malloc runs the lots (d, e) with MALLOC_ARENA_MAX=2 MALLOC_MMAP_THRESHOLD_=1048576 in their
-// environment (glibc's allocator; see README "Speed").
+// On Linux `inspect` runs its work in a child process with glibc's allocator set for large arrays
+// (lib/cli/relaunch.ts); --default-allocator runs the lots (d, e) with EVENFIELD_ALLOCATOR=default, in one
+// process with the C library's defaults, for comparison.
 //
 // On generated 12- and 24-megapixel JPEGs (cached under .cache/bench), in one run:
 //  (a) sharp alone decoding each photo to raw 8-bit RGB at full size (the lower bound of any per-photo work);
@@ -13,7 +14,8 @@
 //      the decode alone and the measurement without the mura analysis, to show where the time goes;
 //  (c) writing the panel's PDF (report rendering and the atomic write), per panel of three photos;
 //  (d) lot throughput of the command (`inspect`, PDFs included) with --jobs 1 and --jobs 2;
-//  (e) peak resident memory of the command (all threads) for lots of 20 and 200 photos.
+//  (e) peak resident memory of the command (all threads; the launcher's and its child's peaks added) for
+//      lots of 20 and 200 photos.
 // (a) and (b) alternate photo by photo so that both see the same machine load. Wall time and CPU time
 // (process.cpuUsage: every thread of the process, libvips included) are both recorded; medians over
 // `runs` runs of every photo of a size. The load average is recorded with every figure: on a machine
@@ -45,7 +47,7 @@ interface Args {
   memory: number[];
   skipLot: boolean;
   skipMemory: boolean;
-  tunedMalloc: boolean;
+  defaultAllocator: boolean;
   json: string;
   cache: string;
 }
@@ -58,7 +60,7 @@ function parseArgs(argv: string[]): Args {
     memory: [20, 200],
     skipLot: false,
     skipMemory: false,
-    tunedMalloc: false,
+    defaultAllocator: false,
     json: join(root, '.cache', 'bench', 'results.json'),
     cache: join(root, '.cache', 'bench'),
   };
@@ -75,7 +77,7 @@ function parseArgs(argv: string[]): Args {
     else if (k === '--memory') a.memory = v().split(',').map(Number);
     else if (k === '--skip-lot') a.skipLot = true;
     else if (k === '--skip-memory') a.skipMemory = true;
-    else if (k === '--tuned-malloc') a.tunedMalloc = true;
+    else if (k === '--default-allocator') a.defaultAllocator = true;
     else if (k === '--json') a.json = resolve(v());
     else throw new Error(`unknown option ${k}`);
   }
@@ -299,8 +301,8 @@ async function main(): Promise<void> {
     const photos = (args.skipLot ? 0 : 1.5 * args.lotPanels * lotSize.photos.length) + (args.skipMemory ? 0 : args.memory.reduce((x, y) => x + y, 0) / 2);
     log(`\nlot runs to come: about ${((photos * b) / 60).toFixed(0)} min at ${b.toFixed(1)} s per photo`);
   }
-  const lotEnv: NodeJS.ProcessEnv = args.tunedMalloc ? { ...process.env, MALLOC_ARENA_MAX: '2', MALLOC_MMAP_THRESHOLD_: '1048576' } : process.env;
-  if (args.tunedMalloc) log('lots run with MALLOC_ARENA_MAX=2 MALLOC_MMAP_THRESHOLD_=1048576 (--tuned-malloc)');
+  const lotEnv: NodeJS.ProcessEnv = args.defaultAllocator ? { ...process.env, EVENFIELD_ALLOCATOR: 'default' } : process.env;
+  if (args.defaultAllocator) log("lots run in one process with the C library's allocator defaults (--default-allocator)");
   const lots: Record<string, CommandRun> = {};
   if (!args.skipLot) {
     const n = args.lotPanels * lotSize.photos.length;
