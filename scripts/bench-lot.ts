@@ -61,7 +61,7 @@ export async function runInspect(root: string, hook: string, lotDir: string, out
   const wallMs = performance.now() - t0;
   const loadAfter = loadavg();
   // one line per process (the launcher and the child it runs the command in): CPU times add up, and so
-  // do the peaks, an upper bound of the pair's peak (the launcher holds about 45 MB throughout)
+  // do the peaks, an upper bound of the pair's peak (the launcher holds about 44 MB throughout)
   const lines = stderr.split('\n').filter((l) => l.startsWith('evenfield-bench-usage '));
   const usage =
     lines.length === 0
