@@ -16,7 +16,7 @@ const extraEnv = relaunchEnv(process.argv.slice(2), process.env, process.platfor
 if (extraEnv) {
   process.exitCode = await runInChild(fileURLToPath(import.meta.url), extraEnv);
 } else {
-  followLauncher();
+  await followLauncher();
   const { run } = await import(entry.href);
   await run();
 }

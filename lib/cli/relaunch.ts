@@ -9,8 +9,9 @@
 // arguments, same standard streams, same exit status.
 //
 // Not done when the user has set either variable (their choice stands), when EVENFIELD_ALLOCATOR=default,
-// under a debugger (--inspect), or off Linux (other C libraries ignore these variables). The child stops when the launcher goes away,
-// also when it is killed outright (kill -9): its IPC channel to the launcher closes.
+// under a debugger (--inspect), or off Linux (other C libraries ignore these variables). The child stops
+// when the launcher goes away, also when it is killed outright (kill -9): its IPC channel to the launcher
+// closes, and a watch thread sees it adopted by another parent.
 // This module must stay light: it runs before the command's own modules are loaded.
 
 import { spawn } from 'node:child_process';
@@ -82,8 +83,25 @@ export function runInChild(script: string, extraEnv: Record<string, string>): Pr
   });
 }
 
-/** In the relaunched child: stop when the launcher is gone (its IPC channel closes). */
-export function followLauncher(): void {
+/**
+ * A watch on the launcher from its own thread: the command's main thread can be busy for seconds (a
+ * photo's analysis with --jobs 1), too long for a run killed with its launcher to go on writing into the
+ * output folder, where a `--resume` may already be working. When the launcher is gone (this process has
+ * been adopted: its parent id changed) the whole process is killed at once, as the launcher was; the
+ * atomic writes leave nothing half-written and the next run removes the temporary files of dead runs.
+ */
+const WATCH_SOURCE = `
+const { workerData } = require('node:worker_threads');
+setInterval(() => {
+  if (process.ppid !== workerData.launcher) process.kill(process.pid, 'SIGKILL');
+}, workerData.everyMs);
+`;
+
+/** How often the watch looks at the parent id, ms. */
+const WATCH_EVERY_MS = 200;
+
+/** In the relaunched child: stop when the launcher is gone. */
+export async function followLauncher(): Promise<void> {
   if (!process.env[RELAUNCHED_MARK]) return;
   const stop = () => {
     process.stderr.write('evenfield: the launching process ended: stopping\n');
@@ -95,4 +113,14 @@ export function followLauncher(): void {
   // the channel must not keep this process alive once the command is done
   process.channel!.unref();
   process.on('disconnect', stop);
+  const { Worker } = await import('node:worker_threads');
+  const watch = new Worker(WATCH_SOURCE, {
+    eval: true,
+    workerData: { launcher: process.ppid, everyMs: WATCH_EVERY_MS },
+    // a few lines polling a number: a small heap (the thread costs about 10 MB of the command's memory)
+    resourceLimits: { maxOldGenerationSizeMb: 16, maxYoungGenerationSizeMb: 2 },
+  });
+  // the watch is a safeguard: if it cannot run, the IPC channel's 'disconnect' above still stops the command
+  watch.on('error', () => {});
+  watch.unref();
 }

@@ -42,10 +42,13 @@ async function until(check: () => boolean, ms: number): Promise<boolean> {
   return check();
 }
 
-/** Start the launcher with HOLD_CHILD; resolves with it and its child's pid once the child is up. */
-async function startHeld(): Promise<{ launcher: ReturnType<typeof spawn>; childPid: number }> {
+/** ...and one whose child's main thread is busy for a minute from half a second on (a long analysis). */
+const BUSY_CHILD = `data:text/javascript,if (process.env.${RELAUNCHED_MARK}) { process.stderr.write('child ' + process.pid + '\\n'); setTimeout(() => { process.stderr.write('busy\\n'); const end = Date.now() + 60000; while (Date.now() < end); }, 500); }`;
+
+/** Start the launcher with a hook (HOLD_CHILD by default); resolves with it and its child's pid once the child is up. */
+async function startHeld(hook = HOLD_CHILD): Promise<{ launcher: ReturnType<typeof spawn>; childPid: number }> {
   const out = mkdtempSync(join(tmpdir(), 'ef-relaunch-'));
-  const launcher = spawn(process.execPath, ['--import', HOLD_CHILD, BIN, 'inspect', join(out, 'no-such-folder'), '--out', join(out, 'o')], { stdio: ['ignore', 'ignore', 'pipe'] });
+  const launcher = spawn(process.execPath, ['--import', hook, BIN, 'inspect', join(out, 'no-such-folder'), '--out', join(out, 'o')], { stdio: ['ignore', 'ignore', 'pipe'] });
   const childPid = await new Promise<number>((resolvePid, reject) => {
     let err = '';
     launcher.stderr!.setEncoding('utf8');
@@ -115,6 +118,17 @@ describe.runIf(process.platform === 'linux')('relaunched inspect (Linux)', () =>
     launcher.kill('SIGKILL');
     // the child's IPC channel closes with the launcher; allow a loaded machine a few seconds
     expect(await until(() => !alive(childPid), 10_000)).toBe(true);
+  }, 30_000);
+
+  it('stops the child within a second or so when the launcher is killed while its main thread is busy', async () => {
+    const { launcher, childPid } = await startHeld(BUSY_CHILD);
+    // let the busy loop start: the channel's 'disconnect' cannot be heard until it ends
+    await new Promise((r) => setTimeout(r, 1500));
+    const t0 = Date.now();
+    launcher.kill('SIGKILL');
+    expect(await until(() => !alive(childPid), 10_000)).toBe(true);
+    // the watch looks every 200 ms; a loaded machine may take longer to schedule it, never the minute
+    expect(Date.now() - t0).toBeLessThan(10_000);
   }, 30_000);
 
   it('passes a termination signal on to the child and ends by it', async () => {
