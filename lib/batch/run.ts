@@ -78,9 +78,16 @@ const TEMP_NAME = /^\..+\.(\d+)\.[0-9a-f]{12}\.tmp$/;
 function processAlive(pid: number): boolean {
   try {
     process.kill(pid, 0);
-    return true;
   } catch (e) {
     return (e as NodeJS.ErrnoException).code === 'EPERM';
+  }
+  // On Linux an ended process not yet reaped by its parent (a zombie) still answers signal 0
+  try {
+    const stat = readFileSync(`/proc/${pid}/stat`, 'utf8');
+    const close = stat.lastIndexOf(')');
+    return stat.charAt(close + 2) !== 'Z';
+  } catch {
+    return true;
   }
 }
 
@@ -233,6 +240,11 @@ export async function runBatch(opts: BatchOptions): Promise<BatchOutcome> {
     });
     await writeFileAtomic(join(outDir, SUMMARY_PDF), bytes);
   }
+  // Once more at the end: a run killed just before this one started may have been still alive then (a
+  // launcher killed with kill -9 takes its command's process with it within a fraction of a second, see
+  // lib/cli/relaunch.ts) and have left a temporary file since.
+  removeStaleTemporaries(outDir);
+  removeStaleTemporaries(join(outDir, WORK_DIR));
   // a photo that could not be measured is unusable input even when its panel failed on another photo
   const anyError =
     panels.some((p) => p.verdict === 'error' || p.photos.some((ph) => ph.status === 'error')) || opts.grouping.unassigned.length > 0;

@@ -115,6 +115,30 @@ describe('interrupted runs', () => {
     for (const f of files) expect(readFileSync(join(ref2.out, f)).equals(readFileSync(join(ref.out, f))), f).toBe(true);
   });
 
+  it('a temporary file of a run still alive at the start is removed at the end once that run is gone', async () => {
+    // The case of a launcher killed with kill -9 just before a --resume: its command's process lives a
+    // fraction of a second longer (lib/cli/relaunch.ts). Stood in for by a process that is ended once the
+    // new run has started (its run.json is written after the start's clean-up).
+    const out = join(dir, 'late-temp');
+    mkdirSync(out);
+    const other = spawn('sleep', ['600'], { stdio: 'ignore' });
+    const otherEnded = new Promise((r) => other.on('exit', r));
+    writeFileSync(join(out, `.results.json.${other.pid}.0123456789ab.tmp`), '{"half": ');
+    // started without blocking this process, so that it can end and reap the other one meanwhile
+    const run = spawn(process.execPath, [BIN, 'inspect', ...common, '--out', out, '--jobs', '1'], { stdio: ['ignore', 'ignore', 'pipe'] });
+    let stderr = '';
+    run.stderr!.setEncoding('utf8').on('data', (d: string) => (stderr += d));
+    const status = new Promise<number | null>((res) => run.on('exit', (code) => res(code)));
+    while (!existsSync(join(out, '.evenfield-work', 'run.json'))) await new Promise((r) => setTimeout(r, 20));
+    // the run has started with the temporary file still belonging to a live process
+    expect(readdirSync(out).filter((f) => TEMP_NAME.test(f))).toHaveLength(1);
+    other.kill('SIGKILL');
+    await otherEnded;
+    expect(await status, stderr).toBe(ref.status);
+    expect(tree(out).filter((f) => TEMP_NAME.test(f.split('/').pop()!))).toEqual([]);
+    expect(tree(out)).toEqual(tree(ref.out));
+  }, 120_000);
+
   it('killed at 5 random moments and resumed, the output equals the uninterrupted run byte for byte', async () => {
     const refFiles = tree(ref.out);
     expect(refFiles).toContain('results.json');
