@@ -2,8 +2,8 @@
 //
 // A photo allocates and frees tens of typed arrays of 1-50 MB. With glibc's defaults the allocator
 // keeps freed blocks in one arena per thread and raises its mmap threshold after the first large
-// frees, so the resident memory of a lot run stays far above what is live (benchmark lot of 18 photos,
-// --jobs 2: 696 MB peak with the defaults, 482 MB with the two settings below). glibc reads these
+// frees, so the resident memory of a lot run stays far above what is live (`npm run bench`, 200 photos of
+// 12 MP, --jobs 2: 704 MB peak with the defaults, 594 MB this way; README "Speed"). glibc reads these
 // settings from the environment only when a process starts, so `evenfield inspect` starts its work in a
 // child process of the same Node with them set, and waits for it. Nothing else changes: same
 // arguments, same standard streams, same exit status.
