@@ -11,6 +11,14 @@ export {
 } from './cos4.js';
 export type { Cos4Focal } from './cos4.js';
 export {
+  COARSE_TRANSMISSION_STEP,
+  applyCoarseTransmissionWithLuminance,
+  coarseCornerTransmission,
+  coarseTransmission,
+  coarseTransmissionAt,
+} from './coarse.js';
+export type { CoarseTransmission } from './coarse.js';
+export {
   PROFILE_FORMAT,
   PROFILE_VERSION,
   applyTransmission,

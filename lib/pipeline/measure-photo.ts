@@ -5,8 +5,8 @@ import { decodePhotoBuffer, readInputFile } from '../io/index.js';
 import type { DecodedPhoto } from '../io/index.js';
 import { SRGB_TO_XYZ, srgbCodeStepPct, srgbEncode } from '../photometry/index.js';
 import { applyHomography, findPanel, panelToCamera, rectifyRgb, estimatePose } from '../geometry/index.js';
-import { applyTransmissionWithLuminance, channelTransmissionFromProfile, cornerTransmission, cos4Transmission, isChannelTransmission, profileMismatch } from '../falloff/index.js';
-import type { Transmission } from '../falloff/index.js';
+import { applyCoarseTransmissionWithLuminance, channelTransmissionFromProfile, coarseCornerTransmission, coarseTransmission, coarseTransmissionAt, cos4Transmission, profileMismatch } from '../falloff/index.js';
+import type { CoarseTransmission } from '../falloff/index.js';
 import type { FalloffProfile } from '../falloff/index.js';
 import { analyseMura } from '../mura/index.js';
 import type { MuraOptions } from '../mura/index.js';
@@ -48,18 +48,13 @@ function codeStepAt(result: PhotoResult, points: GridPoint[]): number | null {
 }
 
 /** The lens transmission (luminance-weighted for per-channel profiles) at a grid of panel points. */
-function transmissionOnPanel(t: Transmission, corners: Corners, nodes: number): { cols: number; rows: number; data: Float32Array } {
+function transmissionOnPanel(t: CoarseTransmission, corners: Corners, nodes: number): { cols: number; rows: number; data: Float32Array } {
   const H = panelToCamera(corners);
   const data = new Float32Array(nodes * nodes);
-  const at = (p: Plane, x: number, y: number): number => {
-    const xi = Math.min(p.width - 1, Math.max(0, Math.round(x)));
-    const yi = Math.min(p.height - 1, Math.max(0, Math.round(y)));
-    return p.data[yi * p.width + xi];
-  };
   for (let j = 0; j < nodes; j++) {
     for (let i = 0; i < nodes; i++) {
       const [x, y] = applyHomography(H, [i / (nodes - 1), j / (nodes - 1)]);
-      data[j * nodes + i] = isChannelTransmission(t) ? 0.2126 * at(t.r, x, y) + 0.7152 * at(t.g, x, y) + 0.0722 * at(t.b, x, y) : at(t, x, y);
+      data[j * nodes + i] = coarseTransmissionAt(t, Math.min(t.width - 1, Math.max(0, x)), Math.min(t.height - 1, Math.max(0, y)));
     }
   }
   return { cols: nodes, rows: nodes, data };
@@ -266,11 +261,12 @@ function relativeMapOf(map: PanelMap, centreY: number, maxWidth: number): Plane 
 
 /**
  * The falloff transmission of the last photo: the photos of a lot share the camera, the profile and the
- * size, so each worker evaluates the model once. Keyed by value (task data reaches a worker as a copy);
- * the planes are only read (applyTransmission divides the image by them).
+ * size, so each worker evaluates the model once. Keyed by value (task data reaches a worker as a copy).
+ * Kept on a coarse grid of nodes (lib/falloff/coarse.ts: within 4e-5 of the full planes, which would hold
+ * 36 MB per worker for 12-megapixel photos).
  */
-let lastTransmission: { key: string; value: Transmission } | null = null;
-function cachedTransmission(key: string, make: () => Transmission): Transmission {
+let lastTransmission: { key: string; value: CoarseTransmission } | null = null;
+function cachedTransmission(key: string, make: () => CoarseTransmission): CoarseTransmission {
   if (lastTransmission?.key !== key) lastTransmission = { key, value: make() };
   return lastTransmission.value;
 }
@@ -412,7 +408,7 @@ async function measureCamera(
 
   // 2. lens falloff, in camera coordinates, before anything geometric
   const falloff: FalloffRecord = { applied: false, method: 'none', source: null, cornerFalloff: null, warnings: [] };
-  let transmission: Transmission | null = null;
+  let transmission: CoarseTransmission | null = null;
   if (opts.falloff.kind === 'profile') {
     const match = profileMismatch(opts.falloff.profile, decoded.exposure, decoded.info.width, decoded.info.height);
     if (match.severity === 'error') {
@@ -422,7 +418,7 @@ async function measureCamera(
     const profile = opts.falloff.profile;
     const fullSize = { width: decoded.info.width, height: decoded.info.height };
     transmission = cachedTransmission(`profile ${JSON.stringify(profile)} ${img.width}x${img.height}/${scale} of ${fullSize.width}x${fullSize.height}`, () =>
-      channelTransmissionFromProfile(profile, img.width, img.height, scale, fullSize),
+      coarseTransmission(img.width, img.height, (cols, rows, factor) => channelTransmissionFromProfile(profile, cols, rows, scale * factor, fullSize)),
     );
     falloff.method = 'profile';
     falloff.source = opts.falloff.source;
@@ -435,16 +431,18 @@ async function measureCamera(
       falloff.warnings.push('cos⁴ model applied to sRGB-encoded input: cameras often correct part of the falloff in their JPEGs, so this may over-correct');
     }
     const model = { focal35mm: f35, fullWidth: decoded.info.width, fullHeight: decoded.info.height };
-    transmission = cachedTransmission(`cos4 ${JSON.stringify(model)} ${img.width}x${img.height}/${scale}`, () => cos4Transmission(img.width, img.height, model, scale));
+    transmission = cachedTransmission(`cos4 ${JSON.stringify(model)} ${img.width}x${img.height}/${scale}`, () =>
+      coarseTransmission(img.width, img.height, (cols, rows, factor) => cos4Transmission(cols, rows, model, scale * factor)),
+    );
     falloff.method = 'cos4-model';
     falloff.source = `cos⁴ law, ${f35} mm equivalent focal length`;
   }
   // luminance of the corrected image for the panel finder, made in the correcting pass
   let correctedLum: Plane | null = null;
   if (transmission) {
-    correctedLum = applyTransmissionWithLuminance(img, transmission).luminance;
+    correctedLum = applyCoarseTransmissionWithLuminance(img, transmission).luminance;
     falloff.applied = true;
-    falloff.cornerFalloff = cornerTransmission(isChannelTransmission(transmission) ? transmission.g : transmission);
+    falloff.cornerFalloff = coarseCornerTransmission(transmission);
   }
   result.falloff = falloff;
   if (!falloff.applied) {
