@@ -43,6 +43,8 @@ interface Level {
   /** flood-fill marks and the last mark used */
   stamp: Int32Array;
   gen: number;
+  /** peaksOf's map from pixel to its place in the component (+1; 0 elsewhere between calls), made when first needed */
+  slot?: Int32Array;
 }
 
 /** A feature seen on one level: its half-peak region there. */
@@ -165,37 +167,56 @@ function finishLevel(lv: Level): Level {
   const tmpA = new Float32Array(w * h);
   const tmpB = new Float32Array(w * h);
   const r = (KERNEL.length - 1) >> 1;
+  const nk = KERNEL.length;
+  // along rows (weights of zero add nothing: m is 0 where n is)
   for (let y = 0; y < h; y++) {
     const row = y * w;
     for (let x = 0; x < w; x++) {
       let a = 0;
       let b = 0;
-      const lo = Math.max(0, x - r);
-      const hi = Math.min(w - 1, x + r);
-      for (let xx = lo; xx <= hi; xx++) {
-        const q = n[row + xx];
-        if (q <= 0) continue;
-        const k = KERNEL[xx - x + r];
-        a += k * q * m[row + xx];
-        b += k * q;
+      if (x >= r && x + r < w) {
+        const base = row + x - r;
+        for (let t = 0; t < nk; t++) {
+          const q = n[base + t];
+          const k = KERNEL[t];
+          a += k * q * m[base + t];
+          b += k * q;
+        }
+      } else {
+        const lo = Math.max(0, x - r);
+        const hi = Math.min(w - 1, x + r);
+        for (let xx = lo; xx <= hi; xx++) {
+          const q = n[row + xx];
+          if (q <= 0) continue;
+          const k = KERNEL[xx - x + r];
+          a += k * q * m[row + xx];
+          b += k * q;
+        }
       }
       tmpA[row + x] = a;
       tmpB[row + x] = b;
     }
   }
+  // along columns, a whole row at a time (memory in order; each sum still taken in the same order)
+  const accA = new Float64Array(w);
+  const accB = new Float64Array(w);
   for (let y = 0; y < h; y++) {
     const lo = Math.max(0, y - r);
     const hi = Math.min(h - 1, y + r);
-    for (let x = 0; x < w; x++) {
-      let a = 0;
-      let b = 0;
-      for (let yy = lo; yy <= hi; yy++) {
-        const k = KERNEL[yy - y + r];
-        a += k * tmpA[yy * w + x];
-        b += k * tmpB[yy * w + x];
+    accA.fill(0);
+    accB.fill(0);
+    for (let yy = lo; yy <= hi; yy++) {
+      const k = KERNEL[yy - y + r];
+      const src = yy * w;
+      for (let x = 0; x < w; x++) {
+        accA[x] += k * tmpA[src + x];
+        accB[x] += k * tmpB[src + x];
       }
-      num[y * w + x] = a;
-      den[y * w + x] = b;
+    }
+    const dst = y * w;
+    for (let x = 0; x < w; x++) {
+      num[dst + x] = accA[x];
+      den[dst + x] = accB[x];
     }
   }
   const s = new Float32Array(w * h);
@@ -467,45 +488,61 @@ function candidatesOn(lv: Level, sign: 1 | -1, thr: number, out: Candidate[]): v
  */
 function peaksOf(lv: Level, comp: number[], sign: 1 | -1, thr: number, keptOut: number[], mergedOut: number[]): void {
   const { w, s } = lv;
-  const order = comp.slice().sort((a, b) => sign * s[b] - sign * s[a]);
-  const parent = new Map<number, number>();
-  const peakOf = new Map<number, number>();
+  const n = comp.length;
+  // pixels from the highest down (ties in the component's order)
+  const key = new Float64Array(n);
+  for (let k = 0; k < n; k++) key[k] = sign * s[comp[k]];
+  const rank = new Int32Array(n);
+  for (let k = 0; k < n; k++) rank[k] = k;
+  rank.sort((a, b) => key[b] - key[a] || a - b);
+  // union-find over places in the component; slot maps a pixel to its place + 1 (0: not in it)
+  const slot = (lv.slot ??= new Int32Array(lv.w * lv.h));
+  for (let k = 0; k < n; k++) slot[comp[k]] = k + 1;
+  const parent = new Int32Array(n).fill(-1); // -1: not reached yet
+  const peakOf = new Int32Array(n); // a root's highest pixel
   const find = (i: number): number => {
     let r = i;
-    while (parent.get(r) !== r) r = parent.get(r) as number;
+    while (parent[r] !== r) r = parent[r];
     let j = i;
     while (j !== r) {
-      const nx = parent.get(j) as number;
-      parent.set(j, r);
+      const nx = parent[j];
+      parent[j] = r;
       j = nx;
     }
     return r;
   };
-  const kept: number[] = [order[0]];
+  const kept: number[] = [comp[rank[0]]];
   const merged: number[] = [];
-  for (const i of order) {
-    const v = sign * s[i];
-    parent.set(i, i);
-    peakOf.set(i, i);
+  const size = s.length;
+  for (let t = 0; t < n; t++) {
+    const li = rank[t];
+    const i = comp[li];
+    const v = key[li];
+    parent[li] = li;
+    peakOf[li] = i;
     const x = i % w;
-    const nbs = [x > 0 ? i - 1 : -1, x < w - 1 ? i + 1 : -1, i - w, i + w];
-    for (const j of nbs) {
-      if (j < 0 || !parent.has(j)) continue;
-      const a = find(i);
-      const b = find(j);
+    for (let q = 0; q < 4; q++) {
+      const j = q === 0 ? (x > 0 ? i - 1 : -1) : q === 1 ? (x < w - 1 ? i + 1 : -1) : q === 2 ? i - w : i + w;
+      if (j < 0 || j >= size) continue;
+      const lj = slot[j] - 1;
+      if (lj < 0 || parent[lj] < 0) continue;
+      const a = find(li);
+      const b = find(lj);
       if (a === b) continue;
-      const pa = peakOf.get(a) as number;
-      const pb = peakOf.get(b) as number;
-      const [hi, lo] = sign * s[pa] >= sign * s[pb] ? [pa, pb] : [pb, pa];
+      const pa = peakOf[a];
+      const pb = peakOf[b];
+      const hi = sign * s[pa] >= sign * s[pb] ? pa : pb;
+      const lo = hi === pa ? pb : pa;
       const loV = sign * s[lo];
       if (lo !== i && v <= 0.5 * loV && loV >= 2 * thr && kept.length < 50) kept.push(lo);
       // joined above its half height but standing out of the saddle by more than the noise could
       // raise it (MERGED_PROMINENCE x the threshold): a feature of its own under a sharper one, maybe
       else if (lo !== i && loV - v >= MERGED_PROMINENCE * thr && loV >= 2 * thr && merged.length < 50) merged.push(lo);
-      parent.set(a, b);
-      peakOf.set(b, hi);
+      parent[a] = b;
+      peakOf[b] = hi;
     }
   }
+  for (let k = 0; k < n; k++) slot[comp[k]] = 0;
   keptOut.push(...kept);
   mergedOut.push(...merged);
 }
