@@ -109,6 +109,12 @@ function matches(b: Blob, t: FeatureTruth, W: number, H: number): boolean {
   return Math.hypot(b.xMm - t.xMm, b.yMm - t.yMm) <= Math.max(10, 0.5 * r);
 }
 
+/** No other visible feature's half-peak bounding box meets this one's. */
+function standsAlone(t: FeatureTruth, all: FeatureTruth[]): boolean {
+  const [a0, b0, a1, b1] = t.bbox;
+  return all.every((o) => o === t || o.bbox[2] < a0 || o.bbox[0] > a1 || o.bbox[3] < b0 || o.bbox[1] > b1);
+}
+
 interface Pair {
   t: FeatureTruth;
   b: Blob | null;
@@ -151,6 +157,10 @@ async function main(): Promise<void> {
   let accN = 0;
   let contrastOk = 0;
   let areaOk = 0;
+  // the same for features standing alone: no other feature's half-peak box touches theirs
+  let isoN = 0;
+  let isoContrastOk = 0;
+  let isoAreaOk = 0;
   const cErr: number[] = [];
   const aErr: number[] = [];
   let falseSemu1 = 0;
@@ -193,8 +203,13 @@ async function main(): Promise<void> {
           aErr.push(ae);
           if (Math.abs(ce) <= 0.25) contrastOk++;
           if (Math.abs(ae) <= 0.3) areaOk++;
+          if (standsAlone(t, r.truth)) {
+            isoN++;
+            if (Math.abs(ce) <= 0.25) isoContrastOk++;
+            if (Math.abs(ae) <= 0.3) isoAreaOk++;
+          }
           if (Math.abs(ce) > 0.25 || Math.abs(ae) > 0.3) {
-            badAcc.push(`${tag}: measured C ${b.contrastPct.toFixed(2)} (${(100 * ce).toFixed(0)} %), area ${b.areaMm2.toFixed(0)} vs ${t.areaMm2.toFixed(0)} (${(100 * ae).toFixed(0)} %)`);
+            badAcc.push(`${tag}${standsAlone(t, r.truth) ? '' : ' (overlaps another feature)'}: measured C ${b.contrastPct.toFixed(2)} (${(100 * ce).toFixed(0)} %), area ${b.areaMm2.toFixed(0)} vs ${t.areaMm2.toFixed(0)} (${(100 * ae).toFixed(0)} %)`);
           }
         }
       }
@@ -206,13 +221,14 @@ async function main(): Promise<void> {
   log(`  kind right, found:         ${pct(kindOk, kindN)}   (acceptance >= 90 %)`);
   log(`  contrast within 25 %, SEMU >= 2: ${pct(contrastOk, accN)}; error median ${(100 * quant(cErr, 0.5)).toFixed(1)} %, 5-95 % ${(100 * quant(cErr, 0.05)).toFixed(1)} .. ${(100 * quant(cErr, 0.95)).toFixed(1)} %`);
   log(`  area within 30 %, SEMU >= 2:     ${pct(areaOk, accN)}; error median ${(100 * quant(aErr, 0.5)).toFixed(1)} %, 5-95 % ${(100 * quant(aErr, 0.05)).toFixed(1)} .. ${(100 * quant(aErr, 0.95)).toFixed(1)} %`);
+  log(`  the same for features standing alone (no other feature's half-peak box touches theirs): contrast ${pct(isoContrastOk, isoN)}, area ${pct(isoAreaOk, isoN)}`);
   log(`  unmatched findings of SEMU >= 1: ${falseSemu1} (${(falseSemu1 / Math.max(1, nGray)).toFixed(2)} per photo)`);
   for (const u of unmatched) log(`  unmatched: ${u}`);
   for (const m of misses) log(`  missed: ${m}`);
   for (const m of wrongKinds) log(`  kind: ${m}`);
   for (const m of badAcc) log(`  accuracy: ${m}`);
   for (const e of errors) log(`  error: ${e}`);
-  summary.gray = { photos: nGray, recallN, recallHit, kindN, kindOk, accN, contrastOk, areaOk, falseSemu1, misses, wrongKinds, badAcc, errors };
+  summary.gray = { photos: nGray, recallN, recallHit, kindN, kindOk, accN, contrastOk, areaOk, isoN, isoContrastOk, isoAreaOk, falseSemu1, misses, wrongKinds, badAcc, errors };
 
   // 2. clean gray fields
   let cleanFalse = 0;
