@@ -10,10 +10,9 @@
 // scale) are what a worker would otherwise keep between the photos of a lot.
 
 import { EvenfieldError } from '../errors.js';
-import { SRGB_TO_XYZ } from '../photometry/index.js';
 import type { Plane, RgbImage } from '../types.js';
 import type { ApplyOptions, Transmission } from './profile.js';
-import { isChannelTransmission } from './profile.js';
+import { divideWithLuminance, isChannelTransmission } from './profile.js';
 
 /** Default distance between nodes, in work pixels. */
 export const COARSE_TRANSMISSION_STEP = 8;
@@ -67,7 +66,7 @@ function axisWeights(n: number, step: number, nodes: number): { i0: Int32Array; 
 }
 
 /** Interpolated transmission of one plane along work row y into `out` (length width). */
-function rowInto(T: CoarseTransmission, plane: Float32Array, y: number, ax: { i0: Int32Array; f: Float32Array }, coarseRow: Float64Array, out: Float64Array): void {
+function rowInto(T: CoarseTransmission, plane: Float32Array, y: number, ax: { i0: Int32Array; f: Float32Array }, coarseRow: Float64Array, out: Float32Array): void {
   const g = (y + 0.5) / T.step - 0.5;
   const j = Math.max(0, Math.min(T.rows - 2, Math.floor(g)));
   const fy = g - j;
@@ -121,44 +120,14 @@ export function applyCoarseTransmissionWithLuminance(img: RgbImage, T: CoarseTra
   const w = img.width;
   const ax = axisWeights(w, T.step, T.cols);
   const coarseRow = new Float64Array(T.cols);
-  const rowT = [new Float64Array(w), new Float64Array(w), new Float64Array(w)];
+  // rows of transmission as float32, as the full planes hold it
+  const rowT = [new Float32Array(w), new Float32Array(w), new Float32Array(w)];
   const chan = T.planes.length === 3 ? [0, 1, 2] : [0, 0, 0];
-  const [, , , yr, yg, yb] = SRGB_TO_XYZ as [number, number, number, number, number, number];
-  const d = img.data;
   const lum = new Float32Array(w * img.height);
   let clamped = 0;
   for (let y = 0; y < img.height; y++) {
     for (let c = 0; c < T.planes.length; c++) rowInto(T, T.planes[c], y, ax, coarseRow, rowT[c]);
-    const t0 = rowT[chan[0]];
-    const t1 = rowT[chan[1]];
-    const t2 = rowT[chan[2]];
-    const row = y * w;
-    for (let x = 0; x < w; x++) {
-      let g0 = t0[x];
-      let g1 = t1[x];
-      let g2 = t2[x];
-      if (!(g0 >= floor)) {
-        g0 = floor;
-        clamped++;
-      }
-      if (!(g1 >= floor)) {
-        g1 = floor;
-        clamped++;
-      }
-      if (!(g2 >= floor)) {
-        g2 = floor;
-        clamped++;
-      }
-      const k = 3 * (row + x);
-      // the values as stored (float32), as luminancePlane would read them back
-      const r = Math.fround(d[k] / g0);
-      const g = Math.fround(d[k + 1] / g1);
-      const b = Math.fround(d[k + 2] / g2);
-      d[k] = r;
-      d[k + 1] = g;
-      d[k + 2] = b;
-      lum[row + x] = yr * r + yg * g + yb * b;
-    }
+    clamped += divideWithLuminance(img.data, lum, y * w, y * w + w, rowT[chan[0]], rowT[chan[1]], rowT[chan[2]], floor);
   }
   return { clamped, luminance: { width: w, height: img.height, data: lum } };
 }

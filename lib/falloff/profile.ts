@@ -296,29 +296,17 @@ export function applyTransmission(img: RgbImage, T: Transmission, opts: ApplyOpt
 }
 
 /**
- * applyTransmission and then the luminance plane of the corrected image (luminancePlane's weights and
- * values), in one pass over the pixels. Returns the clamped count and the luminance.
+ * Divides pixels i0..i1-1 of an interleaved RGB image by the transmissions t0, t1, t2 (read from index 0
+ * for pixel i0), in place, and writes their luminance into lum; a transmission below the floor counts as
+ * the floor. Returns how many values were clamped. Shared by the full-plane and the coarse-grid corrections.
  */
-export function applyTransmissionWithLuminance(img: RgbImage, T: Transmission, opts: ApplyOptions = {}): { clamped: number; luminance: Plane } {
-  const floor = opts.floor ?? 0.02;
-  const planes = isChannelTransmission(T) ? [T.r, T.g, T.b] : [T, T, T];
-  for (const p of planes) {
-    if (p.width !== img.width || p.height !== img.height) {
-      throw new EvenfieldError('falloff', `transmission is ${p.width}×${p.height} but the image is ${img.width}×${img.height}`);
-    }
-  }
-  const n = img.width * img.height;
-  const d = img.data;
-  const t0 = planes[0].data;
-  const t1 = planes[1].data;
-  const t2 = planes[2].data;
+export function divideWithLuminance(d: Float32Array, lum: Float32Array, i0: number, i1: number, t0: Float32Array, t1: Float32Array, t2: Float32Array, floor: number): number {
   const [, , , yr, yg, yb] = SRGB_TO_XYZ as [number, number, number, number, number, number];
-  const lum = new Float32Array(n);
   let clamped = 0;
-  for (let i = 0, k = 0; i < n; i++, k += 3) {
-    let g0 = t0[i];
-    let g1 = t1[i];
-    let g2 = t2[i];
+  for (let i = i0, j = 0, k = 3 * i0; i < i1; i++, j++, k += 3) {
+    let g0 = t0[j];
+    let g1 = t1[j];
+    let g2 = t2[j];
     if (!(g0 >= floor)) {
       g0 = floor;
       clamped++;
@@ -340,6 +328,23 @@ export function applyTransmissionWithLuminance(img: RgbImage, T: Transmission, o
     d[k + 2] = b;
     lum[i] = yr * r + yg * g + yb * b;
   }
+  return clamped;
+}
+
+/**
+ * applyTransmission and then the luminance plane of the corrected image (luminancePlane's weights and
+ * values), in one pass over the pixels. Returns the clamped count and the luminance.
+ */
+export function applyTransmissionWithLuminance(img: RgbImage, T: Transmission, opts: ApplyOptions = {}): { clamped: number; luminance: Plane } {
+  const floor = opts.floor ?? 0.02;
+  const planes = isChannelTransmission(T) ? [T.r, T.g, T.b] : [T, T, T];
+  for (const p of planes) {
+    if (p.width !== img.width || p.height !== img.height) {
+      throw new EvenfieldError('falloff', `transmission is ${p.width}×${p.height} but the image is ${img.width}×${img.height}`);
+    }
+  }
+  const lum = new Float32Array(img.width * img.height);
+  const clamped = divideWithLuminance(img.data, lum, 0, lum.length, planes[0].data, planes[1].data, planes[2].data, floor);
   return { clamped, luminance: { width: img.width, height: img.height, data: lum } };
 }
 

@@ -1,6 +1,5 @@
 import { describe, expect, it } from 'vitest';
 import {
-  PROFILE_FORMAT,
   applyCoarseTransmissionWithLuminance,
   applyTransmissionWithLuminance,
   channelTransmissionFromProfile,
@@ -12,6 +11,7 @@ import {
 } from '../../lib/falloff/index.js';
 import type { FalloffProfile } from '../../lib/falloff/index.js';
 import { EvenfieldError } from '../../lib/errors.js';
+import { makeProfile } from './profiles.js';
 import type { Plane, RgbImage } from '../../lib/types.js';
 
 // The coarse grid is checked against the transmission evaluated at every pixel. The tolerance comes from
@@ -36,38 +36,18 @@ function maxAbsDiff(T: Plane, at: (x: number, y: number) => number): number {
   return worst;
 }
 
+// strong falloff (corners near half the centre's light), a tilted surface and per-channel terms
 function profile(): FalloffProfile {
-  return {
-    format: PROFILE_FORMAT,
-    version: 1,
-    kind: 'flat-frames',
-    createdAt: null,
-    camera: { make: 'Acme', model: 'Phone 9', lens: null, focalLengthMm: 4.2, focal35mm: 26, fNumber: 1.8, imageWidth: 400, imageHeight: 300 },
-    // strong falloff (corners near half the centre's light), a tilted surface and per-channel terms
-    model: {
-      centre: [0.1, -0.2],
-      radial: [-0.7, 0.15],
-      surfaceOrder: 3,
-      surface: [
-        [2, 0, 0.05],
-        [0, 3, 0.02],
-      ],
-      channels: { r: [[2, 0, 0.01]], g: [], b: [[1, 1, -0.01]] },
-    },
-    fit: {
-      frames: 3,
-      samples: 100,
-      rejectedSamples: 0,
-      residualRmsPct: 0.1,
-      residualMaxPct: 0.3,
-      removedTiltPct: { x: 0, y: 0 },
-      radialConversionErrorPct: 0.01,
-      cornerTransmission: 0.5,
-      centreUncertainty: null,
-      conditioning: null,
-      notes: [],
-    },
-  } as FalloffProfile;
+  return makeProfile({
+    centre: [0.1, -0.2],
+    radial: [-0.7, 0.15],
+    surfaceOrder: 3,
+    surface: [
+      [2, 0, 0.05],
+      [0, 3, 0.02],
+    ],
+    channels: { r: [[2, 0, 0.01]], g: [], b: [[1, 1, -0.01]] },
+  });
 }
 
 describe('coarse transmission grid', () => {
