@@ -214,9 +214,10 @@ export function measureRegion(
 
 /**
  * Is the new region a re-detection of a found one (the same feature at another scale or seed)?
- * It is when more than half of the smaller region lies in the larger and either they are of
- * comparable size (within 8x) or both are elongated the same way (a line seen again, broadened, at a
- * coarser scale). A much smaller round region inside a larger one is a nested feature instead.
+ * It is when both have the same sign, more than half of the smaller region lies in the larger, and
+ * either they are of comparable size (within 8x) or both are elongated the same way (a line seen again,
+ * broadened, at a coarser scale). A much smaller round region inside a larger one is a nested feature
+ * instead.
  */
 export function isDuplicate(ctx: Ctx, f: Found): boolean {
   const overlap = new Map<number, number>();
@@ -228,6 +229,8 @@ export function isDuplicate(ctx: Ctx, f: Found): boolean {
   const elongated = (g: Found): boolean => g.lengthMm >= 3 * g.widthMm;
   for (const [l, c] of overlap) {
     const other = ctx.found[l - 1];
+    // a feature of the other sign is never the same one seen again (a dark cloud across a bright band)
+    if (other.sign !== f.sign) continue;
     const no = other.pixels.length;
     const small = Math.min(n, no);
     if (c <= 0.5 * small) continue;

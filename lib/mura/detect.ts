@@ -349,7 +349,9 @@ export function detectFeatures(ctx: Ctx, levelsIn: Level[], useFitFloor = true):
   for (const lv of levels) {
     const thr = Math.max(o.thresholdSigma * lv.noiseS, floor);
     const before = cands.length;
-    for (const sign of [1, -1] as const) candidatesOn(lv, sign, thr, cands);
+    // a spot (narrower than a cloud) may be measured against a plateau of the other sign (halfPeak)
+    const spotPx = o.cloudMinMm / (ctx.mmPerPx * lv.f);
+    for (const sign of [1, -1] as const) candidatesOn(lv, sign, thr, cands, spotPx);
     if (process.env.MURA_DBG) console.log(`level ${lv.l} ${lv.w}x${lv.h} noiseM ${lv.noiseM.toFixed(4)} noiseS ${lv.noiseS.toFixed(4)} thr ${thr.toFixed(3)} candidates ${cands.length - before}`);
   }
   // group across levels: the same feature is seen on neighbouring levels at about the same place
@@ -412,7 +414,7 @@ export function noiseCorrelation(levels: Level[]): number {
   return rho;
 }
 
-function candidatesOn(lv: Level, sign: 1 | -1, thr: number, out: Candidate[]): void {
+function candidatesOn(lv: Level, sign: 1 | -1, thr: number, out: Candidate[], spotPx: number): void {
   const { w, h, s } = lv;
   const seen = new Uint8Array(w * h);
   const stack: number[] = [];
@@ -442,12 +444,12 @@ function candidatesOn(lv: Level, sign: 1 | -1, thr: number, out: Candidate[]): v
   peaks.sort((a, b) => sign * s[b] - sign * s[a]);
   const mine: Candidate[] = [];
   for (const p of peaks.slice(0, MAX_CANDIDATES)) {
-    const c = halfPeak(lv, p, sign, thr);
+    const c = halfPeak(lv, p, sign, thr, spotPx);
     if (!c) continue;
     out.push(c);
     mine.push(c);
     // a feature on a plateau of its sign: the plateau is a feature too
-    if (c.pedestal !== 0) {
+    if (sign * c.pedestal > 0) {
       const under = plateauUnder(lv, c, sign, thr, null);
       if (under) out.push(under);
     }
@@ -587,7 +589,7 @@ function flood(lv: Level, start: number, sign: 1 | -1, level: number): { region:
 }
 
 /** The half-peak region around a peak on a level, against the local surround. */
-function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number): Candidate | null {
+function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number, spotPx: number): Candidate | null {
   const { w, s } = lv;
   let peak = s[peakIdx];
   // First against the global background. A feature sitting on a plateau of the same sign (a spot on a
@@ -621,6 +623,22 @@ function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number): Candid
       const again = flood(lv, peakIdx, sign, sign * (pedestal + 0.5 * (peak - pedestal)));
       if (!again) return null;
       fl = again;
+    }
+  } else if (near !== null && -sign * near > 3 * noise && -sign * near < sign * peak && 2 * Math.sqrt(fl.region.length / Math.PI) < spotPx) {
+    // A spot on a plateau of the other sign (a dark spot on a bright cloud, or where the smooth surface
+    // runs under the field) is measured against it too, when the ring twice as far out is on it as well.
+    // Only while the half level stays on the feature's side of the background (below that the flood
+    // would run out over the background beyond the plateau), and only for spots: around something of
+    // a cloud's size the surface's own bends are of its size too, and a dip between two bright clouds
+    // measured against them came out as a dark cloud (seen on generated photos).
+    const far = surround(lv, fl.region, fl.gen, 3, 4);
+    if (far !== null && -sign * far >= 0.6 * -sign * near) {
+      const again = flood(lv, peakIdx, sign, sign * (near + 0.5 * (peak - near)));
+      // and still a spot measured so (a dip that spreads out to a cloud's size is no spot on a plateau)
+      if (again && 2 * Math.sqrt(again.region.length / Math.PI) < spotPx) {
+        pedestal = near;
+        fl = again;
+      }
     }
   }
   return candidateOf(lv, sign, peak, peakIdx, pedestal, fl.region.sort(), noise, null);
@@ -1177,6 +1195,18 @@ function findBands(ctx: Ctx, lv: Level, floor: number): BandProfile[] {
       for (const pk of peaks.slice(0, 10)) extrema.push([pk, sign]);
     }
     extrema.sort((a, b) => Math.abs(S[b[0]]) - Math.abs(S[a[0]]));
+    // each extremum's own half-peak span (against the background): a strip beside one band that falls on
+    // another band of the same sign must not take that band for its pedestal
+    const spanOf = (pk: number, sign: 1 | -1, level: number): [number, number] => {
+      let a = pk;
+      let b = pk;
+      while (a > 0 && sign * S[a - 1] >= level) a--;
+      while (b < across - 1 && sign * S[b + 1] >= level) b++;
+      return [a, b];
+    };
+    const spans = extrema.map(([pk, sign]) => spanOf(pk, sign, 0.5 * sign * S[pk]));
+    // columns of the other extrema's spans that lie clear of the band's own extent (rebuilt with it)
+    const others = new Uint8Array(across);
     {
       for (const [pk, sign] of extrema) {
         if (taken[pk]) continue;
@@ -1184,10 +1214,13 @@ function findBands(ctx: Ctx, lv: Level, floor: number): BandProfile[] {
         let c0 = pk;
         let c1 = pk;
         const extent = (level: number): void => {
-          c0 = pk;
-          c1 = pk;
-          while (c0 > 0 && sign * S[c0 - 1] >= level) c0--;
-          while (c1 < across - 1 && sign * S[c1 + 1] >= level) c1++;
+          [c0, c1] = spanOf(pk, sign, level);
+          others.fill(0);
+          extrema.forEach(([q, qs], k) => {
+            const [a, b] = spans[k];
+            if (q === pk || qs !== sign || (b >= c0 && a <= c1)) return;
+            for (let c = a; c <= b; c++) others[c] = 1;
+          });
         };
         extent(half);
         if (c0 === 0 && c1 === across - 1) continue; // the whole panel: not a band
@@ -1212,7 +1245,7 @@ function findBands(ctx: Ctx, lv: Level, floor: number): BandProfile[] {
           let sum = 0;
           let cnt = 0;
           for (let c = from; c <= to; c++) {
-            if (surround && blocked[c]) continue;
+            if (surround && (blocked[c] || others[c])) continue;
             for (let a = a0; a < a1; a++) {
               const i = at(a, c);
               if (lv.n[i] > 0) {
@@ -1242,7 +1275,16 @@ function findBands(ctx: Ctx, lv: Level, floor: number): BandProfile[] {
         let pedestal = 0;
         for (let iter = 0; iter < 2; iter++) {
           const p = profileBeside();
-          if (!(Math.abs(p) > 0.25 * Math.abs(S[pk]))) break;
+          if (!(Math.abs(p) > 0.25 * Math.abs(S[pk]))) {
+            if (pedestal !== 0) {
+              // the strips beside the narrowed extent no longer stand on it: it was no pedestal
+              pedestal = 0;
+              half = 0.5 * sign * S[pk];
+              extent(half);
+              sides();
+            }
+            break;
+          }
           pedestal = p;
           half = sign * (pedestal + 0.5 * (S[pk] - pedestal));
           extent(half);
@@ -1264,7 +1306,7 @@ function findBands(ctx: Ctx, lv: Level, floor: number): BandProfile[] {
             let sum = 0;
             let cnt = 0;
             for (let c = a; c <= b; c++) {
-              if (Number.isFinite(S[c]) && !blocked[c]) {
+              if (Number.isFinite(S[c]) && !blocked[c] && !others[c]) {
                 sum += S[c];
                 cnt++;
               }

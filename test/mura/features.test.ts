@@ -14,22 +14,26 @@ const SMOOTH = [
   [-0.06],
 ];
 
+/** A Gaussian feature of the synthetic map from its sigma (mm), peak (%) and centre (mm). */
+function gauss(f: { sigma: number; peak: number; x: number; y: number }): SynthFeature {
+  return { kind: 'gauss', xMm: f.x, yMm: f.y, sigmaMm: f.sigma, contrastPct: f.peak };
+}
+
 function run(features: SynthFeature[], seed: number, noisePct = 0.5) {
   const map = synthMap({ widthMm: W, heightMm: H, pxPerMm: 2, noisePct, seed, smooth: SMOOTH, features });
   return analyseMura(map, { pattern: 'gray' });
+}
+
+/** The same on a larger map, 400 x 250 mm. */
+function big(features: SynthFeature[], seed: number) {
+  return analyseMura(synthMap({ widthMm: 400, heightMm: 250, pxPerMm: 2, noisePct: 0.5, seed, smooth: SMOOTH, features }), { pattern: 'gray' });
 }
 
 describe('round features', () => {
   it('finds a bright Gaussian spot and a dark Gaussian cloud with the analytical half-peak figures', () => {
     const spot = { sigma: 4, peak: 4, x: 60, y: 50 };
     const cloud = { sigma: 24, peak: -2.5, x: 160, y: 85 };
-    const r = run(
-      [
-        { kind: 'gauss', xMm: spot.x, yMm: spot.y, sigmaMm: spot.sigma, contrastPct: spot.peak },
-        { kind: 'gauss', xMm: cloud.x, yMm: cloud.y, sigmaMm: cloud.sigma, contrastPct: cloud.peak },
-      ],
-      11,
-    );
+    const r = run([gauss(spot), gauss(cloud)], 11);
     expect(r.blobs.length).toBe(2);
     const s = nearest(r.blobs, spot.x, spot.y)!;
     const c = nearest(r.blobs, cloud.x, cloud.y)!;
@@ -71,10 +75,7 @@ describe('features on features', () => {
       noisePct: 0.5,
       seed: 21,
       smooth: SMOOTH,
-      features: [
-        { kind: 'gauss', xMm: cloud.x, yMm: cloud.y, sigmaMm: cloud.sigma, contrastPct: cloud.peak },
-        { kind: 'gauss', xMm: spot.x, yMm: spot.y, sigmaMm: spot.sigma, contrastPct: spot.peak },
-      ],
+      features: [gauss(cloud), gauss(spot)],
     });
     const r = analyseMura(map, { pattern: 'gray' });
     const clouds = r.blobs.filter((b) => b.kind === 'cloud');
@@ -90,12 +91,30 @@ describe('features on features', () => {
     expect(Math.hypot(spots[0].xMm - spot.x, spots[0].yMm - spot.y)).toBeLessThan(1);
   });
 
+  it('measures a dark spot standing on a bright cloud against the cloud', () => {
+    // The cloud lifts the spot's surroundings by 1.5 %: against the smooth background the spot's dip is
+    // only 2.5 % deep and its half-peak region the part where the spot is below -1.25 %, which took
+    // 0.54 of its area (phi >= 0.69 instead of 0.5, ln(1/0.69) / ln 2) and 63 % of its contrast.
+    const cloud = { sigma: 30, peak: 1.5, x: 120, y: 75 };
+    const spot = { sigma: 4, peak: -4, x: 122, y: 77 };
+    const r = run([gauss(cloud), gauss(spot)], 41);
+    const s = r.blobs.find((b) => b.polarity === 'dark');
+    expect(s?.kind).toBe('spot');
+    // analytic truth of a Gaussian's half-peak disc (helpers.ts): 69.7 mm², mean -2.885 % (the spot's own
+    // modulation; against the cloud's top it is -4 / 1.015, within 2 % of that)
+    const ts = gaussTruth(spot.sigma, spot.peak);
+    expect(Math.hypot(s!.xMm - spot.x, s!.yMm - spot.y)).toBeLessThan(1);
+    expect(relErr(s!.contrastPct, ts.contrastPct)).toBeLessThan(0.25);
+    expect(relErr(s!.areaMm2, ts.areaMm2)).toBeLessThan(0.3);
+    expect(r.blobs.some((b) => b.polarity === 'bright' && b.kind === 'cloud')).toBe(true);
+  });
+
   it('measures a faint cloud on a noisy map at its true size (the top taken from a fitted surface)', () => {
     // peak 1.5 % on 1 % pixel noise: the largest pixel of the smoothed level it is measured on stands
     // several noise sigmas above the true top, and a half-peak level taken from it shrinks the region
     // (to 0.66 of the true area on this map, before the top was fitted)
     const cloud = { sigma: 20, peak: 1.5, x: 120, y: 75 };
-    const r = run([{ kind: 'gauss', xMm: cloud.x, yMm: cloud.y, sigmaMm: cloud.sigma, contrastPct: cloud.peak }], 31, 1.0);
+    const r = run([gauss(cloud)], 31, 1.0);
     const c = nearest(r.blobs, cloud.x, cloud.y)!;
     // analytic truth (helpers.ts, derived by hand): 1742 mm², mean 1.08 %
     const tc = gaussTruth(cloud.sigma, cloud.peak);
@@ -106,9 +125,6 @@ describe('features on features', () => {
 });
 
 describe('features against the panel edge or crossing others', () => {
-  const big = (features: SynthFeature[], seed: number) =>
-    analyseMura(synthMap({ widthMm: 400, heightMm: 250, pxPerMm: 2, noisePct: 0.5, seed, smooth: SMOOTH, features }), { pattern: 'gray' });
-
   it('measures a band across a strong cloud from its profile along it, not the plain mean over its pixels', () => {
     // the cloud adds its own light to the stretch of the band it covers; measured as the plain mean over
     // the band's pixels the band came out at 3.55 % (+74 %)
@@ -131,7 +147,7 @@ describe('features against the panel edge or crossing others', () => {
     // centred 45 mm from the bottom edge (1.1 sigma): left in the surface fit as an edge effect, the
     // surface bent into it and its half-peak region came out at 0.63 of the true area
     const cloud = { sigma: 40, peak: -2.5, x: 220, y: 205 };
-    const r = big([{ kind: 'gauss', xMm: cloud.x, yMm: cloud.y, sigmaMm: cloud.sigma, contrastPct: cloud.peak }], 41);
+    const r = big([gauss(cloud)], 41);
     const c = nearest(r.blobs, cloud.x, cloud.y)!;
     // analytic truth (helpers.ts, derived by hand): 6970 mm², mean -1.80 %
     const tc = gaussTruth(cloud.sigma, cloud.peak);
@@ -190,6 +206,56 @@ describe('lines and bands', () => {
     expect(band.bbox[0]).toBeLessThan(0.05);
     expect(band.bbox[2]).toBeGreaterThan(0.95);
     expect(nearest(r.blobs, 60, 40)!.kind).toBe('spot');
+  });
+});
+
+describe('neighbouring bands', () => {
+  it('measures a wide band beside a narrower one of the same sign at its own width', () => {
+    // raised-cosine bands (FWHM w, support 2w) on a 400 x 250 mm map: the wide one spans 24..96 mm, the
+    // narrow one 94..142 mm. The strip beside the wide band where its pedestal is looked for lies on the
+    // narrow band; taken for a pedestal it narrowed the wide band to 0.66 of its true area.
+    const r = big(
+      [
+        { kind: 'band', axis: 'horizontal', posMm: 60, fwhmMm: 36, profile: 'cos', contrastPct: -8 },
+        { kind: 'band', axis: 'horizontal', posMm: 118, fwhmMm: 24, profile: 'cos', contrastPct: -6 },
+      ],
+      17,
+    );
+    expect(r.blobs).toHaveLength(2);
+    const [wide, narrow] = [...r.blobs].sort((a, b) => a.yMm - b.yMm);
+    // half-peak strip w wide across the panel, mean 1/2 + 1/pi of the peak (integral by hand, as above)
+    for (const [b, pos, w, peak] of [
+      [wide, 60, 36, -8],
+      [narrow, 118, 24, -6],
+    ] as const) {
+      expect(b.kind).toBe('band');
+      expect(Math.abs(b.yMm - pos)).toBeLessThan(2);
+      expect(relErr(b.areaMm2, w * 400)).toBeLessThan(0.3);
+      expect(relErr(b.contrastPct, peak * (0.5 + 1 / Math.PI))).toBeLessThan(0.25);
+    }
+  });
+});
+
+describe('features of the other sign on a band', () => {
+  it('keeps a dark round feature lying across a bright band (not a re-detection of the band)', () => {
+    // The feature's half-peak disc lies mostly inside the band's strip and is within 8x of its size:
+    // taken for the band seen again, it was dropped.
+    const r = big(
+      [
+        { kind: 'band', axis: 'vertical', posMm: 200, fwhmMm: 30, profile: 'cos', contrastPct: 3 },
+        { kind: 'gauss', xMm: 205, yMm: 120, sigmaMm: 18, contrastPct: -6 },
+      ],
+      7,
+    );
+    const dark = r.blobs.filter((b) => b.polarity === 'dark');
+    expect(dark).toHaveLength(1);
+    // analytic truth of a Gaussian's half-peak disc (helpers.ts): 1411 mm², mean -4.33 %
+    const t = gaussTruth(18, -6);
+    expect(Math.hypot(dark[0].xMm - 205, dark[0].yMm - 120)).toBeLessThan(3);
+    expect(relErr(dark[0].contrastPct, t.contrastPct)).toBeLessThan(0.25);
+    expect(relErr(dark[0].areaMm2, t.areaMm2)).toBeLessThan(0.3);
+    const band = r.blobs.find((b) => b.kind === 'band');
+    expect(band?.polarity).toBe('bright');
   });
 });
 
