@@ -383,7 +383,17 @@ function drawSummary(ctx: Ctx): void {
     );
   }
 
-  const warnings = panel.photos.flatMap((p) => [...p.warnings, ...(p.falloff?.warnings ?? [])].map((w) => `${patternName(p.pattern, p.patternLevel)}: ${w}`));
+  // a warning that several photos share (the same pose of the camera, say) is given once, with their patterns
+  const byText = new Map<string, string[]>();
+  for (const p of panel.photos) {
+    for (const w of [...p.warnings, ...(p.falloff?.warnings ?? [])]) {
+      const names = byText.get(w) ?? [];
+      const name = patternName(p.pattern, p.patternLevel);
+      if (!names.includes(name)) names.push(name);
+      byText.set(w, names);
+    }
+  }
+  const warnings = [...byText].map(([w, names]) => `${names.join(', ')}: ${w}`);
   if (warnings.length > 0) {
     flow.heading('Warnings', 3, 24);
     for (const w of warnings.slice(0, 6)) flow.text(`\u2022 ${w}`, { size: 8, after: 1.5 });

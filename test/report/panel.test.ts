@@ -134,6 +134,16 @@ describe('per-panel report, other cases', () => {
     expect(t).toMatch(/Every figure judged was inside its limit\. Closest to its limit:/);
   });
 
+  it('a warning that every photo shares is listed once on the first page, with their patterns', async () => {
+    const input = fakePanel();
+    const w = 'part of the panel is seen 30.4° off its normal: its own angular emission may bias the corner values';
+    for (const ph of input.panel.photos) ph.warnings = [w];
+    const pages = poppler('pdftotext', await renderPanelPdf(input)).split('\f');
+    const first = flat(pages[0]!);
+    expect(first).toContain(`White, Grey 50 %, Black: ${w}`);
+    expect(first.split(w).length - 1).toBe(1);
+  });
+
   it('a photo that could not be measured and has no pictures still gets its page', async () => {
     const input = fakePanel([THREE_PATTERNS[0]!]);
     const bad = fakePhoto({ ...THREE_PATTERNS[2]!, status: 'error' }, 1).photo;
