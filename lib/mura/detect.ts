@@ -622,7 +622,9 @@ function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number, spotPx:
   // Lit fields only: on black fields the surface also follows a glow's steep tail, and the specks of
   // noise on it measured against it came out as spots (4 -> 17 findings of SEMU >= 1 besides the glows
   // on 20 generated black fields).
-  const isSpot = 2 * Math.sqrt(fl.region.length / Math.PI) < spotPx;
+  // narrower than a cloud: the equivalent diameter of a region of n level px under spotPx
+  const spotSized = (n: number): boolean => 2 * Math.sqrt(n / Math.PI) < spotPx;
+  const isSpot = spotSized(fl.region.length);
   const ring = isSpot && ringFit ? ringSurface(lv, fl.region, fl.gen, 2.5, 4) : null;
   const near = surround(lv, fl.region, fl.gen, 1.5, 2.5);
   if (ring) {
@@ -635,7 +637,7 @@ function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number, spotPx:
     // would run out over the background beyond the plateau)
     if (Math.abs(p) > 3 * noise && ring.rms < 0.25 * Math.abs(peak - p) && (sign * p > 0 || -sign * p < sign * peak)) {
       const again = flood(lv, peakIdx, sign, sign * (p + 0.5 * (peak - p)));
-      if (again && 2 * Math.sqrt(again.region.length / Math.PI) < spotPx) {
+      if (again && spotSized(again.region.length)) {
         pedestal = p;
         fl = again;
       }
@@ -659,7 +661,7 @@ function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number, spotPx:
     if (far !== null && -sign * far >= 0.6 * -sign * near) {
       const again = flood(lv, peakIdx, sign, sign * (near + 0.5 * (peak - near)));
       // and still a spot measured so (a dip that spreads out to a cloud's size is no spot on a plateau)
-      if (again && 2 * Math.sqrt(again.region.length / Math.PI) < spotPx) {
+      if (again && spotSized(again.region.length)) {
         pedestal = near;
         fl = again;
       }
