@@ -120,18 +120,52 @@ interface Pair {
   b: Blob | null;
 }
 
-function pairUp(truth: FeatureTruth[], blobs: Blob[], W: number, H: number): { pairs: Pair[]; extra: Blob[] } {
-  const used = new Set<Blob>();
-  const pairs: Pair[] = [];
-  for (const t of [...truth].sort((a, b) => b.semu - a.semu)) {
-    let best: Blob | null = null;
-    for (const b of blobs) {
-      if (used.has(b) || !matches(b, t, W, H)) continue;
-      if (!best || b.semu > best.semu) best = b;
-    }
-    if (best) used.add(best);
-    pairs.push({ t, b: best });
+/** How far a matching blob lies from the truth part: centre offset over the part's radius (half-width
+ *  across a band) plus the log ratio of the areas. */
+function misfit(b: Blob, t: FeatureTruth): number {
+  const area = Math.abs(Math.log(Math.max(b.areaMm2, 1e-6) / Math.max(t.areaMm2, 1e-6)));
+  if (t.kind === 'band' || t.kind === 'line') {
+    const across = t.detail.axis === 'vertical' ? Math.abs(b.xMm - t.xMm) : Math.abs(b.yMm - t.yMm);
+    return across / Math.max(2.5, Number(t.detail.widthMm) / 2) + area;
   }
+  return Math.hypot(b.xMm - t.xMm, b.yMm - t.yMm) / Math.max(5, Math.sqrt(t.areaMm2 / Math.PI)) + area;
+}
+
+/**
+ * Each truth part gets at most one blob and each blob at most one part: of all such pairings, the one
+ * with the most pairs; of those, the one with the most pairs of the same kind; then the least total
+ * misfit (exhaustive: a photo has at most four parts and a few blobs near each). Whether a part is
+ * found does not depend on kinds; the kind only decides which of two findings that both lie on two
+ * parts goes to which (a band's finding to the band, not to the cloud it crosses). A greedy pairing -
+ * strongest part first takes its strongest blob - could hand one feature's finding to a neighbour it
+ * also lies on and leave the first unpaired.
+ */
+function pairUp(truth: FeatureTruth[], blobs: Blob[], W: number, H: number): { pairs: Pair[]; extra: Blob[] } {
+  const options = truth.map((t) => blobs.filter((b) => matches(b, t, W, H)).map((b) => ({ b, same: b.kind === t.kind ? 1 : 0, cost: misfit(b, t) })));
+  let best: { n: number; same: number; cost: number; pick: (Blob | null)[] } = { n: -1, same: -1, cost: Infinity, pick: [] };
+  const pick: (Blob | null)[] = [];
+  const taken = new Set<Blob>();
+  const walk = (k: number, n: number, same: number, cost: number): void => {
+    if (k === truth.length) {
+      const better = n !== best.n ? n > best.n : same !== best.same ? same > best.same : cost < best.cost;
+      if (better) best = { n, same, cost, pick: [...pick] };
+      return;
+    }
+    for (const o of options[k]) {
+      if (taken.has(o.b)) continue;
+      taken.add(o.b);
+      pick.push(o.b);
+      walk(k + 1, n + 1, same + o.same, cost + o.cost);
+      pick.pop();
+      taken.delete(o.b);
+    }
+    pick.push(null);
+    walk(k + 1, n, same, cost);
+    pick.pop();
+  };
+  walk(0, 0, 0, 0);
+  const used = new Set(best.pick.filter((b): b is Blob => b !== null));
+  const pairs = truth.map((t, k) => ({ t, b: best.pick[k] ?? null }));
   return { pairs, extra: blobs.filter((b) => !used.has(b)) };
 }
 
