@@ -166,6 +166,9 @@ export interface MuraResult {
   /** smallest resolvable contrast (%) at a few feature diameters, mm -> % */
   resolvableContrastPct: Record<string, number>;
   backgroundModel: string;
+  /** share of the panel (%) left out of the background fit around the features found (absent in
+   *  results written before it) */
+  coveredPct?: number;
   /** candidates found and then left out, with the reason (absent in results written before it) */
   leftOut?: LeftOutFinding[];
 }

@@ -26,6 +26,10 @@ export interface MuraAnalysis extends MuraResult {
   workScale: number;
   /** plain-language cautions about the figures */
   notes: string[];
+  /** share of the panel (%) left out of the background fit around the features found */
+  coveredPct: number;
+  /** cautions the photo's own result should carry as warnings (see MuraOptions.coverageCautionPct) */
+  cautions: string[];
 }
 
 /** Diameters (mm) at which the smallest resolvable contrast is reported. */
@@ -122,6 +126,13 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
   }
   if (!map.mmKnown) notes.push('Areas and SEMU use the nominal panel size: mm are nominal units.');
   const maskedPct = mask ? (100 * countOf(mask)) / N : 0;
+  const cautions: string[] = [];
+  if (opts.coverageCautionPct > 0 && maskedPct >= opts.coverageCautionPct) {
+    cautions.push(
+      `${Math.round(maskedPct)} % of the panel lies under or around the mura features found and was left out of the background fit: ` +
+        'the background there is carried over from the rest of the panel, so the contrast and area of the largest features, and of any lying between them, are less certain than elsewhere',
+    );
+  }
   const backgroundModel =
     `polynomial surface of order ${fit.order} (Legendre terms) fitted robustly on ${round(fit.cellPx * work.mmPerPx, 2)} mm cells; ` +
     `${round(maskedPct, 1)} % of the panel masked as features; model error ${round(fit.fitErrorPct, 3)} %` +
@@ -156,6 +167,8 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
     background: { width: work.w, height: work.h, data: bg },
     workScale: factor,
     notes,
+    coveredPct: round(maskedPct, 1),
+    cautions,
   };
 }
 

@@ -71,6 +71,12 @@ export interface MuraOptions {
   fitSigma: number;
   /** findings below this SEMU are not reported (default 0.5) */
   semuFloor: number;
+  /** when the background fit had to leave out at least this share of the panel (%) around the features
+   *  found, the analysis says that the figures of the largest features are less certain (default 35; 0 =
+   *  never). The surface under them is then carried over from the rest of the panel. Accuracy study
+   *  (scripts/mura-accuracy.ts, first set): every feature of SEMU >= 2 measured outside +-25 % contrast
+   *  or +-30 % area lay on a photo with 37.7-55.7 % left out; none of the 37 photos with less had one */
+  coverageCautionPct: number;
   semuConstants: SemuConstants;
   background: BackgroundOptions;
   /** round features at least this wide (mm, half-peak diameter) are clouds, smaller ones spots (default 45) */
@@ -158,6 +164,7 @@ export function resolveMuraOptions(input: MuraOptionsInput): MuraOptions {
     thresholdSigma: input.thresholdSigma ?? 5,
     fitSigma: input.fitSigma ?? 3,
     semuFloor: input.semuFloor ?? 0.5,
+    coverageCautionPct: input.coverageCautionPct ?? 35,
     semuConstants: { ...DEFAULT_SEMU_CONSTANTS, ...stripUndefined(input.semuConstants ?? {}) },
     background: bg,
     cloudMinMm: input.cloudMinMm ?? 45,
@@ -198,6 +205,9 @@ function validate(o: MuraOptions): void {
   positive('thresholdSigma', o.thresholdSigma);
   if (!(Number.isFinite(o.fitSigma) && o.fitSigma >= 0)) bad(`fitSigma must be >= 0, got ${o.fitSigma}`);
   if (!(Number.isFinite(o.semuFloor) && o.semuFloor >= 0)) bad(`semuFloor must be >= 0, got ${o.semuFloor}`);
+  if (!(Number.isFinite(o.coverageCautionPct) && o.coverageCautionPct >= 0 && o.coverageCautionPct <= 100)) {
+    bad(`coverageCautionPct must be between 0 and 100, got ${o.coverageCautionPct}`);
+  }
   positive('cloudMinMm', o.cloudMinMm);
   positive('lineMaxWidthMm', o.lineMaxWidthMm);
   if (!(o.bandMinSpan > 0 && o.bandMinSpan <= 1)) bad(`bandMinSpan must be in (0, 1], got ${o.bandMinSpan}`);

@@ -339,8 +339,9 @@ async function measureInner(
         `the photo's 8-bit coding resolves the panel's level in steps of ${codeStepPct.toFixed(1)} % here: small mura fainter than that cannot be told from the coding; expose the field higher (code values 180-230 of 255) for finer mura figures`,
       );
     }
-    const { contrast, background, ...rest } = mura;
+    const { contrast, background, cautions, ...rest } = mura;
     void background;
+    result.warnings.push(...cautions);
     result.mura = rest;
     result.blobs = rest.blobs;
     contrastMap = contrast;

@@ -1,0 +1,44 @@
+// How much of the panel the background fit had to leave out around the features, and the caution raised
+// when that share is large. Truths: the Gaussian half-peak disc area (derived by hand; helpers.ts) is a
+// lower bound of the share left out, as every feature is masked at least over its half-peak region. That
+// a surface carried under a large masked share is less certain there is common practice of robust fitting.
+import { describe, expect, it } from 'vitest';
+import { analyseMura } from '../../lib/mura/index.js';
+import { synthMap } from '../../scripts/mura-synth.js';
+import { gaussTruth } from './helpers.js';
+
+describe('share of the panel left out of the background fit', () => {
+  const smooth = [[0, 0.03, -0.05], [0.02, 0.01], [-0.04]];
+  const panel = { widthMm: 600, heightMm: 340, pxPerMm: 1, noisePct: 0.5, smooth };
+
+  it('stays small for one small spot, with no caution', () => {
+    const map = synthMap({ ...panel, seed: 21, features: [{ kind: 'gauss', xMm: 250, yMm: 150, sigmaMm: 6, contrastPct: 5 }] });
+    const r = analyseMura(map, { pattern: 'gray' });
+    expect(r.blobs.length).toBeGreaterThan(0);
+    expect(r.coveredPct).toBeGreaterThanOrEqual((100 * gaussTruth(6, 5).areaMm2) / (600 * 340));
+    expect(r.coveredPct).toBeLessThan(5);
+    expect(r.cautions).toEqual([]);
+  });
+
+  it('is large under three large clouds, and the analysis says so', () => {
+    const clouds = [
+      { x: 140, y: 130, s: 45 },
+      { x: 330, y: 210, s: 50 },
+      { x: 480, y: 120, s: 40 },
+    ];
+    const map = synthMap({
+      ...panel,
+      seed: 22,
+      features: clouds.map((c) => ({ kind: 'gauss' as const, xMm: c.x, yMm: c.y, sigmaMm: c.s, contrastPct: 6 })),
+    });
+    const halfPeakShare = (100 * clouds.reduce((a, c) => a + gaussTruth(c.s, 6).areaMm2, 0)) / (600 * 340);
+    const r = analyseMura(map, { pattern: 'gray' });
+    expect(r.coveredPct).toBeGreaterThanOrEqual(halfPeakShare);
+    expect(r.coveredPct).toBeGreaterThanOrEqual(35);
+    expect(r.cautions).toHaveLength(1);
+    expect(r.cautions[0]).toContain(`${Math.round(r.coveredPct)} % of the panel`);
+    // the threshold is settable, and 0 turns the caution off
+    expect(analyseMura(map, { pattern: 'gray', coverageCautionPct: 0 }).cautions).toEqual([]);
+    expect(analyseMura(map, { pattern: 'gray', coverageCautionPct: 99 }).cautions).toEqual([]);
+  });
+});
