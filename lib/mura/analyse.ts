@@ -92,7 +92,19 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
     mask = next;
   }
   if (!fit || !ctx) throw new EvenfieldError('internal', 'mura analysis ran no round');
-  const remeasured = remeasureLargeClouds(ctx, work, fit, mask, opts);
+  let jointBumps = 0;
+  for (let pass = 0; pass < JOINT_PASSES; pass++) {
+    const joint = jointCloudFit(ctx, work, fit, opts);
+    if (!joint) break;
+    ctx = joint.ctx;
+    fit = joint.fit;
+    C = joint.C;
+    noisePct = ctx.noisePct;
+    rho = ctx.rho;
+    jointBumps = joint.fit.bumps.length;
+  }
+  // clouds the joint fit carried are measured against it already
+  const remeasured = jointBumps > 0 ? 0 : remeasureLargeClouds(ctx, work, fit, mask, opts);
   const droppedClouds = dropRollOffClouds(ctx, work, fit, opts);
   const rollOff = droppedClouds.length;
 
@@ -137,6 +149,9 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
     `polynomial surface of order ${fit.order} (Legendre terms) fitted robustly on ${round(fit.cellPx * work.mmPerPx, 2)} mm cells; ` +
     `${round(maskedPct, 1)} % of the panel masked as features; model error ${round(fit.fitErrorPct, 3)} %` +
     (opts.tileGrid ? `; one level offset per tile (${opts.tileGrid[0]} x ${opts.tileGrid[1]})` : '') +
+    (jointBumps
+      ? `; fitted together with a Gaussian bump for each of ${jointBumps} clouds, which carries its flanks (the map shows contrast against the surface alone)`
+      : '') +
     (remeasured
       ? `; ${remeasured} large cloud${remeasured > 1 ? 's' : ''} measured against a surface fitted together with a Gaussian bump of ${remeasured > 1 ? 'their' : 'its'} size (the map shows the common surface)`
       : '') +
@@ -369,9 +384,7 @@ function remeasureLargeClouds(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, ma
     let got: Found | null = null;
     let cPixels: Int32Array = coarsePixels(f0.pixels, work.w, coarse.w, k);
     for (let pass = 0; pass < PASSES; pass++) {
-      // half-peak ellipse semi-axes from the equivalent rectangle (a = L / sqrt 3); Gaussian sigma = a / 1.1774
-      const s = 1 / (Math.sqrt(3) * 1.1774 * coarse.mmPerPx);
-      const bump: Bump = { x: cx, y: cy, sLong: f.lengthMm * s, sShort: f.widthMm * s, angleRad: (f.angleDeg * Math.PI) / 180 };
+      const bump = bumpOf(f, cx, cy, coarse.mmPerPx);
       const m = new Uint8Array(N);
       if (cMask) for (let i = 0; i < N; i++) if (cMask[i] && !withinBump(bump, i % coarse.w, Math.floor(i / coarse.w))) m[i] = 1;
       for (let j = 0; j < cPixels.length; j++) m[cPixels[j]] = 1;
@@ -397,6 +410,77 @@ function remeasureLargeClouds(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, ma
     }
   }
   return count;
+}
+
+/** Joint fits: the second starts from the clouds the first found again (their sizes and places against
+ *  a surface that no longer bends under them). */
+const JOINT_PASSES = 2;
+
+/**
+ * Several clouds on one panel: the surface fitted together with a Gaussian bump for each.
+ *
+ * The rounds mask every feature out to its tails, but where several clouds share a panel the masks
+ * cannot all reach that far (maxMaskedFraction): the flanks left in the fit pull the surface up under
+ * the clouds (down under dark ones), each is measured faint and small, and the panel's own level between
+ * them reads as false clouds of the other sign. Here each round cloud of bumpMinContrastPct and more
+ * gets an elliptical Gaussian of its size (widths chosen by least squares, as in remeasureLargeClouds),
+ * its half-peak core stays masked, the other features keep their masks, and everything is found again on
+ * the contrast against the surface alone (the bumps are not part of the background). A cloud carried by
+ * a bump that is not found again - joined to a neighbour above half their heights, now that the surface
+ * no longer dips between them - keeps its finding from the rounds. Null when there are fewer than
+ * background.jointMinClouds such clouds, and on black fields (see remeasureLargeClouds).
+ */
+function jointCloudFit(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, opts: MuraOptions): { ctx: Ctx; fit: BackgroundFit; C: Float32Array } | null {
+  if (ctx.black) return null;
+  const clouds = ctx.found.filter(
+    (f) =>
+      f.source === 'blob' &&
+      f.lengthMm < 2 * f.widthMm &&
+      2 * Math.sqrt(f.areaMm2 / Math.PI) >= opts.cloudMinMm &&
+      Math.abs(f.contrastPct) >= opts.background.bumpMinContrastPct,
+  );
+  if (opts.background.jointMinClouds === 0 || clouds.length < opts.background.jointMinClouds) return null;
+  const m = featureMask({ ...ctx, found: ctx.found.filter((f) => !clouds.includes(f)) }, opts);
+  for (const f of clouds) for (let j = 0; j < f.pixels.length; j++) m[f.pixels[j]] = 1;
+  const list = clouds.map((f) => bumpOf(f, f.px, f.py, work.mmPerPx));
+  const fit2 = fitBackground(work, m, opts.background, ctx.rho * ctx.noisePct, opts.tileGrid, false, {
+    list,
+    level: fit.B,
+    maxSigma: opts.maxFeatureMm / (2.3548 * work.mmPerPx),
+  });
+  const C2 = contrastOf(work, fit2);
+  const Cdet = opts.tileGrid ? withoutTileSteps(C2, work, fit2, opts.tileGrid) : C2;
+  const ctx2: Ctx = {
+    ...ctx,
+    C: Cdet,
+    noisePct: Math.max(neighbourNoise(Cdet, work), 1e-4),
+    rho: 1,
+    fitErrorPct: fit2.fitErrorPct,
+    B: fit2.B,
+    label: new Int32Array(work.w * work.h),
+    found: [],
+  };
+  const levels = buildLevels(ctx2);
+  ctx2.rho = noiseCorrelation(levels);
+  detectFeatures(ctx2, levels, true);
+  // a cloud the fit carried that is not found again (joined to a neighbour above half their heights,
+  // now that the surface no longer dips between them) keeps its finding
+  for (const f of clouds) {
+    const r = Math.sqrt(f.areaMm2 / Math.PI) / work.mmPerPx;
+    if (!ctx2.found.some((g) => g.sign === f.sign && Math.hypot(g.px - f.px, g.py - f.py) <= 0.5 * r)) ctx2.found.push(f);
+  }
+  if (process.env.MURA_DBG) {
+    console.log(`joint fit: ${clouds.length} bumps, amp ${fit2.bumps.map((b) => (100 * b.amplitude).toFixed(2)).join(' ')}, fitErr ${fit2.fitErrorPct.toFixed(3)}`);
+    for (const f of ctx2.found) console.log(`  ${f.sign} c(${(f.cx * work.mmPerPx).toFixed(0)},${(f.cy * work.mmPerPx).toFixed(0)}) A ${f.areaMm2.toFixed(0)} C ${f.contrastPct.toFixed(3)} semu ${semu(f.contrastPct, f.areaMm2).toFixed(2)}`);
+  }
+  return { ctx: ctx2, fit: fit2, C: C2 };
+}
+
+/** A Gaussian of a feature's size centred at (x, y) (px of a raster of mmPerPx): the half-peak ellipse's
+ *  semi-axes from the equivalent rectangle (a = L / sqrt 3), sigma = a / 1.1774. */
+function bumpOf(f: Found, x: number, y: number, mmPerPx: number): Bump {
+  const s = 1 / (Math.sqrt(3) * 1.1774 * mmPerPx);
+  return { x, y, sLong: f.lengthMm * s, sShort: f.widthMm * s, angleRad: (f.angleDeg * Math.PI) / 180 };
 }
 
 /** The coarse raster, its panel edges and the round mask on it, shared by the re-measurements. */
