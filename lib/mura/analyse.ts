@@ -422,24 +422,29 @@ const JOINT_PASSES = 2;
  * The rounds mask every feature out to its tails, but where several clouds share a panel the masks
  * cannot all reach that far (maxMaskedFraction): the flanks left in the fit pull the surface up under
  * the clouds (down under dark ones), each is measured faint and small, and the panel's own level between
- * them reads as false clouds of the other sign. Here each round cloud of bumpMinContrastPct and more
- * gets an elliptical Gaussian of its size (widths chosen by least squares, as in remeasureLargeClouds),
+ * them reads as false clouds of the other sign. Here each round cloud of bumpMinContrastPct and more,
+ * of a sign with at least background.jointMinClouds of them, gets an elliptical Gaussian of its size (widths chosen by least squares, as in remeasureLargeClouds),
  * its half-peak core stays masked, the other features keep their masks, and everything is found again on
  * the contrast against the surface alone (the bumps are not part of the background). A cloud carried by
  * a bump that is not found again - joined to a neighbour above half their heights, now that the surface
- * no longer dips between them - keeps its finding from the rounds. Null when there are fewer than
- * background.jointMinClouds such clouds, and on black fields (see remeasureLargeClouds).
+ * no longer dips between them - keeps its finding from the rounds. Null when no sign has that many,
+ * and on black fields (see remeasureLargeClouds).
  */
 function jointCloudFit(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, opts: MuraOptions): { ctx: Ctx; fit: BackgroundFit; C: Float32Array } | null {
   if (ctx.black) return null;
-  const clouds = ctx.found.filter(
+  const candidates = ctx.found.filter(
     (f) =>
       f.source === 'blob' &&
       f.lengthMm < 2 * f.widthMm &&
       2 * Math.sqrt(f.areaMm2 / Math.PI) >= opts.cloudMinMm &&
       Math.abs(f.contrastPct) >= opts.background.bumpMinContrastPct,
   );
-  if (opts.background.jointMinClouds === 0 || clouds.length < opts.background.jointMinClouds) return null;
+  // clouds of one sign, as many as jointMinClouds: a lone cloud of the other sign beside them is as
+  // likely the panel's own level between them (the rounds' surface lifted under bright clouds) as a cloud
+  const n = opts.background.jointMinClouds;
+  const count = (sign: number): number => candidates.filter((f) => f.sign === sign).length;
+  const clouds = n === 0 ? [] : candidates.filter((f) => count(f.sign) >= n);
+  if (clouds.length === 0) return null;
   const m = featureMask({ ...ctx, found: ctx.found.filter((f) => !clouds.includes(f)) }, opts);
   for (const f of clouds) for (let j = 0; j < f.pixels.length; j++) m[f.pixels[j]] = 1;
   const list = clouds.map((f) => bumpOf(f, f.px, f.py, work.mmPerPx));

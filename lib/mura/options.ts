@@ -54,8 +54,10 @@ export interface BackgroundOptions {
    *  parameters). Measured ratios: false clouds of generated roll-offs 0.46-0.96, real clouds at a
    *  roll-off's peak 1.07 and more */
   rollOffMaxErrorRatio: number;
-  /** lit fields: when at least this many round clouds of bumpMinContrastPct and more are found (default
-   *  2; 0 = never), the surface is fitted once more together with a Gaussian bump for each of them, and
+  /** lit fields: when at least this many round clouds of one sign, of bumpMinContrastPct and more, are
+   *  found (default 2; 0 = never), the surface is fitted once more together with a Gaussian bump for each
+   *  of them (a lone cloud of the other sign beside them is left masked, as it is as likely the panel's
+   *  own level between them), and
    *  every feature is found again against that surface (see jointCloudFit in analyse.ts). Three clouds
    *  of 94-118 mm on a 600 x 340 mm panel (test/mura/large-clouds.test.ts): against the common surface
    *  23-26 % faint, 27-30 % small, with two false dark clouds between them; with the joint fit contrast

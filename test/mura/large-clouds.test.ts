@@ -137,6 +137,32 @@ describe('several clouds on one panel', () => {
     expect(r.backgroundModel).toContain('Gaussian bump for each of 3 clouds');
   });
 
+  it('leaves a bright and a dark cloud to be measured one at a time (two of one sign are needed)', () => {
+    // one cloud of each sign: the lone dark one could as well be the panel's own level beside a bright
+    // one; each is measured as before, the large one against its own bump (truths from helpers.ts)
+    const pair = synthMap({
+      widthMm: 600,
+      heightMm: 340,
+      pxPerMm: 1,
+      noisePct: 0.5,
+      seed: 23,
+      smooth: [[0, 0.03, -0.05], [0.02, 0.01], [-0.04]],
+      features: [
+        { kind: 'gauss', xMm: 180, yMm: 150, sigmaMm: 50, contrastPct: 6 },
+        { kind: 'gauss', xMm: 440, yMm: 190, sigmaMm: 45, contrastPct: -6 },
+      ],
+    });
+    const r = analyseMura(pair, { pattern: 'gray' });
+    expect(r.backgroundModel).not.toContain('Gaussian bump for each');
+    for (const [x, y, s, c] of [[180, 150, 50, 6], [440, 190, 45, -6]]) {
+      const b = nearest(r.blobs, x, y)!;
+      const t = gaussTruth(s, c);
+      expect(b.polarity).toBe(c > 0 ? 'bright' : 'dark');
+      expect(relErr(b.contrastPct, t.contrastPct)).toBeLessThan(0.25);
+      expect(relErr(b.areaMm2, t.areaMm2)).toBeLessThan(0.3);
+    }
+  });
+
   it('against the common surface alone (jointMinClouds 0) the panel between them reads as dark clouds', () => {
     // the failure the joint fit is for: measured 23-26 % faint, and dark "clouds" of SEMU 1.0-1.4
     const r = analyseMura(map, { pattern: 'gray', background: { jointMinClouds: 0 } });
