@@ -61,10 +61,10 @@ export interface BackgroundOptions {
    *  every feature is found again against that surface (see jointCloudFit in analyse.ts). Three clouds
    *  of 94-118 mm on a 600 x 340 mm panel (test/mura/large-clouds.test.ts): against the common surface
    *  23-26 % faint, 27-30 % small, with two false dark clouds between them; with the joint fit contrast
-   *  +3 %, area +1 to +7 %, none. Accuracy study: first set's figures unchanged, second set one feature
-   *  fewer within 30 % area (a 10 mm band on a cloud's flank found as its top piece) and unmatched
-   *  findings 23 -> 20. A single cloud is left to remeasureLargeClouds: joined, a faint band on its flank
-   *  was lost (first set, seed 1036) */
+   *  +3 %, area +1 to +7 %, none. Accuracy study: both sets' tallies unchanged, unmatched findings
+   *  13 -> 12 and 23 -> 22. A single cloud is left to remeasureLargeClouds: joined, a faint band on its
+   *  flank was lost (first set, seed 1036); so was one with clouds of either sign joined (second set,
+   *  seed 1159), and the 25 MP study photo's bright cloud came out 3.7 % instead of 8.9 % */
   jointMinClouds: number;
 }
 
