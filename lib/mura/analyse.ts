@@ -139,9 +139,10 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
   if (!map.mmKnown) notes.push('Areas and SEMU use the nominal panel size: mm are nominal units.');
   const maskedPct = mask ? (100 * countOf(mask)) / N : 0;
   const cautions: string[] = [];
-  if (opts.coverageCautionPct > 0 && maskedPct >= opts.coverageCautionPct) {
+  // (about the figures of what is reported: a photo with nothing to report gets no caution)
+  if (opts.coverageCautionPct > 0 && maskedPct >= opts.coverageCautionPct && blobs.length > 0) {
     cautions.push(
-      `${Math.round(maskedPct)} % of the panel lies under or around the mura features found and was left out of the background fit: ` +
+      `${Math.round(maskedPct)} % of the panel lies under or around the mura features found (those too faint to report included) and was left out of the background fit: ` +
         'the background there is carried over from the rest of the panel, so the contrast and area of the largest features, and of any lying between them, are less certain than elsewhere',
     );
   }

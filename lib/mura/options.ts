@@ -84,8 +84,8 @@ export interface MuraOptions {
   /** findings below this SEMU are not reported (default 0.5) */
   semuFloor: number;
   /** when the background fit had to leave out at least this share of the panel (%) around the features
-   *  found, the analysis says that the figures of the largest features are less certain (default 35; 0 =
-   *  never). The surface under them is then carried over from the rest of the panel. Accuracy study
+   *  found, and something is reported, the analysis says that the figures of the largest features are
+   *  less certain (default 35; 0 = never). The surface under them is then carried over from the rest of the panel. Accuracy study
    *  (scripts/mura-accuracy.ts, first set): every feature of SEMU >= 2 measured outside +-25 % contrast
    *  or +-30 % area lay on a photo with 37.7-55.7 % left out; none of the 37 photos with less had one */
   coverageCautionPct: number;
