@@ -141,9 +141,11 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
   const cautions: string[] = [];
   // (about the figures of what is reported: a photo with nothing to report gets no caution)
   if (opts.coverageCautionPct > 0 && maskedPct >= opts.coverageCautionPct && blobs.length > 0) {
+    // the share itself is in the background model's line: without it, photos of one panel share the text
+    // and the report lists it once
     cautions.push(
-      `${Math.round(maskedPct)} % of the panel lies under or around the mura features found (those too faint to report included) and was left out of the background fit: ` +
-        'the background there is carried over from the rest of the panel, so the contrast and area of the largest features, and of any lying between them, are less certain than elsewhere',
+      `${opts.coverageCautionPct} % or more of the panel lies under or around mura features and was left out of the background fit: ` +
+        "the largest features' contrast and area are less certain (the share is on the mura page)",
     );
   }
   const backgroundModel =

@@ -54,7 +54,8 @@ describe('share of the panel left out of the background fit', () => {
     expect(r.coveredPct).toBeGreaterThanOrEqual(halfPeakShare);
     expect(r.coveredPct).toBeGreaterThanOrEqual(35);
     expect(r.cautions).toHaveLength(1);
-    expect(r.cautions[0]).toContain(`${Math.round(r.coveredPct)} % of the panel`);
+    expect(r.cautions[0]).toContain('35 % or more of the panel');
+    expect(r.backgroundModel).toContain(`${r.coveredPct} % of the panel masked`);
     // the threshold is settable, and 0 turns the caution off
     expect(analyseMura(map, { pattern: 'gray', coverageCautionPct: 0 }).cautions).toEqual([]);
     expect(analyseMura(map, { pattern: 'gray', coverageCautionPct: 99 }).cautions).toEqual([]);
