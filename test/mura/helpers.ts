@@ -1,5 +1,6 @@
 // Shared helpers of the mura tests: analytical half-peak truths and blob matching.
 import type { Blob } from '../../lib/types.js';
+import { synthMap } from '../../scripts/mura-synth.js';
 
 /** Gaussian bump of sigma s (mm): the region phi >= 1/2 is a disc of radius s sqrt(2 ln 2), so its
  *  area is pi 2 ln2 s²; the mean of phi over it is 1 / (2 ln 2) (derived in scripts/mura-synth.ts). */
@@ -31,4 +32,24 @@ export function nearest(blobs: Blob[], xMm: number, yMm: number): Blob | undefin
 
 export function relErr(measured: number, truth: number): number {
   return Math.abs(measured - truth) / Math.abs(truth);
+}
+
+/** Three Gaussian clouds of 94-118 mm half-peak diameter (sigma 40-50 mm, peak +6 %) on a 600 x 340 mm
+ *  panel with smooth variation of order 2: several clouds sharing one panel. */
+export const THREE_CLOUDS = [
+  { x: 140, y: 130, s: 45 },
+  { x: 330, y: 210, s: 50 },
+  { x: 480, y: 120, s: 40 },
+];
+
+export function threeCloudMap(): ReturnType<typeof synthMap> {
+  return synthMap({
+    widthMm: 600,
+    heightMm: 340,
+    pxPerMm: 1,
+    noisePct: 0.5,
+    seed: 22,
+    smooth: [[0, 0.03, -0.05], [0.02, 0.01], [-0.04]],
+    features: THREE_CLOUDS.map((c) => ({ kind: 'gauss' as const, xMm: c.x, yMm: c.y, sigmaMm: c.s, contrastPct: 6 })),
+  });
 }

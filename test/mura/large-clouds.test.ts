@@ -4,7 +4,7 @@
 import { describe, expect, it } from 'vitest';
 import { analyseMura, fitBackground, legendre, resolveMuraOptions, type WorkRaster } from '../../lib/mura/index.js';
 import { synthMap } from '../../scripts/mura-synth.js';
-import { gaussTruth, nearest, relErr } from './helpers.js';
+import { gaussTruth, nearest, relErr, THREE_CLOUDS, threeCloudMap } from './helpers.js';
 
 describe('surface with a bump', () => {
   it('recovers an exact polynomial and the amplitude and width of a Gaussian on it', () => {
@@ -103,22 +103,9 @@ describe('clouds of about half the panel short side', () => {
 });
 
 describe('several clouds on one panel', () => {
-  // three Gaussian clouds of 94-118 mm half-peak diameter (sigma 40-50 mm, peak +6 %) on a 600 x 340 mm
-  // panel with smooth variation of order 2; truths from helpers.ts (derived by hand)
-  const clouds = [
-    { x: 140, y: 130, s: 45 },
-    { x: 330, y: 210, s: 50 },
-    { x: 480, y: 120, s: 40 },
-  ];
-  const map = synthMap({
-    widthMm: 600,
-    heightMm: 340,
-    pxPerMm: 1,
-    noisePct: 0.5,
-    seed: 22,
-    smooth: [[0, 0.03, -0.05], [0.02, 0.01], [-0.04]],
-    features: clouds.map((c) => ({ kind: 'gauss' as const, xMm: c.x, yMm: c.y, sigmaMm: c.s, contrastPct: 6 })),
-  });
+  // helpers.ts: three clouds of 94-118 mm on a 600 x 340 mm panel; truths derived by hand (gaussTruth)
+  const clouds = THREE_CLOUDS;
+  const map = threeCloudMap();
 
   it('measures each against a surface fitted together with all of them, with no false cloud between them', () => {
     const r = analyseMura(map, { pattern: 'gray' });
