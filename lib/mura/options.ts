@@ -57,8 +57,8 @@ export interface BackgroundOptions {
   /** lit fields: when at least this many round clouds of one sign, of bumpMinContrastPct and more, are
    *  found (default 2; 0 = never), the surface is fitted once more together with a Gaussian bump for each
    *  of them (a lone cloud of the other sign beside them is left masked, as it is as likely the panel's
-   *  own level between them), and
-   *  every feature is found again against that surface (see jointCloudFit in analyse.ts). Three clouds
+   *  own level between them), and every feature is found again against that surface (see jointCloudFit
+   *  in analyse.ts). Three clouds
    *  of 94-118 mm on a 600 x 340 mm panel (test/mura/large-clouds.test.ts): against the common surface
    *  23-26 % faint, 27-30 % small, with two false dark clouds between them; with the joint fit contrast
    *  +3 %, area +1 to +7 %, none. Accuracy study: both sets' tallies unchanged, unmatched findings
@@ -85,8 +85,8 @@ export interface MuraOptions {
   semuFloor: number;
   /** when the background fit had to leave out at least this share of the panel (%) around the features
    *  found, and something is reported, the analysis says that the figures of the largest features are
-   *  less certain (default 35; 0 = never). The surface under them is then carried over from the rest of the panel. Accuracy study
-   *  (scripts/mura-accuracy.ts, first set): every feature of SEMU >= 2 measured outside +-25 % contrast
+   *  less certain (default 35; 0 = never). The surface under them is then carried over from the rest of
+   *  the panel. Accuracy study (scripts/mura-accuracy.ts, first set): every feature of SEMU >= 2 measured outside +-25 % contrast
    *  or +-30 % area lay on a photo with 37.7-55.7 % left out; none of the 37 photos with less had one */
   coverageCautionPct: number;
   semuConstants: SemuConstants;
