@@ -427,8 +427,9 @@ const JOINT_PASSES = 2;
  * the clouds (down under dark ones), each is measured faint and small, and the panel's own level between
  * them reads as false clouds of the other sign. Here each round cloud of bumpMinContrastPct and more,
  * of a sign with at least background.jointMinClouds of them, gets an elliptical Gaussian of its size
- * (widths chosen by least squares, as in remeasureLargeClouds), its half-peak core stays masked, the other features keep their masks, and everything is found again on
- * the contrast against the surface alone (the bumps are not part of the background). A cloud carried by
+ * (widths chosen by least squares, as in remeasureLargeClouds), its half-peak core stays masked, the
+ * other features keep their masks, and everything is found again on the contrast against the surface
+ * alone (the bumps are not part of the background). A cloud carried by
  * a bump that is not found again - joined to a neighbour above half their heights, now that the surface
  * no longer dips between them - keeps its finding from the rounds. Null when no sign has that many,
  * and on black fields (see remeasureLargeClouds).
