@@ -877,7 +877,6 @@ function halfWidth(region: Int32Array, w: number): number {
   return shapeOf(region, w).minor / 2;
 }
 
-/** Gaussian elimination with partial pivoting of a 6 x 6 system (row-major); null when singular. */
 /** The six terms 1, x, y, x², xy, y² of a quadratic surface at (dx, dy), into t. */
 function quadTerms(t: Float64Array, dx: number, dy: number): Float64Array {
   t[0] = 1;
@@ -898,6 +897,7 @@ function addQuadratic(A: Float64Array, b: Float64Array, t: Float64Array, dx: num
   }
 }
 
+/** Gaussian elimination with partial pivoting of a 6 x 6 system (row-major); null when singular. */
 function solve6(A: Float64Array, b: Float64Array): Float64Array | null {
   const m = Float64Array.from(A);
   const x = Float64Array.from(b);

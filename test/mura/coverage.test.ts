@@ -21,7 +21,7 @@ describe('share of the panel left out of the background fit', () => {
   });
 
   it('raises no caution on a photo with nothing to report, whatever was masked', () => {
-    // a spot of SEMU about 0.27 (mean 0.29 % over 157 mm²; SEMI D31-1102 formula, worked by hand) is
+    // a spot of SEMU about 0.26 (mean 0.29 % over 157 mm²; SEMI D31-1102 formula, worked by hand) is
     // masked for the next fit (from half the reporting floor) but not reported (floor 0.5)
     const faint = analyseMura(synthMap({ ...panel, seed: 24, features: [{ kind: 'gauss', xMm: 250, yMm: 150, sigmaMm: 6, contrastPct: 0.4 }] }), {
       pattern: 'gray',
