@@ -238,6 +238,9 @@ export function isDuplicate(ctx: Ctx, f: Found): boolean {
     // (not a feature on the band that stands out of it: the search ran with the band's profile taken out,
     // so what it finds on a band is measured against the band, and a remnant is weaker than the band)
     if (other.source === 'profile' && other.sign === f.sign && c > 0.5 * n && Math.abs(f.contrastPct) < Math.abs(other.contrastPct)) return true;
+    // ... and one that stands out of the band by more than the band's own contrast is a feature on it,
+    // whatever its size (a cloud on a wide band is not that band seen again)
+    if (other.source === 'profile' && f.source !== 'profile' && Math.abs(f.contrastPct) >= Math.abs(other.contrastPct)) continue;
     if (Math.max(n, no) < 8 * small) return true;
     if (elongated(f) && elongated(other)) {
       let da = Math.abs(f.angleDeg - other.angleDeg) % 180;
