@@ -10,7 +10,7 @@ import type { Blob, LeftOutFinding, MuraResult, PanelMap, Plane } from '../types
 import { bumpDistance2, fitBackground, type BackgroundFit, type Bump, type WorkRaster } from './background.js';
 import { buildLevels, detectFeatures, noiseCorrelation } from './detect.js';
 import { classify, round } from './classify.js';
-import { panelEdges, type Ctx, type Found } from './context.js';
+import { panelEdges, register, type Ctx, type Found } from './context.js';
 import { groupHotspots, type Finding } from './hotspots.js';
 import { resolveMuraOptions, type MuraOptions, type MuraOptionsInput } from './options.js';
 import { chamfer, robustSigma, sampleIndices } from './raster.js';
@@ -106,6 +106,8 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
   // clouds the joint fit carried are measured against it already
   const remeasured = jointBumps > 0 ? 0 : remeasureLargeClouds(ctx, work, fit, mask, opts);
   const droppedClouds = dropRollOffClouds(ctx, work, fit, opts);
+  // after the roll-off test, which masks the other findings in its fits
+  const unconfirmed = black ? confirmOnBlack(ctx, work, fit, mask, opts) : 0;
   const rollOff = droppedClouds.length;
 
   // findings: single features, hot-spot arrays, tile seams and steps
@@ -160,6 +162,9 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
       : '') +
     (rollOff
       ? `; ${rollOff} faint cloud${rollOff > 1 ? 's' : ''} on the surface's peak or dip left out: a radial roll-off about ${rollOff > 1 ? 'them' : 'it'} explained ${rollOff > 1 ? 'them' : 'it'} (a profile sharper or flatter than the polynomial can follow)`
+      : '') +
+    (unconfirmed
+      ? `; ${unconfirmed} finding${unconfirmed > 1 ? 's' : ''} left out as not found against a surface of order ${opts.background.blackCheckOrder} (the panel's own drop-off, which the stiffer surface cannot follow)`
       : '');
 
   const out = new Float32Array(N);
@@ -483,6 +488,50 @@ function jointCloudFit(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, opts: Mur
     for (const f of ctx2.found) console.log(`  ${f.sign} c(${(f.cx * work.mmPerPx).toFixed(0)},${(f.cy * work.mmPerPx).toFixed(0)}) A ${f.areaMm2.toFixed(0)} C ${f.contrastPct.toFixed(3)} semu ${semu(f.contrastPct, f.areaMm2).toFixed(2)}`);
   }
   return { ctx: ctx2, fit: fit2, C: C2 };
+}
+
+/**
+ * Black fields: keep only the findings that are found again, over some of their pixels and with their
+ * sign, against a surface of order background.blackCheckOrder fitted with the same mask (see that
+ * option). Their figures stay those measured against the stiffer surface. Returns how many were dropped.
+ */
+function confirmOnBlack(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, mask: Uint8Array | null, opts: MuraOptions): number {
+  const order = opts.background.blackCheckOrder;
+  if (order === 0 || order <= fit.order || ctx.found.length === 0) return 0;
+  const fit2 = fitBackground(work, mask, { ...opts.background, order }, ctx.rho * ctx.noisePct, opts.tileGrid, true);
+  const C2 = contrastOf(work, fit2);
+  const Cdet = opts.tileGrid ? withoutTileSteps(C2, work, fit2, opts.tileGrid) : C2;
+  const ctx2: Ctx = {
+    ...ctx,
+    C: Cdet,
+    noisePct: Math.max(neighbourNoise(Cdet, work), 1e-4),
+    rho: 1,
+    fitErrorPct: fit2.fitErrorPct,
+    B: fit2.B,
+    label: new Int32Array(work.w * work.h),
+    found: [],
+  };
+  const levels = buildLevels(ctx2);
+  ctx2.rho = noiseCorrelation(levels);
+  detectFeatures(ctx2, levels, true);
+  const again = (f: Found): boolean => {
+    for (let j = 0; j < f.pixels.length; j++) {
+      const l = ctx2.label[f.pixels[j]];
+      if (l && ctx2.found[l - 1].sign === f.sign) return true;
+    }
+    return false;
+  };
+  const kept = ctx.found.filter(again);
+  if (process.env.MURA_DBG) {
+    console.log(`black check: order ${order}, model error ${fit2.fitErrorPct.toFixed(3)} %, found again ${kept.length} of ${ctx.found.length}`);
+    for (const f of ctx.found) if (!kept.includes(f)) console.log(`  dropped ${f.sign} c(${(f.cx * work.mmPerPx).toFixed(0)},${(f.cy * work.mmPerPx).toFixed(0)}) A ${f.areaMm2.toFixed(0)} C ${f.contrastPct.toFixed(3)}`);
+  }
+  const dropped = ctx.found.length - kept.length;
+  if (dropped === 0) return 0;
+  ctx.found = [];
+  ctx.label.fill(0);
+  for (const f of kept) register(ctx, f);
+  return dropped;
 }
 
 /** A Gaussian of a feature's size centred at (x, y) (px of a raster of mmPerPx): the half-peak ellipse's

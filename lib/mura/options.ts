@@ -5,8 +5,9 @@ import type { Pattern } from '../types.js';
 import { DEFAULT_SEMU_CONSTANTS, type SemuConstants } from './semu.js';
 
 export interface BackgroundOptions {
-  /** order of the whole-panel polynomial surface that counts as smooth variation (default 3 on lit
-   *  fields, 2 on black). Orders above 4 start to swallow clouds. */
+  /** order of the whole-panel polynomial surface that counts as smooth variation (default 4 on lit
+   *  fields, 2 on black, where a stiffer surface leaves a glow's tails to the glow). Orders above 4 start
+   *  to swallow clouds. */
   order: number;
   /** cells of the coarse grid the surface is fitted on, mm (default: long side / 80, at least 2 map px) */
   cellMm: number | null;
@@ -54,6 +55,14 @@ export interface BackgroundOptions {
    *  parameters). Measured ratios: false clouds of generated roll-offs 0.46-0.96, real clouds at a
    *  roll-off's peak 1.07 and more */
   rollOffMaxErrorRatio: number;
+  /** black fields: a finding is kept only if a feature of its sign is also found over some of its pixels
+   *  against a surface of this order, fitted with the same features masked (default 4; 0 = off). An order-2
+   *  surface cannot follow a strong drop-off, which the black field shares with the lit ones: what it
+   *  leaves along the edges and in the corners reads as weak glows and specks (the demo's HX27-3103,
+   *  55 % corner loss: four glows and a corner speck of SEMU 3.5 on black, none of them found against
+   *  order 4). A real glow's exponential fall is too sharp for order 4 to follow, so it is found against
+   *  both, and measured against the order-2 surface. */
+  blackCheckOrder: number;
   /** lit fields: when at least this many round clouds of one sign, of bumpMinContrastPct and more, are
    *  found (default 2; 0 = never), the surface is fitted once more together with a Gaussian bump for each
    *  of them (a lone cloud of the other sign beside them is left masked, as it is as likely the panel's
@@ -166,6 +175,7 @@ export function resolveMuraOptions(input: MuraOptionsInput): MuraOptions {
     bumpMinContrastPct: 2,
     rollOffMaxShare: 0.1,
     rollOffMaxErrorRatio: 1,
+    blackCheckOrder: 4,
     jointMinClouds: 2,
     ...stripUndefined(input.background ?? {}),
   };
@@ -248,6 +258,7 @@ function validate(o: MuraOptions): void {
   if (!(b.bumpMinFraction > 0)) bad('background.bumpMinFraction must be above 0');
   if (!(b.bumpMinContrastPct >= 0)) bad('background.bumpMinContrastPct must be 0 or more');
   if (!(b.rollOffMaxErrorRatio >= 0)) bad(`background.rollOffMaxErrorRatio must be 0 or more, got ${b.rollOffMaxErrorRatio}`);
+  if (!(Number.isInteger(b.blackCheckOrder) && b.blackCheckOrder >= 0 && b.blackCheckOrder <= 6)) bad(`background.blackCheckOrder must be an integer 0..6, got ${b.blackCheckOrder}`);
   if (!(Number.isInteger(b.jointMinClouds) && b.jointMinClouds >= 0)) bad(`background.jointMinClouds must be a whole number 0 or more, got ${b.jointMinClouds}`);
   if (!(b.rollOffMaxShare >= 0 && b.rollOffMaxShare <= 1)) bad(`background.rollOffMaxShare must be 0..1, got ${b.rollOffMaxShare}`);
   if (o.tileGrid !== null) {

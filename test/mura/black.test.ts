@@ -147,3 +147,22 @@ describe('what black fields report', () => {
   });
 });
 
+
+describe('a strong drop-off on a black field', () => {
+  // The black field of a backlit panel falls off with the backlight. 55 % to the corners as the 2.5th
+  // power of the distance from the centre (a strong drop-off of the kind a uniformity limit fails), no
+  // feature: nothing is there to report (the generator's formula, scripts/mura-synth.ts, radial). An
+  // order-2 surface alone left two edge "glows" of 3.9 % (SEMU 4.8) along the long sides.
+  const map = () => synthMap({ widthMm: 400, heightMm: 250, pxPerMm: 2, level: 0.002, noisePct: 1, seed: 71, radial: { loss: 0.55, power: 2.5 } });
+
+  it('reports no glow where a higher-order surface finds none, and says so', () => {
+    const r = analyseMura(map(), { pattern: 'black' });
+    expect(r.blobs).toEqual([]);
+    expect(r.backgroundModel).toMatch(/2 findings left out as not found against a surface of order 4/);
+  });
+
+  it('keeps them with the check turned off (background.blackCheckOrder 0)', () => {
+    const r = analyseMura(map(), { pattern: 'black', background: { blackCheckOrder: 0 } });
+    expect(r.blobs.filter((b) => b.kind === 'edge-glow')).toHaveLength(2);
+  });
+});
