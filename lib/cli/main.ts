@@ -170,7 +170,7 @@ async function inspect(a: InspectArgs): Promise<number> {
     // files that could not be used, also those in panels that failed on another photo (exit status 2)
     const unusable = out.doc.panels.reduce((n, p) => n + p.photos.filter((ph) => ph.status === 'error').length, 0) + out.doc.unassigned.length;
     process.stderr.write(
-      `${s.panels} panels: ${s.passed} passed, ${s.failed} failed, ${s.errors} errors` +
+      `${s.panels} ${s.panels === 1 ? 'panel' : 'panels'}: ${s.passed} passed, ${s.failed} failed, ${s.errors} ${s.errors === 1 ? 'error' : 'errors'}` +
         (unusable ? `, ${unusable} unusable ${unusable === 1 ? 'file' : 'files'}` : '') +
         (out.skipped ? ` (${out.skipped} kept from the earlier run)` : '') +
         ` in ${(out.ms / 1000).toFixed(1)} s → ${a.out}\n`,
