@@ -462,21 +462,7 @@ function jointCloudFit(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, opts: Mur
     level: fit.B,
     maxSigma: opts.maxFeatureMm / (2.3548 * work.mmPerPx),
   });
-  const C2 = contrastOf(work, fit2);
-  const Cdet = opts.tileGrid ? withoutTileSteps(C2, work, fit2, opts.tileGrid) : C2;
-  const ctx2: Ctx = {
-    ...ctx,
-    C: Cdet,
-    noisePct: Math.max(neighbourNoise(Cdet, work), 1e-4),
-    rho: 1,
-    fitErrorPct: fit2.fitErrorPct,
-    B: fit2.B,
-    label: new Int32Array(work.w * work.h),
-    found: [],
-  };
-  const levels = buildLevels(ctx2);
-  ctx2.rho = noiseCorrelation(levels);
-  detectFeatures(ctx2, levels, true);
+  const { ctx2, C2 } = searchAgainst(ctx, work, fit2, opts);
   // a cloud the fit carried that is not found again (joined to a neighbour above half their heights,
   // now that the surface no longer dips between them) keeps its finding
   for (const f of clouds) {
@@ -490,15 +476,9 @@ function jointCloudFit(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, opts: Mur
   return { ctx: ctx2, fit: fit2, C: C2 };
 }
 
-/**
- * Black fields: keep only the findings that are found again, over some of their pixels and with their
- * sign, against a surface of order background.blackCheckOrder fitted with the same mask (see that
- * option). Their figures stay those measured against the stiffer surface. Returns how many were dropped.
- */
-function confirmOnBlack(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, mask: Uint8Array | null, opts: MuraOptions): number {
-  const order = opts.background.blackCheckOrder;
-  if (order === 0 || order <= fit.order || ctx.found.length === 0) return 0;
-  const fit2 = fitBackground(work, mask, { ...opts.background, order }, ctx.rho * ctx.noisePct, opts.tileGrid, true);
+/** Every feature found afresh (all levels, with the fit floor) against another surface `fit2` of the
+ *  same raster: the new context and its contrast map. */
+function searchAgainst(ctx: Ctx, work: WorkRaster, fit2: BackgroundFit, opts: MuraOptions): { ctx2: Ctx; C2: Float32Array } {
   const C2 = contrastOf(work, fit2);
   const Cdet = opts.tileGrid ? withoutTileSteps(C2, work, fit2, opts.tileGrid) : C2;
   const ctx2: Ctx = {
@@ -514,6 +494,19 @@ function confirmOnBlack(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, mask: Ui
   const levels = buildLevels(ctx2);
   ctx2.rho = noiseCorrelation(levels);
   detectFeatures(ctx2, levels, true);
+  return { ctx2, C2 };
+}
+
+/**
+ * Black fields: keep only the findings that are found again, over some of their pixels and with their
+ * sign, against a surface of order background.blackCheckOrder fitted with the same mask (see that
+ * option). Their figures stay those measured against the stiffer surface. Returns how many were dropped.
+ */
+function confirmOnBlack(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, mask: Uint8Array | null, opts: MuraOptions): number {
+  const order = opts.background.blackCheckOrder;
+  if (order === 0 || order <= fit.order || ctx.found.length === 0) return 0;
+  const fit2 = fitBackground(work, mask, { ...opts.background, order }, ctx.rho * ctx.noisePct, opts.tileGrid, true);
+  const { ctx2 } = searchAgainst(ctx, work, fit2, opts);
   const again = (f: Found): boolean => {
     for (let j = 0; j < f.pixels.length; j++) {
       const l = ctx2.label[f.pixels[j]];
