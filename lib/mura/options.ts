@@ -59,7 +59,7 @@ export interface BackgroundOptions {
    *  against a surface of this order, fitted with the same features masked (default 4; 0 = off). An order-2
    *  surface cannot follow a strong drop-off, which the black field shares with the lit ones: what it
    *  leaves along the edges and in the corners reads as weak glows and specks (the demo's HX27-3103,
-   *  55 % corner loss: four glows and a corner speck of SEMU 3.5 on black, none of them found against
+   *  55 % corner loss: five glows and a corner speck of SEMU 3.5 on black, none of them found against
    *  order 4). A real glow's exponential fall is too sharp for order 4 to follow, so it is found against
    *  both, and measured against the order-2 surface. */
   blackCheckOrder: number;

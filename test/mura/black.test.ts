@@ -147,7 +147,6 @@ describe('what black fields report', () => {
   });
 });
 
-
 describe('a strong drop-off on a black field', () => {
   // The black field of a backlit panel falls off with the backlight. 55 % to the corners as the 2.5th
   // power of the distance from the centre (a strong drop-off of the kind a uniformity limit fails), no
