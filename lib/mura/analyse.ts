@@ -434,10 +434,9 @@ const JOINT_PASSES = 2;
  * of a sign with at least background.jointMinClouds of them, gets an elliptical Gaussian of its size
  * (widths chosen by least squares, as in remeasureLargeClouds), its half-peak core stays masked, the
  * other features keep their masks, and everything is found again on the contrast against the surface
- * alone (the bumps are not part of the background). A cloud carried by
- * a bump that is not found again - joined to a neighbour above half their heights, now that the surface
- * no longer dips between them - keeps its finding from the rounds. Null when no sign has that many,
- * and on black fields (see remeasureLargeClouds).
+ * alone (the bumps are not part of the background). A cloud carried by a bump that is not found again
+ * keeps its finding from the rounds (see below). Null when no sign has that many, and on black fields
+ * (see remeasureLargeClouds).
  */
 function jointCloudFit(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, opts: MuraOptions): { ctx: Ctx; fit: BackgroundFit; C: Float32Array } | null {
   if (ctx.black) return null;
