@@ -236,8 +236,18 @@ export function isDuplicate(ctx: Ctx, f: Found): boolean {
     if (c <= 0.5 * small) continue;
     // a piece of a band across the panel, of its sign, is that band (cut where another feature crosses it)
     // (not a feature on the band that stands out of it: the search ran with the band's profile taken out,
-    // so what it finds on a band is measured against the band, and a remnant is weaker than the band)
-    if (other.source === 'profile' && other.sign === f.sign && c > 0.5 * n && Math.abs(f.contrastPct) < Math.abs(other.contrastPct)) return true;
+    // so what it finds on a band is measured against the band, and a remnant is weaker than the band).
+    // A round finding clear of the panel's edges is kept though: a remnant is a stretch of the band or
+    // its end at an edge, where the surface under the band is least held; a spot on the band is round.
+    if (
+      other.source === 'profile' &&
+      other.sign === f.sign &&
+      c > 0.5 * n &&
+      Math.abs(f.contrastPct) < Math.abs(other.contrastPct) &&
+      !(f.source !== 'profile' && roundInside(f))
+    ) {
+      return true;
+    }
     // ... and one that stands out of the band by more than the band's own contrast is a feature on it,
     // whatever its size (a cloud on a wide band is not that band seen again)
     if (other.source === 'profile' && f.source !== 'profile' && Math.abs(f.contrastPct) >= Math.abs(other.contrastPct)) continue;
@@ -249,6 +259,11 @@ export function isDuplicate(ctx: Ctx, f: Found): boolean {
     }
   }
   return false;
+}
+
+/** Round (length under 1.5 x width) and touching none of the panel's edges. */
+function roundInside(f: Found): boolean {
+  return f.lengthMm < 1.5 * f.widthMm && f.touch.top + f.touch.bottom + f.touch.left + f.touch.right === 0;
 }
 
 /** Record a found region; nested (smaller) regions keep their own labels inside larger ones. */

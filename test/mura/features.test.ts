@@ -177,6 +177,24 @@ describe('features against the panel edge or crossing others', () => {
     expect(relErr(c!.contrastPct, tc.contrastPct)).toBeLessThan(0.25);
   });
 
+  it('keeps a round spot on a band of its sign, fainter than the band', () => {
+    // a bright Gaussian spot (sigma 15 mm, 35 mm across at half peak) on a bright band 30 mm wide, well
+    // inside the panel: found against the band (the band's profile is taken out for the search), it stands
+    // out by less than the band's own contrast and had been dropped as a remnant of the band
+    const spot = { sigma: 15, peak: 2.5, x: 150, y: 110 };
+    const bandPeak = 3.6;
+    const r = big([{ kind: 'band', axis: 'horizontal', posMm: 110, fwhmMm: 30, profile: 'cos', contrastPct: bandPeak }, gauss(spot)], 43);
+    expect(r.blobs.some((b) => b.kind === 'band' && b.detail.axis === 'horizontal' && Math.abs(b.yMm - 110) < 5)).toBe(true);
+    const s = r.blobs.find((b) => b.kind !== 'band' && b.polarity === 'bright' && Math.hypot(b.xMm - spot.x, b.yMm - spot.y) < 10);
+    expect(s).toBeDefined();
+    // against the band's level at its centre the spot's peak is 2.5 / (1 + 0.036) % (features multiply
+    // the field, scripts/mura-synth.ts); analytic half-peak mean (helpers.ts, derived by hand): 1.74 %
+    const ts = gaussTruth(spot.sigma, spot.peak / (1 + bandPeak / 100));
+    expect(relErr(s!.contrastPct, ts.contrastPct)).toBeLessThan(0.25);
+    // no other finding of the band's sign beside the band itself and the spot
+    expect(r.blobs.filter((b) => b.polarity === 'bright' && b.semu >= 1).length).toBe(2);
+  });
+
   it('masks a cloud that reaches the panel edge from the surface fit when its top lies inside', () => {
     // centred 45 mm from the bottom edge (1.1 sigma): left in the surface fit as an edge effect, the
     // surface bent into it and its half-peak region came out at 0.63 of the true area
