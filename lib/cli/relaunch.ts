@@ -6,7 +6,8 @@
 // 12 MP, --jobs 2: 704 MB peak with the defaults, 594 MB this way; README "Speed"). glibc reads these
 // settings from the environment only when a process starts, so `evenfield inspect` starts its work in a
 // child process of the same Node with them set, and waits for it. Nothing else changes: same
-// arguments, same standard streams, same exit status.
+// arguments, same standard streams, same exit status; only a run with a pool of workers also gets V8
+// options of its own (POOL_NODE_OPTIONS below).
 //
 // Not done when the user has set either variable (their choice stands), when EVENFIELD_ALLOCATOR=default,
 // under a debugger (--inspect), or off Linux (other C libraries ignore these variables). The child stops
@@ -22,6 +23,36 @@ export const ALLOCATOR_ENV: Readonly<Record<string, string>> = {
   // 1 MiB: arrays of a megabyte or more are mapped on their own and go back to the system when freed
   MALLOC_MMAP_THRESHOLD_: '1048576',
 };
+
+/**
+ * V8 options of the child when it runs a pool of workers (--jobs 2 or more; the default is one per core).
+ * Each worker is its own V8 instance, and by default each also compiles optimised code and collects
+ * garbage on background threads. With one worker per core those threads take cores from the workers
+ * (a 12 MP lot of 18 photos, --jobs 2 on 2 cores, no PDFs: 88 s of CPU and 47-48 s without this, 72-73 s
+ * and 40 s with it; DEVELOPERS.md "Study log", Speed). --single-threaded is V8's own switch for that: the
+ * same work on the thread that needs it. A run with one job keeps V8's defaults (there the background
+ * threads have the second core to themselves: 66 s instead of 69 s).
+ */
+export const POOL_NODE_OPTIONS: readonly string[] = ['--single-threaded'];
+
+/**
+ * The worker count the command will use: the value of --jobs (as `--jobs N` or `--jobs=N`), or one
+ * per core when it is not given; NaN for a value that is not a number (the command itself reports it).
+ */
+export function jobsOf(args: readonly string[], cores: number): number {
+  let jobs = cores;
+  for (let k = 0; k < args.length; k++) {
+    const a = args[k]!;
+    if (a === '--jobs') jobs = Number(args[k + 1]);
+    else if (a.startsWith('--jobs=')) jobs = Number(a.slice('--jobs='.length));
+  }
+  return jobs;
+}
+
+/** The Node options the relaunched child gets besides the launcher's own: POOL_NODE_OPTIONS for a pool. */
+export function relaunchNodeOptions(args: readonly string[], cores: number): string[] {
+  return jobsOf(args, cores) >= 2 ? [...POOL_NODE_OPTIONS] : [];
+}
 
 /** Set in the child's environment: it is the relaunched command. */
 export const RELAUNCHED_MARK = 'EVENFIELD_RELAUNCHED';
@@ -55,12 +86,13 @@ export function relaunchEnv(
 const FORWARDED_SIGNALS: NodeJS.Signals[] = ['SIGINT', 'SIGTERM', 'SIGHUP'];
 
 /**
- * Run `script` with this process's Node options and arguments in a child process with `extraEnv` added;
+ * Run `script` with this process's Node options (and `extraNodeOptions`) and arguments in a child process
+ * with `extraEnv` added;
  * settle with the child's exit status (a child ended by a signal is re-raised here).
  */
-export function runInChild(script: string, extraEnv: Record<string, string>): Promise<number> {
+export function runInChild(script: string, extraEnv: Record<string, string>, extraNodeOptions: readonly string[] = []): Promise<number> {
   return new Promise((resolveRun) => {
-    const child = spawn(process.execPath, [...process.execArgv, script, ...process.argv.slice(2)], {
+    const child = spawn(process.execPath, [...process.execArgv, ...extraNodeOptions, script, ...process.argv.slice(2)], {
       stdio: ['inherit', 'inherit', 'inherit', 'ipc'],
       env: { ...process.env, ...extraEnv },
     });

@@ -8,7 +8,7 @@ import { mkdtempSync, readFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
-import { ALLOCATOR_ENV, RELAUNCHED_MARK, relaunchEnv } from '../../lib/cli/relaunch.js';
+import { ALLOCATOR_ENV, jobsOf, POOL_NODE_OPTIONS, RELAUNCHED_MARK, relaunchEnv, relaunchNodeOptions } from '../../lib/cli/relaunch.js';
 
 const BIN = join(__dirname, '..', '..', 'bin', 'evenfield.js');
 
@@ -83,6 +83,19 @@ describe('relaunch decision', () => {
     expect(relaunchEnv(['inspect', 'photos'], { NODE_OPTIONS: '--inspect=9230' }, linux)).toBeNull();
     expect(relaunchEnv(['inspect', 'photos'], {}, linux, ['--import', 'hook.js'])).not.toBeNull();
   });
+  it("gives a pool's child V8's switch for no background threads, and a single job's child none", () => {
+    // `node --v8-options`: "--single-threaded (disable the use of background tasks)"
+    expect(POOL_NODE_OPTIONS).toEqual(['--single-threaded']);
+    expect(relaunchNodeOptions(['inspect', 'photos', '--jobs', '2'], 1)).toEqual(['--single-threaded']);
+    expect(relaunchNodeOptions(['inspect', 'photos', '--jobs=4'], 2)).toEqual(['--single-threaded']);
+    expect(relaunchNodeOptions(['inspect', 'photos', '--jobs', '1'], 2)).toEqual([]);
+    // without --jobs the command uses one worker per core
+    expect(relaunchNodeOptions(['inspect', 'photos'], 2)).toEqual(['--single-threaded']);
+    expect(relaunchNodeOptions(['inspect', 'photos'], 1)).toEqual([]);
+    // a value that is no number is the command's to report, with V8's defaults
+    expect(jobsOf(['inspect', 'photos', '--jobs', 'many'], 2)).toBeNaN();
+    expect(relaunchNodeOptions(['inspect', 'photos', '--jobs', 'many'], 2)).toEqual([]);
+  });
   it('sets the values glibc documents for these variables (arena count, threshold in bytes)', () => {
     expect(Number(ALLOCATOR_ENV.MALLOC_ARENA_MAX)).toBe(2);
     expect(Number(ALLOCATOR_ENV.MALLOC_MMAP_THRESHOLD_)).toBe(1 << 20);
@@ -100,6 +113,20 @@ describe.runIf(process.platform === 'linux')('relaunched inspect (Linux)', () =>
     expect(errors).toHaveLength(1);
     expect(errors[0]).toContain('missing.jpg');
     expect(r.status).toBe(2);
+  });
+
+  it("starts a pool's child with V8's background threads off and a single job's child with V8's defaults", () => {
+    const hook = `data:text/javascript,process.stderr.write('single=' + process.execArgv.includes('--single-threaded') + ' mark=' + process.env.${RELAUNCHED_MARK} + '\\n')`;
+    for (const [jobs, expected] of [
+      ['2', 'single=true mark=1'],
+      ['1', 'single=false mark=1'],
+    ]) {
+      const out = mkdtempSync(join(tmpdir(), 'ef-relaunch-'));
+      const r = spawnSync(process.execPath, ['--import', hook, BIN, 'inspect', join(out, 'missing.jpg'), '--out', join(out, 'o'), '--jobs', jobs], { encoding: 'utf8' });
+      const lines = r.stderr.split('\n').filter((l) => l.startsWith('single='));
+      expect(lines).toEqual(['single=false mark=undefined', expected]);
+      expect(r.status).toBe(2);
+    }
   });
 
   it('leaves the command in the launcher when the user set the allocator', () => {
