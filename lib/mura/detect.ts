@@ -43,8 +43,9 @@ interface Level {
   /** flood-fill marks and the last mark used */
   stamp: Int32Array;
   gen: number;
-  /** peaksOf's map from pixel to its place in the component (+1; 0 elsewhere between calls), made when first needed */
-  slot?: Int32Array;
+  /** peaksOf's map from pixel to its place in the component (+1; 0 elsewhere between calls), made when first
+   *  needed (null until then: the field is there from the start, so a level keeps one shape for V8) */
+  slot: Int32Array | null;
 }
 
 /** A feature seen on one level: its half-peak region there. */
@@ -109,7 +110,7 @@ export function buildLevels(ctx: Ctx): Level[] {
   const maxFeaturePx = ctx.opts.maxFeatureMm / ctx.mmPerPx;
   for (let l = 0; ; l++) {
     for (let i = 0; i < m.length; i++) if (!(n[i] > 0)) m[i] = 0;
-    levels.push(finishLevel({ l, w, h, f, m, n, s: m, noiseS: 0, noiseM: 0, tileNoise: null, tilesX: 0, stamp: new Int32Array(w * h), gen: 0 }));
+    levels.push(finishLevel({ l, w, h, f, m, n, s: m, noiseS: 0, noiseM: 0, tileNoise: null, tilesX: 0, stamp: new Int32Array(w * h), gen: 0, slot: null }));
     // a feature maxFeatureMm across spans 3 px two levels up: no need to go coarser
     if (Math.min(w, h) < 16 || f > maxFeaturePx / 2) break;
     const w2 = Math.ceil(w / 2);
