@@ -28,8 +28,8 @@ export const ALLOCATOR_ENV: Readonly<Record<string, string>> = {
  * V8 options of the child when it runs a pool of workers (--jobs 2 or more; the default is one per core).
  * Each worker is its own V8 instance, and by default each also compiles optimised code and collects
  * garbage on background threads. With one worker per core those threads take cores from the workers
- * (a 12 MP lot of 18 photos, --jobs 2 on 2 cores, no PDFs: 88 s of CPU and 47-48 s without this, 72-73 s
- * and 40 s with it; DEVELOPERS.md "Study log", Speed). --single-threaded is V8's own switch for that: the
+ * (a 12 MP lot of 18 photos, --jobs 2 on 2 cores, no PDFs: 92-94 s of CPU and 47-48 s without this,
+ * 76-78 s and 40 s with it; DEVELOPERS.md "Study log", Speed). --single-threaded is V8's own switch for that: the
  * same work on the thread that needs it. A run with one job keeps V8's defaults (there the background
  * threads have the second core to themselves: 66 s instead of 69 s).
  */
