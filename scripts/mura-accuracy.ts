@@ -13,7 +13,7 @@
 // cloud's envelope is scaled until its half-peak region has the drawn diameter (equal-area disc).
 // Corners are the generator's true ones, so that a geometry miss does not count as a mura miss.
 //
-//   npx tsc -p tsconfig.build.json && node dist/scripts/mura-accuracy.js [gray] [clean] [black] [width] [height] [--big] [--render] [--seeds=N]
+//   npx tsc -p tsconfig.build.json && node dist/scripts/mura-accuracy.js [gray] [clean] [black] [width] [height] [--big] [--render] [--seeds=N] [--panel=WxH]
 //
 // Rendered photos and their truth are kept under .cache/ and reused (--render draws them again).
 
@@ -37,7 +37,14 @@ const seedArg = process.argv.find((a) => a.startsWith('--seeds='));
 const seedOffset = seedArg ? Number(seedArg.slice('--seeds='.length)) : 0;
 if (!Number.isInteger(seedOffset) || seedOffset < 0 || seedOffset > 900) throw new Error('--seeds=N needs an integer 0..900');
 const cloudSizes = process.argv.includes('--nominal') ? 'nominal' : 'half-peak';
-const dir = join('.cache', process.argv.includes('--nominal') ? 'mura-accuracy-nominal' : 'mura-accuracy');
+// --panel=WxH: another panel size in mm (default the generator's 597.9 x 336.3, a 27-inch 16:9 monitor)
+const panelArg = process.argv.find((a) => a.startsWith('--panel='));
+const panelMm = panelArg ? (([w, h]) => ({ width: w, height: h }))(panelArg.slice('--panel='.length).split('x').map(Number)) : null;
+if (panelMm && !(panelMm.width > 0 && panelMm.height > 0)) throw new Error('--panel=WxH needs two sizes in mm, e.g. --panel=708.5x398.5');
+const dir = join(
+  '.cache',
+  (process.argv.includes('--nominal') ? 'mura-accuracy-nominal' : 'mura-accuracy') + (panelMm ? `-panel-${panelMm.width}x${panelMm.height}-${width}x${height}` : ''),
+);
 mkdirSync(dir, { recursive: true });
 
 interface Measured {
@@ -206,7 +213,7 @@ async function main(): Promise<void> {
   const ms: number[] = [];
   for (let k = 0; k < nGray; k++) {
     const seed = 1000 + seedOffset + k;
-    const spec = graySpec(seed, false, width, height, cloudSizes);
+    const spec = graySpec(seed, false, width, height, cloudSizes, panelMm);
     const r = await measure(`gray-${seed}`, spec);
     ms.push(r.ms);
     if (!r.mura) {
@@ -271,7 +278,7 @@ async function main(): Promise<void> {
   const cleanList: string[] = [];
   for (let k = 0; k < nClean; k++) {
     const seed = 5000 + seedOffset + k;
-    const r = await measure(`clean-${seed}`, graySpec(seed, true, width, height));
+    const r = await measure(`clean-${seed}`, graySpec(seed, true, width, height, 'half-peak', panelMm));
     if (!r.mura) {
       cleanList.push(`clean ${seed}: ${r.error}`);
       continue;
@@ -296,7 +303,7 @@ async function main(): Promise<void> {
   const glowList: string[] = [];
   for (let k = 0; k < nBlack; k++) {
     const seed = 8000 + seedOffset + k;
-    const spec = blackSpec(seed, width, height);
+    const spec = blackSpec(seed, width, height, panelMm);
     const r = await measure(`black-${seed}`, spec);
     if (!r.mura) {
       glowList.push(`black ${seed}: ${r.error}`);

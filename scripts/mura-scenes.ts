@@ -21,8 +21,16 @@ function sizeCloud(spec: PhotoSpec, index: number, diameter: number): void {
  * cloud's envelope so that its half-peak region is the drawn size across (the convention of spots and
  * bands); 'nominal' keeps the generator's envelope size, whose half-peak region is about 0.5-0.65 of it.
  */
-export function graySpec(seed: number, clean: boolean, width: number, height: number, cloudSizes: 'half-peak' | 'nominal' = 'half-peak'): PhotoSpec {
+export function graySpec(
+  seed: number,
+  clean: boolean,
+  width: number,
+  height: number,
+  cloudSizes: 'half-peak' | 'nominal' = 'half-peak',
+  panelMm: { width: number; height: number } | null = null,
+): PhotoSpec {
   const spec = randomScene(seed, {
+    ...(panelMm ? { widthMm: panelMm.width, heightMm: panelMm.height } : {}),
     pattern: 'gray',
     level: 0.5,
     width,
@@ -45,8 +53,9 @@ export function graySpec(seed: number, clean: boolean, width: number, height: nu
   return spec;
 }
 
-export function blackSpec(seed: number, width: number, height: number): PhotoSpec {
+export function blackSpec(seed: number, width: number, height: number, panelMm: { width: number; height: number } | null = null): PhotoSpec {
   const spec = randomScene(seed, {
+    ...(panelMm ? { widthMm: panelMm.width, heightMm: panelMm.height } : {}),
     pattern: 'black',
     width,
     height,
