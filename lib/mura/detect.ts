@@ -422,6 +422,7 @@ function candidatesOn(lv: Level, sign: 1 | -1, thr: number, out: Candidate[], sp
   const comp: number[] = [];
   const peaks: number[] = [];
   const merged: number[] = [];
+  const saddles: number[] = [];
   for (let i0 = 0; i0 < w * h; i0++) {
     if (seen[i0] || !(sign * s[i0] > thr)) continue;
     // connected component above threshold
@@ -440,7 +441,7 @@ function candidatesOn(lv: Level, sign: 1 | -1, thr: number, out: Candidate[], sp
     if (comp.length < 2) continue;
     // several peaks in one component (features touching above the threshold): each peak standing
     // clearly above its saddle gets its own half-peak region
-    peaksOf(lv, comp, sign, thr, peaks, merged);
+    peaksOf(lv, comp, sign, thr, peaks, merged, saddles);
   }
   peaks.sort((a, b) => sign * s[b] - sign * s[a]);
   const mine: Candidate[] = [];
@@ -458,7 +459,15 @@ function candidatesOn(lv: Level, sign: 1 | -1, thr: number, out: Candidate[], sp
   // A broad peak joined to a higher, sharper one above half its own height (a cloud with a spot on its
   // flank) has no half-peak region of its own that stops short of the spot, yet it is a feature: its
   // half-peak region is flooded through the spot's surroundings.
-  for (const lo of merged) {
+  for (let q = 0; q < merged.length; q++) {
+    const lo = merged[q];
+    // a sharp peak joined to a higher feature above half its height (a spot on a cloud's flank): its
+    // half-peak region taken above the saddle it meets the other at, kept when it is a spot's size
+    const spot = halfPeak(lv, lo, sign, thr, spotPx, ringFit, saddles[q]);
+    if (spot) {
+      out.push(spot);
+      continue;
+    }
     let near: Candidate | null = null;
     let dBest = Infinity;
     const lx = lo % lv.w;
@@ -487,9 +496,11 @@ function candidatesOn(lv: Level, sign: 1 | -1, thr: number, out: Candidate[], sp
  * The peaks of a component that stand on their own: pixels taken from the highest down and joined
  * into regions (union-find); where two regions meet, the lower peak is kept as a feature of its own
  * when the meeting level (the saddle) is at most half of its height, i.e. its half-peak region does not
- * reach the higher one. The highest peak is always kept.
+ * reach the higher one. The highest peak is always kept. A lower peak standing out of its saddle by
+ * MERGED_PROMINENCE x the threshold but joined above half its height goes to mergedOut instead, with the
+ * saddle's level (signed contrast) at the same place in saddleOut.
  */
-function peaksOf(lv: Level, comp: number[], sign: 1 | -1, thr: number, keptOut: number[], mergedOut: number[]): void {
+function peaksOf(lv: Level, comp: number[], sign: 1 | -1, thr: number, keptOut: number[], mergedOut: number[], saddleOut: number[]): void {
   const { w, s } = lv;
   const n = comp.length;
   // pixels from the highest down (ties in the component's order)
@@ -516,6 +527,7 @@ function peaksOf(lv: Level, comp: number[], sign: 1 | -1, thr: number, keptOut: 
   };
   const kept: number[] = [comp[rank[0]]];
   const merged: number[] = [];
+  const saddles: number[] = [];
   const size = s.length;
   for (let t = 0; t < n; t++) {
     const li = rank[t];
@@ -540,7 +552,10 @@ function peaksOf(lv: Level, comp: number[], sign: 1 | -1, thr: number, keptOut: 
       if (lo !== i && v <= 0.5 * loV && loV >= 2 * thr && kept.length < 50) kept.push(lo);
       // joined above its half height but standing out of the saddle by more than the noise could
       // raise it (MERGED_PROMINENCE x the threshold): a feature of its own under a sharper one, maybe
-      else if (lo !== i && loV - v >= MERGED_PROMINENCE * thr && loV >= 2 * thr && merged.length < 50) merged.push(lo);
+      else if (lo !== i && loV - v >= MERGED_PROMINENCE * thr && loV >= 2 * thr && merged.length < 50) {
+        merged.push(lo);
+        saddles.push(sign * v);
+      }
       parent[a] = b;
       peakOf[b] = hi;
     }
@@ -548,6 +563,7 @@ function peaksOf(lv: Level, comp: number[], sign: 1 | -1, thr: number, keptOut: 
   for (let k = 0; k < n; k++) slot[comp[k]] = 0;
   keptOut.push(...kept);
   mergedOut.push(...merged);
+  saddleOut.push(...saddles);
 }
 
 /** Noise of the smoothed level at a pixel: its tile's figure, or the level's. */
@@ -589,8 +605,12 @@ function flood(lv: Level, start: number, sign: 1 | -1, level: number): { region:
   }
 }
 
-/** The half-peak region around a peak on a level, against the local surround. */
-function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number, spotPx: number, ringFit: boolean): Candidate | null {
+/**
+ * The half-peak region around a peak on a level, against the local surround. With a `base` (a saddle's
+ * signed contrast, see candidatesOn) the region is taken halfway between it and the peak, and only a
+ * spot-sized one is kept.
+ */
+function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number, spotPx: number, ringFit: boolean, base = 0): Candidate | null {
   const { w, s } = lv;
   let peak = s[peakIdx];
   // First against the global background. A feature sitting on a plateau of the same sign (a spot on a
@@ -600,7 +620,7 @@ function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number, spotPx:
   // part of something larger, found on a coarser level.
   // (flood returns null for a peak that is not the top of its own half-peak region: a noise bump on
   // the flank of something larger - a glow's tail, a cloud's shoulder - found from its own top)
-  let fl = flood(lv, peakIdx, sign, 0.5 * sign * peak);
+  let fl = flood(lv, peakIdx, sign, sign * (base + 0.5 * (peak - base)));
   if (!fl) return null;
   const noise = noiseAt(lv, peakIdx);
   // The largest pixel of a noisy level stands above the feature's true top by about
@@ -610,10 +630,10 @@ function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number, spotPx:
   const top = fittedTop(lv, peakIdx, halfWidth(fl.region, w), sign);
   if (top !== null && sign * top < sign * peak) {
     peak = top;
-    fl = flood(lv, peakIdx, sign, 0.5 * sign * peak);
+    fl = flood(lv, peakIdx, sign, sign * (base + 0.5 * (peak - base)));
     if (!fl) return null;
   }
-  if (sign * peak < (thr * noise) / lv.noiseS) return null;
+  if (sign * (peak - base) < (thr * noise) / lv.noiseS) return null;
   let pedestal = 0;
   // A spot is measured against the level under it: a quadratic surface fitted over a ring 2.5 to 4 times
   // its half-peak radius out (where a Gaussian spot is down to 1.3 % of its top and less), evaluated at
@@ -626,6 +646,21 @@ function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number, spotPx:
   // narrower than a cloud: the equivalent diameter of a region of n level px under spotPx
   const spotSized = (n: number): boolean => 2 * Math.sqrt(n / Math.PI) < spotPx;
   const isSpot = spotSized(fl.region.length);
+  if (base !== 0) {
+    // measured above a saddle (see candidatesOn): spots only, against the surface of their ring when it
+    // fits, else against the saddle
+    if (!isSpot) return null;
+    const ring = ringFit ? ringSurface(lv, fl.region, fl.gen, 2.5, 4) : null;
+    pedestal = base;
+    if (ring && ring.rms < 0.25 * Math.abs(peak - ring.level) && sign * (peak - ring.level) >= thr) {
+      const again = flood(lv, peakIdx, sign, sign * (ring.level + 0.5 * (peak - ring.level)));
+      if (again && spotSized(again.region.length)) {
+        pedestal = ring.level;
+        fl = again;
+      }
+    }
+    return candidateOf(lv, sign, peak, peakIdx, pedestal, fl.region.sort(), noise, null);
+  }
   const ring = isSpot && ringFit ? ringSurface(lv, fl.region, fl.gen, 2.5, 4) : null;
   const near = surround(lv, fl.region, fl.gen, 1.5, 2.5);
   if (ring) {

@@ -195,6 +195,25 @@ describe('features against the panel edge or crossing others', () => {
     expect(r.blobs.filter((b) => b.polarity === 'bright' && b.semu >= 1).length).toBe(2);
   });
 
+  it("finds a spot on a cloud's flank whose top stays below the cloud's", () => {
+    // a bright cloud (sigma 30 mm, +8 %) and 42 mm from its centre, where the cloud is still 3 % up, a
+    // bright Gaussian spot (sigma 7 mm, +4.5 %): the spot's top (about 7.5 %) stays below the cloud's and
+    // the two meet above half the spot's height, so no half-peak region of the spot's own stops short of
+    // the cloud; it is measured above the level it meets the cloud at
+    const cloud = { sigma: 30, peak: 8, x: 180, y: 125 };
+    const spot = { sigma: 7, peak: 4.5, x: 222, y: 125 };
+    const r = big([gauss(cloud), gauss(spot)], 45);
+    const c = r.blobs.find((b) => b.kind === 'cloud' && Math.hypot(b.xMm - cloud.x, b.yMm - cloud.y) < 10);
+    expect(c).toBeDefined();
+    const s = r.blobs.find((b) => b !== c && b.polarity === 'bright' && Math.hypot(b.xMm - spot.x, b.yMm - spot.y) < 5);
+    expect(s).toBeDefined();
+    expect(s!.kind).toBe('spot');
+    // smaller than the spot's analytic half-peak disc would be on a flat field (helpers.ts: 2 pi ln2
+    // sigma^2 = 213 mm^2) at most by the part of it the flank covers; never the cloud's size
+    expect(s!.areaMm2).toBeGreaterThan(0.3 * gaussTruth(spot.sigma, spot.peak).areaMm2);
+    expect(s!.areaMm2).toBeLessThan(2 * gaussTruth(spot.sigma, spot.peak).areaMm2);
+  });
+
   it('masks a cloud that reaches the panel edge from the surface fit when its top lies inside', () => {
     // centred 45 mm from the bottom edge (1.1 sigma): left in the surface fit as an edge effect, the
     // surface bent into it and its half-peak region came out at 0.63 of the true area
