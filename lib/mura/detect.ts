@@ -159,31 +159,51 @@ export function buildLevels(ctx: Ctx): Level[] {
   return levels;
 }
 
-function finishLevel(lv: Level): Level {
-  const { w, h, m, n, f } = lv;
-  const full = f * f;
-  // normalised convolution: smooth m*n and n, divide
-  const num = new Float32Array(w * h);
-  const den = new Float32Array(w * h);
-  const tmpA = new Float32Array(w * h);
-  const tmpB = new Float32Array(w * h);
-  const r = (KERNEL.length - 1) >> 1;
-  const nk = KERNEL.length;
-  // along rows (weights of zero add nothing: m is 0 where n is)
+// The smoothing below is written out for the 7 taps of SMOOTH_SIGMA = 1 (these loops are most of a level's
+// cost); each sum is still taken tap by tap from the first, in the order a loop over KERNEL would take it.
+if (KERNEL.length !== 7) throw new Error('detect.ts: the level smoothing is written for a kernel of 7 taps');
+const K0 = KERNEL[0];
+const K1 = KERNEL[1];
+const K2 = KERNEL[2];
+const K3 = KERNEL[3];
+
+/** Scratch rasters reused from level to level and call to call (each worker thread has its own). */
+let scratchA = new Float32Array(0);
+let scratchB = new Float32Array(0);
+function scratch(size: number): [Float32Array, Float32Array] {
+  if (scratchA.length < size) {
+    scratchA = new Float32Array(size);
+    scratchB = new Float32Array(size);
+  }
+  return [scratchA.subarray(0, size), scratchB.subarray(0, size)];
+}
+
+/**
+ * Normalised convolution of a level: m*n and n smoothed by KERNEL along rows and then columns, their
+ * ratio where the smoothed weight reaches minDen (NaN elsewhere). Weights of zero add nothing (m is 0
+ * where n is).
+ */
+function smoothLevel(m: Float32Array, n: Float32Array, w: number, h: number, minDen: number): Float32Array {
+  const [tmpA, tmpB] = scratch(w * h);
+  const r = 3;
   for (let y = 0; y < h; y++) {
     const row = y * w;
     for (let x = 0; x < w; x++) {
-      let a = 0;
-      let b = 0;
+      const i = row + x;
       if (x >= r && x + r < w) {
-        const base = row + x - r;
-        for (let t = 0; t < nk; t++) {
-          const q = n[base + t];
-          const k = KERNEL[t];
-          a += k * q * m[base + t];
-          b += k * q;
-        }
+        const q0 = n[i - 3];
+        const q1 = n[i - 2];
+        const q2 = n[i - 1];
+        const q3 = n[i];
+        const q4 = n[i + 1];
+        const q5 = n[i + 2];
+        const q6 = n[i + 3];
+        tmpA[i] =
+          K0 * q0 * m[i - 3] + K1 * q1 * m[i - 2] + K2 * q2 * m[i - 1] + K3 * q3 * m[i] + K2 * q4 * m[i + 1] + K1 * q5 * m[i + 2] + K0 * q6 * m[i + 3];
+        tmpB[i] = K0 * q0 + K1 * q1 + K2 * q2 + K3 * q3 + K2 * q4 + K1 * q5 + K0 * q6;
       } else {
+        let a = 0;
+        let b = 0;
         const lo = Math.max(0, x - r);
         const hi = Math.min(w - 1, x + r);
         for (let xx = lo; xx <= hi; xx++) {
@@ -193,36 +213,62 @@ function finishLevel(lv: Level): Level {
           a += k * q * m[row + xx];
           b += k * q;
         }
-      }
-      tmpA[row + x] = a;
-      tmpB[row + x] = b;
-    }
-  }
-  // along columns, a whole row at a time (memory in order; each sum still taken in the same order)
-  const accA = new Float64Array(w);
-  const accB = new Float64Array(w);
-  for (let y = 0; y < h; y++) {
-    const lo = Math.max(0, y - r);
-    const hi = Math.min(h - 1, y + r);
-    accA.fill(0);
-    accB.fill(0);
-    for (let yy = lo; yy <= hi; yy++) {
-      const k = KERNEL[yy - y + r];
-      const src = yy * w;
-      for (let x = 0; x < w; x++) {
-        accA[x] += k * tmpA[src + x];
-        accB[x] += k * tmpB[src + x];
+        tmpA[i] = a;
+        tmpB[i] = b;
       }
     }
-    const dst = y * w;
-    for (let x = 0; x < w; x++) {
-      num[dst + x] = accA[x];
-      den[dst + x] = accB[x];
-    }
   }
+  // along columns; each sum rounded to single precision before the ratio, as when kept in a raster
   const s = new Float32Array(w * h);
-  const minDen = 0.35 * full;
-  for (let i = 0; i < s.length; i++) s[i] = den[i] >= minDen ? num[i] / den[i] : NaN;
+  for (let y = 0; y < h; y++) {
+    const row = y * w;
+    if (y >= r && y + r < h) {
+      const w2 = 2 * w;
+      const w3 = 3 * w;
+      for (let x = 0; x < w; x++) {
+        const i = row + x;
+        const a = Math.fround(
+          K0 * tmpA[i - w3] + K1 * tmpA[i - w2] + K2 * tmpA[i - w] + K3 * tmpA[i] + K2 * tmpA[i + w] + K1 * tmpA[i + w2] + K0 * tmpA[i + w3],
+        );
+        const b = Math.fround(
+          K0 * tmpB[i - w3] + K1 * tmpB[i - w2] + K2 * tmpB[i - w] + K3 * tmpB[i] + K2 * tmpB[i + w] + K1 * tmpB[i + w2] + K0 * tmpB[i + w3],
+        );
+        s[i] = b >= minDen ? a / b : NaN;
+      }
+    } else {
+      const lo = Math.max(0, y - r);
+      const hi = Math.min(h - 1, y + r);
+      for (let x = 0; x < w; x++) {
+        let a = 0;
+        let b = 0;
+        for (let yy = lo; yy <= hi; yy++) {
+          const k = KERNEL[yy - y + r];
+          a += k * tmpA[yy * w + x];
+          b += k * tmpB[yy * w + x];
+        }
+        const af = Math.fround(a);
+        const bf = Math.fround(b);
+        s[row + x] = bf >= minDen ? af / bf : NaN;
+      }
+    }
+  }
+  return s;
+}
+
+let scratchD = new Float32Array(0);
+let scratchT = new Int32Array(0);
+function differenceScratch(size: number): [Float32Array, Int32Array] {
+  if (scratchD.length < size) {
+    scratchD = new Float32Array(size);
+    scratchT = new Int32Array(size);
+  }
+  return [scratchD, scratchT];
+}
+
+function finishLevel(lv: Level): Level {
+  const { w, h, m, n, f } = lv;
+  const full = f * f;
+  const s = smoothLevel(m, n, w, h, 0.35 * full);
 
   // noise of m from full pixels: m_i minus the mean of its four neighbours (white noise: sqrt(1.25) sigma)
   const diffs: number[] = [];
@@ -248,8 +294,7 @@ function finishLevel(lv: Level): Level {
   const tilesX = Math.ceil(w / TILE);
   const tilesY = Math.ceil(h / TILE);
   const useTiles = tilesX >= 3 && tilesY >= 3;
-  const absd = new Float32Array(2 * w * h);
-  const tileOf = new Int32Array(useTiles ? 2 * w * h : 0);
+  const [absd, tileOf] = differenceScratch(2 * w * h);
   let nd = 0;
   for (let y = 0; y < h; y++) {
     const tileRow = Math.floor(y / TILE) * tilesX;
@@ -282,8 +327,9 @@ function finishLevel(lv: Level): Level {
   // tails; those tails are what would otherwise pass the threshold as features. Features themselves
   // cover too few of the pixels that have large differences on any one level to move either figure;
   // on small (coarse) levels they could, so the tail is read only where there are 20 000 differences.
-  const bulk = nd >= 30 ? quantileOf(diffsAbs, 0.9) / 1.645 / gain : 0;
-  const tail = nd >= 20000 ? quantileOf(diffsAbs, 0.9999) / 3.89 / gain : 0;
+  const [q90, q9999] = nd >= 30 ? quantilesOf(diffsAbs, [0.9, 0.9999]) : [0, 0];
+  const bulk = nd >= 30 ? q90 / 1.645 / gain : 0;
+  const tail = nd >= 20000 ? q9999 / 3.89 / gain : 0;
   const noiseS = Math.max(noiseM * k2, bulk, tail);
   // Noise is not the same everywhere: after the falloff correction the dim corners of the photo carry
   // more shot noise and coarser 8-bit steps than the centre. Each tile's bulk figure (75th percentile
@@ -1170,20 +1216,27 @@ function toFound(ctx: Ctx, c: Candidate): Found | null {
 
 /** The q-quantile of non-negative values (histogram of 8192 bins over [0, max], linear within the bin). */
 function quantileOf(values: Float32Array, q: number): number {
+  return quantilesOf(values, [q])[0];
+}
+
+/** Quantiles of non-negative values from one histogram of 8192 bins over [0, max]. */
+function quantilesOf(values: Float32Array, qs: number[]): number[] {
   let max = 0;
   for (let k = 0; k < values.length; k++) if (values[k] > max) max = values[k];
-  if (!(max > 0)) return 0;
+  if (!(max > 0)) return qs.map(() => 0);
   const bins = 8192;
   const hist = new Uint32Array(bins);
   const scale = (bins - 1e-6) / max;
   for (let k = 0; k < values.length; k++) hist[Math.floor(values[k] * scale)]++;
-  const target = q * values.length;
-  let acc = 0;
-  for (let b = 0; b < bins; b++) {
-    if (acc + hist[b] >= target) return (b + (target - acc) / Math.max(hist[b], 1)) / scale;
-    acc += hist[b];
-  }
-  return max;
+  return qs.map((q) => {
+    const target = q * values.length;
+    let acc = 0;
+    for (let b = 0; b < bins; b++) {
+      if (acc + hist[b] >= target) return (b + (target - acc) / Math.max(hist[b], 1)) / scale;
+      acc += hist[b];
+    }
+    return max;
+  });
 }
 
 /** A band's profile across the panel, as found (level px). */
