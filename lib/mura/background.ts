@@ -100,12 +100,243 @@ function termList(order: number): [number, number][] {
   return t;
 }
 
-interface Cell {
-  x: number; // centroid, working px
-  y: number;
-  value: number; // mean Y
-  weight: number;
-  tile: number; // -1 when straddling a tile boundary
+/** The coarse grid's cells with camera data, as columns (one entry per cell). */
+interface Cells {
+  n: number;
+  /** centroid, working px */
+  x: Float64Array;
+  y: Float64Array;
+  /** weighted mean Y */
+  value: Float64Array;
+  weight: Float64Array;
+  /** tile index, 0 without a tile grid */
+  tile: Int32Array;
+  /** cells more than half masked (counted whether or not they have enough data to be used) */
+  masked: number;
+}
+
+/** Cells of cellPx × cellPx working px: those at least half covered by unmasked data (and, with a tile
+ *  grid, inside one tile). */
+function gatherCells(work: WorkRaster, mask: Uint8Array | null, cellPx: number, tileGrid: [number, number] | null): Cells {
+  const { w, h, wt, Y } = work;
+  const cap = Math.ceil(w / cellPx) * Math.ceil(h / cellPx);
+  const cells: Cells = {
+    n: 0,
+    x: new Float64Array(cap),
+    y: new Float64Array(cap),
+    value: new Float64Array(cap),
+    weight: new Float64Array(cap),
+    tile: new Int32Array(cap),
+    masked: 0,
+  };
+  const cols = tileGrid ? tileGrid[0] : 1;
+  const rows = tileGrid ? tileGrid[1] : 1;
+  for (let cy = 0; cy < h; cy += cellPx) {
+    for (let cx = 0; cx < w; cx += cellPx) {
+      let sw = 0;
+      let sy = 0;
+      let sx = 0;
+      let syy = 0;
+      let total = 0;
+      let masked = 0;
+      const x1 = Math.min(w, cx + cellPx);
+      const y1 = Math.min(h, cy + cellPx);
+      for (let y = cy; y < y1; y++) {
+        for (let x = cx; x < x1; x++) {
+          const i = y * w + x;
+          const q = wt[i];
+          total++;
+          if (q <= 0) continue;
+          if (mask !== null && mask[i]) {
+            masked++;
+            continue;
+          }
+          sw += q;
+          sy += q * Y[i];
+          sx += q * x;
+          syy += q * y;
+        }
+      }
+      if (masked > 0.5 * total) cells.masked++;
+      if (sw < 0.5 * total || sw <= 0) continue;
+      let tile = 0;
+      if (tileGrid) {
+        const tx0 = Math.floor((cx / w) * cols);
+        const tx1 = Math.floor(((x1 - 1e-6) / w) * cols);
+        const ty0 = Math.floor((cy / h) * rows);
+        const ty1 = Math.floor(((y1 - 1e-6) / h) * rows);
+        tile = tx0 === tx1 && ty0 === ty1 ? ty0 * cols + tx0 : -1;
+        if (tile < 0) continue;
+      }
+      const k = cells.n++;
+      cells.x[k] = sx / sw;
+      cells.y[k] = syy / sw;
+      cells.value[k] = sy / sw;
+      cells.weight[k] = sw;
+      cells.tile[k] = tile;
+    }
+  }
+  return cells;
+}
+
+/**
+ * The fit's terms: Legendre products of order `order`, tile offsets (tile 0 the reference), bumps and
+ * radial terms, in that order. Kept in one object of fixed shape and used by module-level functions
+ * (closures made anew on every fit would each be compiled anew by V8).
+ */
+interface Terms {
+  w: number;
+  h: number;
+  order: number;
+  /** x and y degree of each Legendre product */
+  ti: Int32Array;
+  tj: Int32Array;
+  nTiles: number;
+  /** first bump column */
+  nBase: number;
+  nTerms: number;
+  bumpList: Bump[];
+  /** width scale of each bump */
+  bumpScale: Float64Array;
+  /** level the bumps are scaled by (previous background), or null without bumps */
+  level: Float32Array | null;
+  radialX: number;
+  radialY: number;
+  nRadial: number;
+  radialScale: number;
+  /** Legendre values, scratch */
+  px: Float64Array;
+  py: Float64Array;
+}
+
+/** Radial term t (odd power of the distance from the centre, over the half-diagonal) at (x, y). */
+function radialAt(T: Terms, x: number, y: number, t: number): number {
+  return Math.hypot(x - T.radialX, y - T.radialY) ** RADIAL_POWERS[t] * T.radialScale ** RADIAL_POWERS[t];
+}
+
+/** Bump k's column for cell k of the design: its Gaussian at the cell times the level there. */
+function setBump(T: Terms, cells: Cells, k: number, c: number, design: Float64Array): void {
+  let level = 0;
+  if (T.level !== null) {
+    const xi = Math.min(T.w - 1, Math.max(0, Math.round(cells.x[c])));
+    const yi = Math.min(T.h - 1, Math.max(0, Math.round(cells.y[c])));
+    level = T.level[yi * T.w + xi];
+  }
+  design[c * T.nTerms + T.nBase + k] = level * bumpValue(T.bumpList[k], T.bumpScale[k], cells.x[c], cells.y[c]);
+}
+
+/** Row c of the design (flat, nTerms per cell). */
+function designRow(T: Terms, cells: Cells, c: number, design: Float64Array): void {
+  const { px, py, ti, tj } = T;
+  const at = c * T.nTerms;
+  const x = cells.x[c];
+  const y = cells.y[c];
+  legendre(T.order, (2 * (x + 0.5)) / T.w - 1, px);
+  legendre(T.order, (2 * (y + 0.5)) / T.h - 1, py);
+  const nPoly = ti.length;
+  for (let t = 0; t < nPoly; t++) design[at + t] = px[ti[t]] * py[tj[t]];
+  for (let t = 1; t < T.nTiles; t++) design[at + nPoly + t - 1] = cells.tile[c] === t ? 1 : 0;
+  for (let k = 0; k < T.bumpList.length; k++) setBump(T, cells, k, c, design);
+  for (let t = 0; t < T.nRadial; t++) design[at + T.nBase + T.bumpList.length + t] = radialAt(T, x, y, t);
+}
+
+/** Value of the fitted surface at cell c. */
+function predictCell(design: Float64Array, nTerms: number, coef: Float64Array, c: number): number {
+  let p = 0;
+  const at = c * nTerms;
+  for (let t = 0; t < nTerms; t++) p += coef[t] * design[at + t];
+  return p;
+}
+
+/** What the robust fit works on, in one object of fixed shape. */
+interface Fitting {
+  cells: Cells;
+  design: Float64Array;
+  nTerms: number;
+  /** cells left out, 1 = clipped */
+  clipped: Uint8Array;
+  /** edge cells (a neighbour cell missing), clipped only far out on lit fields */
+  anchor: Uint8Array;
+  /** index of the cell at each grid place, -1 for none */
+  gridIndex: Int32Array;
+  gw: number;
+  gh: number;
+  cellPx: number;
+  /** median of the cells' own noise, % */
+  cellNoise: number;
+  clipSigma: number;
+  brightOnly: boolean;
+  coef: Float64Array;
+  resid: Float64Array;
+}
+
+/** Robust fit: cells beyond clipSigma of the fit are left out (with their neighbours), until no change. */
+function clipRounds(F: Fitting): void {
+  const { cells, design, nTerms, anchor, gridIndex, gw, gh, cellPx, resid } = F;
+  const n = cells.n;
+  for (let iter = 0; iter < 15; iter++) {
+    F.coef = solveWeighted(design, nTerms, cells, F.clipped);
+    for (let k = 0; k < n; k++) {
+      const p = predictCell(design, nTerms, F.coef, k);
+      resid[k] = p > 0 ? (100 * (cells.value[k] - p)) / p : 0;
+    }
+    const sigma = Math.max(robustSigma(resid), F.cellNoise, 1e-4);
+    const hiLimit = F.clipSigma * sigma;
+    const loLimit = (F.brightOnly ? 2 : 1) * F.clipSigma * sigma;
+    const next = new Uint8Array(n);
+    for (let k = 0; k < n; k++) {
+      // edge cells only for what stands far out of the fit (a bright zone of a hot-spot array on the edge)
+      const loose = anchor[k] ? 3 : 1;
+      if (resid[k] > loose * hiLimit || resid[k] < -loose * loLimit) {
+        const gx = Math.floor(cells.x[k] / cellPx);
+        const gy = Math.floor(cells.y[k] / cellPx);
+        for (let dy = -1; dy <= 1; dy++) {
+          for (let dx = -1; dx <= 1; dx++) {
+            const xx = gx + dx;
+            const yy = gy + dy;
+            if (xx < 0 || yy < 0 || xx >= gw || yy >= gh) continue;
+            const j = gridIndex[yy * gw + xx];
+            if (j >= 0) next[j] = 1;
+          }
+        }
+      }
+    }
+    // never clip so much that the fit loses its footing
+    let kept = 0;
+    for (let k = 0; k < n; k++) if (!next[k]) kept++;
+    if (kept < Math.max(3 * nTerms, 0.3 * n)) break;
+    let same = true;
+    for (let k = 0; k < n; k++) if (next[k] !== F.clipped[k]) same = false;
+    F.clipped = next;
+    if (same) break;
+  }
+}
+
+/** Each bump's width: the scale with the least weighted residual over the cells kept. */
+function chooseBumpScales(T: Terms, F: Fitting, maxSigma: number): void {
+  const { cells, design, nTerms } = F;
+  for (let k = 0; k < T.bumpList.length; k++) {
+    let best = Infinity;
+    let bestScale = 1;
+    for (const sc of BUMP_SCALES) {
+      if (sc > 1 && T.bumpList[k].sLong * sc > maxSigma) continue;
+      T.bumpScale[k] = sc;
+      for (let j = 0; j < cells.n; j++) setBump(T, cells, k, j, design);
+      const cf = solveWeighted(design, nTerms, cells, F.clipped);
+      let ssr = 0;
+      for (let j = 0; j < cells.n; j++) {
+        if (F.clipped[j]) continue;
+        const p = predictCell(design, nTerms, cf, j);
+        ssr += cells.weight[j] * (cells.value[j] - p) ** 2;
+      }
+      if (ssr < best) {
+        best = ssr;
+        bestScale = sc;
+      }
+    }
+    T.bumpScale[k] = bestScale;
+    for (let j = 0; j < cells.n; j++) setBump(T, cells, k, j, design);
+  }
 }
 
 /**
@@ -135,213 +366,113 @@ export function fitBackground(
   const nTiles = cols * rows;
 
   // 1. cells
-  const cells: Cell[] = [];
-  let cellsMasked = 0;
-  for (let cy = 0; cy < h; cy += cellPx) {
-    for (let cx = 0; cx < w; cx += cellPx) {
-      let sw = 0;
-      let sy = 0;
-      let sx = 0;
-      let syy = 0;
-      let total = 0;
-      let masked = 0;
-      const x1 = Math.min(w, cx + cellPx);
-      const y1 = Math.min(h, cy + cellPx);
-      for (let y = cy; y < y1; y++) {
-        for (let x = cx; x < x1; x++) {
-          const i = y * w + x;
-          const q = work.wt[i];
-          total++;
-          if (q <= 0) continue;
-          if (mask && mask[i]) {
-            masked++;
-            continue;
-          }
-          sw += q;
-          sy += q * work.Y[i];
-          sx += q * x;
-          syy += q * y;
-        }
-      }
-      if (masked > 0.5 * total) cellsMasked++;
-      if (sw < 0.5 * total || sw <= 0) continue;
-      let tile = 0;
-      if (tileGrid) {
-        const tx0 = Math.floor((cx / w) * cols);
-        const tx1 = Math.floor(((x1 - 1e-6) / w) * cols);
-        const ty0 = Math.floor((cy / h) * rows);
-        const ty1 = Math.floor(((y1 - 1e-6) / h) * rows);
-        tile = tx0 === tx1 && ty0 === ty1 ? ty0 * cols + tx0 : -1;
-        if (tile < 0) continue;
-      }
-      cells.push({ x: sx / sw, y: syy / sw, value: sy / sw, weight: sw, tile });
-    }
-  }
+  const cells = gatherCells(work, mask, cellPx, tileGrid);
+  const nCells = cells.n;
 
   // 2. design: Legendre terms in normalised coordinates, plus tile offsets (tile 0 is the reference)
   let order = opts.order;
   const nTileTerms = nTiles - 1;
-  while (order > 0 && cells.length < 3 * (termList(order).length + nTileTerms)) order--;
+  while (order > 0 && nCells < 3 * (termList(order).length + nTileTerms)) order--;
   const terms = termList(order);
   const bumpList = bumps?.list ?? [];
   const nBase = terms.length + nTileTerms;
   const nRadial = radial ? RADIAL_POWERS.length : 0;
   const nTerms = nBase + bumpList.length + nRadial;
-  // radial terms: odd powers of the distance from a centre, over the half-diagonal
-  const radialScale = 1 / Math.hypot(w / 2, h / 2);
-  const radialAt = (x: number, y: number, t: number): number => Math.hypot(x - radial!.x, y - radial!.y) ** RADIAL_POWERS[t] * radialScale ** RADIAL_POWERS[t];
-  const bumpScale = bumpList.map(() => 1);
-  const levelAt = (c: Cell): number => {
-    if (!bumps) return 0;
-    const xi = Math.min(w - 1, Math.max(0, Math.round(c.x)));
-    const yi = Math.min(h - 1, Math.max(0, Math.round(c.y)));
-    return bumps.level[yi * w + xi];
+  const T: Terms = {
+    w,
+    h,
+    order,
+    ti: Int32Array.from(terms, (t) => t[0]),
+    tj: Int32Array.from(terms, (t) => t[1]),
+    nTiles,
+    nBase,
+    nTerms,
+    bumpList,
+    bumpScale: new Float64Array(bumpList.length).fill(1),
+    level: bumps ? bumps.level : null,
+    radialX: radial ? radial.x : 0,
+    radialY: radial ? radial.y : 0,
+    nRadial,
+    radialScale: 1 / Math.hypot(w / 2, h / 2),
+    px: new Float64Array(order + 1),
+    py: new Float64Array(order + 1),
   };
-  const setBump = (k: number, c: Cell, r: Float64Array): void => {
-    r[nBase + k] = levelAt(c) * bumpValue(bumpList[k], bumpScale[k], c.x, c.y);
-  };
-  const px = new Float64Array(order + 1);
-  const py = new Float64Array(order + 1);
-  const rowsOf = (c: Cell, out: Float64Array): void => {
-    legendre(order, (2 * (c.x + 0.5)) / w - 1, px);
-    legendre(order, (2 * (c.y + 0.5)) / h - 1, py);
-    for (let t = 0; t < terms.length; t++) out[t] = px[terms[t][0]] * py[terms[t][1]];
-    for (let t = 1; t < nTiles; t++) out[terms.length + t - 1] = c.tile === t ? 1 : 0;
-    for (let k = 0; k < bumpList.length; k++) setBump(k, c, out);
-    for (let t = 0; t < nRadial; t++) out[nBase + bumpList.length + t] = radialAt(c.x, c.y, t);
-  };
-  const design = cells.map((c) => {
-    const r = new Float64Array(nTerms);
-    rowsOf(c, r);
-    return r;
-  });
+  const design = new Float64Array(nCells * nTerms);
+  for (let c = 0; c < nCells; c++) designRow(T, cells, c, design);
 
-  const cellNoise = cells.map((c) => noisePct / Math.sqrt(Math.max(1, c.weight)));
-  let clipped = new Uint8Array(cells.length);
-  let coef: Float64Array = new Float64Array(nTerms);
-  const predicted = new Float64Array(cells.length);
-  const resid = new Float64Array(cells.length);
+  const cellNoise = new Float64Array(nCells);
+  for (let k = 0; k < nCells; k++) cellNoise[k] = noisePct / Math.sqrt(Math.max(1, cells.weight[k]));
   // cell index lookup for the 1-cell dilation of clipped cells
   const gw = Math.ceil(w / cellPx);
   const gh = Math.ceil(h / cellPx);
   const gridIndex = new Int32Array(gw * gh).fill(-1);
-  cells.forEach((c, k) => {
-    gridIndex[Math.floor(c.y / cellPx) * gw + Math.floor(c.x / cellPx)] = k;
-  });
+  for (let k = 0; k < nCells; k++) gridIndex[Math.floor(cells.y[k] / cellPx) * gw + Math.floor(cells.x[k] / cellPx)] = k;
 
   // Lit fields: the cells on the panel's edge (a neighbour cell missing) are clipped only three times as
   // far out as the others. A whole-panel polynomial has the least support there, and with the edge cells
   // left out it swings freely beyond the last cells it was fitted to (tens of % at a corner); black
   // fields, whose glow sits at the edges, clip them like any other cell.
-  const anchor = new Uint8Array(cells.length);
+  const anchor = new Uint8Array(nCells);
   if (!brightOnly) {
-    cells.forEach((c, k) => {
-      const gx = Math.floor(c.x / cellPx);
-      const gy = Math.floor(c.y / cellPx);
+    for (let k = 0; k < nCells; k++) {
+      const gx = Math.floor(cells.x[k] / cellPx);
+      const gy = Math.floor(cells.y[k] / cellPx);
       for (const [dx, dy] of [[1, 0], [-1, 0], [0, 1], [0, -1]] as const) {
         const xx = gx + dx;
         const yy = gy + dy;
         if (xx < 0 || yy < 0 || xx >= gw || yy >= gh || gridIndex[yy * gw + xx] < 0) anchor[k] = 1;
       }
-    });
+    }
   }
   // ...and those towards the corners weigh more than the rest (edgeWeight, cornerZone): a few corner cells
   // against thousands inside leave the corners to the polynomial's swing, which on clean generated fields
   // read as corner "spots" of up to 9 % (an order-4 surface under a steep roll-off, or pulled by a large
   // cloud inside)
-  if (opts.edgeWeight !== 1) cells.forEach((c, k) => {
-    const nearX = c.x < opts.cornerZone * w || c.x > (1 - opts.cornerZone) * w;
-    const nearY = c.y < opts.cornerZone * h || c.y > (1 - opts.cornerZone) * h;
-    if (anchor[k] && nearX && nearY) c.weight *= opts.edgeWeight;
-  });
-  // robust fit: cells beyond clipSigma of the fit are left out (with their neighbours), until no change
-  const clipRounds = (): void => {
-    for (let iter = 0; iter < 15; iter++) {
-      coef = solveWeighted(design, cells, clipped, nTerms);
-      for (let k = 0; k < cells.length; k++) {
-        let p = 0;
-        const r = design[k];
-        for (let t = 0; t < nTerms; t++) p += coef[t] * r[t];
-        predicted[k] = p;
-        resid[k] = p > 0 ? (100 * (cells[k].value - p)) / p : 0;
-      }
-      const sigma = Math.max(robustSigma(resid), median1(cellNoise), 1e-4);
-      const hiLimit = opts.clipSigma * sigma;
-      const loLimit = (brightOnly ? 2 : 1) * opts.clipSigma * sigma;
-      const next = new Uint8Array(cells.length);
-      for (let k = 0; k < cells.length; k++) {
-        // edge cells only for what stands far out of the fit (a bright zone of a hot-spot array on the edge)
-        const loose = anchor[k] ? 3 : 1;
-        if (resid[k] > loose * hiLimit || resid[k] < -loose * loLimit) {
-          const gx = Math.floor(cells[k].x / cellPx);
-          const gy = Math.floor(cells[k].y / cellPx);
-          for (let dy = -1; dy <= 1; dy++) {
-            for (let dx = -1; dx <= 1; dx++) {
-              const xx = gx + dx;
-              const yy = gy + dy;
-              if (xx < 0 || yy < 0 || xx >= gw || yy >= gh) continue;
-              const j = gridIndex[yy * gw + xx];
-              if (j >= 0) next[j] = 1;
-            }
-          }
-        }
-      }
-      // never clip so much that the fit loses its footing
-      let kept = 0;
-      for (let k = 0; k < cells.length; k++) if (!next[k]) kept++;
-      if (kept < Math.max(3 * nTerms, 0.3 * cells.length)) break;
-      let same = true;
-      for (let k = 0; k < cells.length; k++) if (next[k] !== clipped[k]) same = false;
-      clipped = next;
-      if (same) break;
+  if (opts.edgeWeight !== 1) {
+    for (let k = 0; k < nCells; k++) {
+      const nearX = cells.x[k] < opts.cornerZone * w || cells.x[k] > (1 - opts.cornerZone) * w;
+      const nearY = cells.y[k] < opts.cornerZone * h || cells.y[k] > (1 - opts.cornerZone) * h;
+      if (anchor[k] && nearX && nearY) cells.weight[k] *= opts.edgeWeight;
     }
-  };
-  clipRounds();
-  // each bump's width: the scale with the least weighted residual over the cells kept, then the
-  // clipping once more with the widths chosen
-  if (bumpList.length) {
-    for (let k = 0; k < bumpList.length; k++) {
-      let best = Infinity;
-      let bestScale = 1;
-      for (const sc of BUMP_SCALES) {
-        if (sc > 1 && bumpList[k].sLong * sc > bumps!.maxSigma) continue;
-        bumpScale[k] = sc;
-        cells.forEach((c, j) => setBump(k, c, design[j]));
-        const cf = solveWeighted(design, cells, clipped, nTerms);
-        let ssr = 0;
-        for (let j = 0; j < cells.length; j++) {
-          if (clipped[j]) continue;
-          let p = 0;
-          for (let t = 0; t < nTerms; t++) p += cf[t] * design[j][t];
-          ssr += cells[j].weight * (cells[j].value - p) ** 2;
-        }
-        if (ssr < best) {
-          best = ssr;
-          bestScale = sc;
-        }
-      }
-      bumpScale[k] = bestScale;
-      cells.forEach((c, j) => setBump(k, c, design[j]));
-    }
-    clipRounds();
   }
-  coef = solveWeighted(design, cells, clipped, nTerms);
+  const F: Fitting = {
+    cells,
+    design,
+    nTerms,
+    clipped: new Uint8Array(nCells),
+    anchor,
+    gridIndex,
+    gw,
+    gh,
+    cellPx,
+    cellNoise: median1(cellNoise),
+    clipSigma: opts.clipSigma,
+    brightOnly,
+    coef: new Float64Array(nTerms),
+    resid: new Float64Array(nCells),
+  };
+  clipRounds(F);
+  // each bump's width, then the clipping once more with the widths chosen
+  if (bumpList.length) {
+    chooseBumpScales(T, F, bumps!.maxSigma);
+    clipRounds(F);
+  }
+  const clipped = F.clipped;
+  const bumpScale = T.bumpScale;
+  const coef = solveWeighted(design, nTerms, cells, clipped);
 
   // 3. fit error: residual scatter of all cells outside the feature mask (clipped ones included: the
   //    clipping removes what the surface cannot follow, so leaving them out would hide its error),
   //    less the cells' own noise
-  const used: number[] = [];
-  const usedNoise: number[] = [];
+  const used = new Float64Array(nCells);
   let nClipped = 0;
-  for (let k = 0; k < cells.length; k++) {
-    let p = 0;
-    for (let t = 0; t < nTerms; t++) p += coef[t] * design[k][t];
+  for (let k = 0; k < nCells; k++) {
+    const p = predictCell(design, nTerms, coef, k);
     if (clipped[k]) nClipped++;
-    used.push(p > 0 ? (100 * (cells[k].value - p)) / p : 0);
-    usedNoise.push(cellNoise[k]);
+    used[k] = p > 0 ? (100 * (cells.value[k] - p)) / p : 0;
   }
   const scatter = robustSigma(used);
-  const noiseLevel = median1(usedNoise);
+  const noiseLevel = F.cellNoise;
   const fitErrorPct = Math.sqrt(Math.max(0, scatter * scatter - noiseLevel * noiseLevel));
 
   // 4. tile offsets: centre them and move their mean into the constant term
@@ -358,33 +489,7 @@ export function fitBackground(
   }
 
   // 5. evaluate at working resolution
-  const B = new Float32Array(w * h);
-  const colVals = new Float64Array((order + 1) * w);
-  const rowVals = new Float64Array((order + 1) * h);
-  for (let x = 0; x < w; x++) {
-    legendre(order, (2 * (x + 0.5)) / w - 1, px);
-    for (let i = 0; i <= order; i++) colVals[i * w + x] = px[i];
-  }
-  for (let y = 0; y < h; y++) {
-    legendre(order, (2 * (y + 0.5)) / h - 1, py);
-    for (let j = 0; j <= order; j++) rowVals[j * h + y] = py[j];
-  }
-  const rowCoef = new Float64Array(order + 1);
-  for (let y = 0; y < h; y++) {
-    // collapse the y-dependence: B(x, y) = sum_i P_i(x) * sum_j c_ij P_j(y)
-    rowCoef.fill(0);
-    for (let t = 0; t < terms.length; t++) rowCoef[terms[t][0]] += coef[t] * rowVals[terms[t][1] * h + y];
-    const row = y * w;
-    for (let x = 0; x < w; x++) {
-      let s = 0;
-      for (let i = 0; i <= order; i++) s += rowCoef[i] * colVals[i * w + x];
-      B[row + x] = s;
-    }
-  }
-  for (let t = 0; t < nRadial; t++) {
-    const a = coef[nBase + bumpList.length + t];
-    for (let y = 0; y < h; y++) for (let x = 0; x < w; x++) B[y * w + x] += a * radialAt(x, y, t);
-  }
+  const B = evaluateSurface(T, coef);
 
   if (tileOffsetsPct && tileGrid) {
     for (let t = 0; t < nTiles; t++) {
@@ -408,9 +513,9 @@ export function fitBackground(
     B,
     order,
     cellPx,
-    cellsUsed: cells.length - nClipped,
+    cellsUsed: nCells - nClipped,
     cellsClipped: nClipped,
-    cellsMasked,
+    cellsMasked: cells.masked,
     fitErrorPct,
     cellNoisePct: noiseLevel,
     tileOffsetsPct,
@@ -418,9 +523,45 @@ export function fitBackground(
   };
 }
 
-function median1(a: number[]): number {
+/** The fitted surface (polynomial and radial terms; tile offsets and bumps left out) at working resolution. */
+function evaluateSurface(T: Terms, coef: Float64Array): Float32Array {
+  const { w, h, order, px, py, ti, tj } = T;
+  const B = new Float32Array(w * h);
+  const colVals = new Float64Array((order + 1) * w);
+  const rowVals = new Float64Array((order + 1) * h);
+  for (let x = 0; x < w; x++) {
+    legendre(order, (2 * (x + 0.5)) / w - 1, px);
+    for (let i = 0; i <= order; i++) colVals[i * w + x] = px[i];
+  }
+  for (let y = 0; y < h; y++) {
+    legendre(order, (2 * (y + 0.5)) / h - 1, py);
+    for (let j = 0; j <= order; j++) rowVals[j * h + y] = py[j];
+  }
+  const rowCoef = new Float64Array(order + 1);
+  const acc = new Float64Array(w);
+  for (let y = 0; y < h; y++) {
+    // collapse the y-dependence: B(x, y) = sum_i P_i(x) * sum_j c_ij P_j(y), summed over i in turn for
+    // the whole row
+    rowCoef.fill(0);
+    for (let t = 0; t < ti.length; t++) rowCoef[ti[t]] += coef[t] * rowVals[tj[t] * h + y];
+    acc.fill(0);
+    for (let i = 0; i <= order; i++) {
+      const a = rowCoef[i];
+      const at = i * w;
+      for (let x = 0; x < w; x++) acc[x] += a * colVals[at + x];
+    }
+    B.set(acc, y * w);
+  }
+  for (let t = 0; t < T.nRadial; t++) {
+    const a = coef[T.nBase + T.bumpList.length + t];
+    for (let y = 0; y < h; y++) for (let x = 0; x < w; x++) B[y * w + x] += a * radialAt(T, x, y, t);
+  }
+  return B;
+}
+
+function median1(a: Float64Array): number {
   if (a.length === 0) return 0;
-  const s = [...a].sort((p, q) => p - q);
+  const s = Float64Array.from(a).sort();
   return s[s.length >> 1];
 }
 
@@ -429,21 +570,21 @@ function median1(a: number[]): number {
  * the cells) solved by Cholesky; the Legendre terms on [-1, 1] keep them well conditioned. Falls back
  * to a QR solve of the whole system when they are not positive definite (a tile with no usable cell).
  */
-function solveWeighted(design: Float64Array[], cells: Cell[], clipped: Uint8Array, nTerms: number): Float64Array {
+function solveWeighted(design: Float64Array, nTerms: number, cells: Cells, clipped: Uint8Array): Float64Array {
   const ata = new Float64Array(nTerms * nTerms);
   const atb = new Float64Array(nTerms);
   let used = 0;
-  for (let k = 0; k < cells.length; k++) {
+  for (let k = 0; k < cells.n; k++) {
     if (clipped[k]) continue;
     used++;
-    const r = design[k];
-    const wk = cells[k].weight;
-    const v = cells[k].value * wk;
+    const at = k * nTerms;
+    const wk = cells.weight[k];
+    const v = cells.value[k] * wk;
     for (let i = 0; i < nTerms; i++) {
-      const ri = r[i] * wk;
+      const ri = design[at + i] * wk;
       if (ri === 0) continue;
-      atb[i] += r[i] * v;
-      for (let j = i; j < nTerms; j++) ata[i * nTerms + j] += ri * r[j];
+      atb[i] += design[at + i] * v;
+      for (let j = i; j < nTerms; j++) ata[i * nTerms + j] += ri * design[at + j];
     }
   }
   if (used >= nTerms) {
@@ -456,18 +597,18 @@ function solveWeighted(design: Float64Array[], cells: Cell[], clipped: Uint8Arra
       if (out.every(Number.isFinite)) return out;
     }
   }
-  return solveByQr(design, cells, clipped, nTerms);
+  return solveByQr(design, nTerms, cells, clipped);
 }
 
-function solveByQr(design: Float64Array[], cells: Cell[], clipped: Uint8Array, nTerms: number): Float64Array {
+function solveByQr(design: Float64Array, nTerms: number, cells: Cells, clipped: Uint8Array): Float64Array {
   const rowsUsed: number[] = [];
-  for (let k = 0; k < cells.length; k++) if (!clipped[k]) rowsUsed.push(k);
+  for (let k = 0; k < cells.n; k++) if (!clipped[k]) rowsUsed.push(k);
   const A = new Matrix(rowsUsed.length, nTerms);
   const b = new Matrix(rowsUsed.length, 1);
   rowsUsed.forEach((k, r) => {
-    const s = Math.sqrt(cells[k].weight);
-    for (let t = 0; t < nTerms; t++) A.set(r, t, design[k][t] * s);
-    b.set(r, 0, cells[k].value * s);
+    const s = Math.sqrt(cells.weight[k]);
+    for (let t = 0; t < nTerms; t++) A.set(r, t, design[k * nTerms + t] * s);
+    b.set(r, 0, cells.value[k] * s);
   });
   let x: Matrix;
   const qr = new QrDecomposition(A);

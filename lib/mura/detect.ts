@@ -271,15 +271,17 @@ function finishLevel(lv: Level): Level {
   const s = smoothLevel(m, n, w, h, 0.35 * full);
 
   // noise of m from full pixels: m_i minus the mean of its four neighbours (white noise: sqrt(1.25) sigma)
-  const diffs: number[] = [];
   const step = Math.max(1, Math.floor((w * h) / 60000));
+  const diffs = new Float64Array(Math.ceil((w * h) / step));
+  let nm = 0;
+  const fullN = 0.999 * full;
   for (let i = w + 1; i < w * h - w - 1; i += step) {
     const x = i % w;
     if (x === 0 || x === w - 1) continue;
-    if (n[i] < 0.999 * full || n[i - 1] < 0.999 * full || n[i + 1] < 0.999 * full || n[i - w] < 0.999 * full || n[i + w] < 0.999 * full) continue;
-    diffs.push(m[i] - 0.25 * (m[i - 1] + m[i + 1] + m[i - w] + m[i + w]));
+    if (n[i] < fullN || n[i - 1] < fullN || n[i + 1] < fullN || n[i - w] < fullN || n[i + w] < fullN) continue;
+    diffs[nm++] = m[i] - 0.25 * (m[i - 1] + m[i + 1] + m[i - w] + m[i + w]);
   }
-  const noiseM = diffs.length >= 30 ? robustSigma(diffs) / Math.sqrt(1.25) : 0;
+  const noiseM = nm >= 30 ? robustSigma(diffs.subarray(0, nm)) / Math.sqrt(1.25) : 0;
   // white noise through the 2-D kernel: sigma x sum(k^2) (separable: (sum k_i^2)^2 under a square root)
   let k2 = 0;
   for (let i = 0; i < KERNEL.length; i++) k2 += KERNEL[i] * KERNEL[i];
@@ -344,10 +346,10 @@ function finishLevel(lv: Level): Level {
     const hist = new Uint32Array(nTiles * bins);
     const count = new Uint32Array(nTiles);
     for (let k = 0; k < nd; k++) {
-      const b = Math.min(bins - 1, Math.floor((diffsAbs[k] / top) * bins));
-      hist[tileOf[k] * bins + b]++;
-      count[tileOf[k]]++;
+      const v = (diffsAbs[k] / top) * bins;
+      hist[tileOf[k] * bins + (v >= bins - 1 ? bins - 1 : v | 0)]++;
     }
+    for (let t = 0; t < nTiles; t++) for (let b = 0; b < bins; b++) count[t] += hist[t * bins + b];
     tileNoise = new Float32Array(nTiles);
     for (let t = 0; t < nTiles; t++) {
       let q75 = 0;
