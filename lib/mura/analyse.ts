@@ -87,7 +87,7 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
     const next = featureMask(ctx, opts);
     // masks only grow: a feature masked once stays masked (a surface freed of its mask would absorb
     // it again, and it would come and go between rounds); the first round's surface is never the final one
-    if (mask) for (let i = 0; i < N; i++) next[i] |= mask[i];
+    if (mask) orInto(next, mask);
     if (!first && (mask ? sameMask(mask, next) : countOf(next) === 0)) break;
     mask = next;
   }
@@ -167,12 +167,8 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
       ? `; ${unconfirmed} finding${unconfirmed > 1 ? 's' : ''} left out as not found against a surface of order ${opts.background.blackCheckOrder} (the panel's own drop-off, which the stiffer surface cannot follow)`
       : '');
 
-  const out = new Float32Array(N);
-  const bg = new Float32Array(N);
-  for (let i = 0; i < N; i++) {
-    out[i] = work.wt[i] > 0 ? C[i] : NaN;
-    bg[i] = work.wt[i] > 0 ? fit.B[i] : NaN;
-  }
+  const out = onPanelOnly(C, work.wt);
+  const bg = onPanelOnly(fit.B, work.wt);
   const leftOut: LeftOutFinding[] = droppedClouds.map((d, k) => ({
     ...toBlob(findingOf(ctx!, d.f, opts), k + 1, map, factor),
     reason: 'roll-off',
@@ -907,6 +903,18 @@ function dilateInto(mask: Uint8Array, ctx: Ctx, f: Found, radius: number): void 
   for (let y = 0; y < chh; y++) {
     for (let x = 0; x < cw; x++) if (d[y * cw + x] <= radius) mask[(y + y0) * w + x + x0] = 1;
   }
+}
+
+/** A copy of values with NaN where the map has no data (weight 0). */
+function onPanelOnly(values: Float32Array, wt: Float32Array): Float32Array {
+  const out = new Float32Array(values.length);
+  for (let i = 0; i < values.length; i++) out[i] = wt[i] > 0 ? values[i] : NaN;
+  return out;
+}
+
+/** into |= other, element by element. */
+function orInto(into: Uint8Array, other: Uint8Array): void {
+  for (let i = 0; i < into.length; i++) into[i] |= other[i];
 }
 
 function countOf(m: Uint8Array): number {

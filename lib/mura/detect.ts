@@ -19,7 +19,7 @@
 
 import type { Axis, Ctx, Found } from './context.js';
 import { isDuplicate, localCodeStepPct, measureRegion, register } from './context.js';
-import { robustSigma } from './raster.js';
+import { median, robustSigma } from './raster.js';
 
 interface Level {
   l: number;
@@ -1304,17 +1304,7 @@ function findBands(ctx: Ctx, lv: Level, floor: number): BandProfile[] {
   for (const axis of ['horizontal', 'vertical'] as const) {
     const along = axis === 'horizontal' ? lv.w : lv.h; // along the band
     const across = axis === 'horizontal' ? lv.h : lv.w;
-    const at = (a: number, c: number): number => (axis === 'horizontal' ? c * lv.w + a : a * lv.w + c);
-    const P = new Float64Array(across).fill(NaN);
-    const buf = new Float64Array(along);
-    for (let c = 0; c < across; c++) {
-      let k = 0;
-      for (let a = 0; a < along; a++) {
-        const i = at(a, c);
-        if (lv.n[i] >= 0.5 * full) buf[k++] = lv.m[i];
-      }
-      if (k >= 0.5 * along) P[c] = medianOfFirst(buf, k);
-    }
+    const P = medianProfile(lv, axis === 'horizontal', full);
     // light smoothing (sigma 1 px) and the noise of the profile, as on the levels
     const S = new Float64Array(across).fill(NaN);
     const r = (KERNEL.length - 1) >> 1;
@@ -1404,21 +1394,8 @@ function findBands(ctx: Ctx, lv: Level, floor: number): BandProfile[] {
           sideB = [c1 + gap + 1, Math.min(across - 1, c1 + gap + wd)];
         };
         sides();
-        const stretchMean = (a0: number, a1: number, from: number, to: number, surround = false): number | null => {
-          let sum = 0;
-          let cnt = 0;
-          for (let c = from; c <= to; c++) {
-            if (surround && (blocked[c] || others[c])) continue;
-            for (let a = a0; a < a1; a++) {
-              const i = at(a, c);
-              if (lv.n[i] > 0) {
-                sum += lv.m[i];
-                cnt++;
-              }
-            }
-          }
-          return cnt > 0 ? sum / cnt : null;
-        };
+        const stretchMean = (a0: number, a1: number, from: number, to: number, surround = false): number | null =>
+          stretchMeanOn(lv, axis === 'horizontal', a0, a1, from, to, surround ? blocked : null, surround ? others : null);
         // the strips' means over a stretch along the band: 'mean' is the mean of the two (a straight
         // flank cancels), 'near' the one nearer the band's own level (nearB: see profileBeside); either
         // one alone where the other is off the panel
@@ -1540,9 +1517,59 @@ function findBands(ctx: Ctx, lv: Level, floor: number): BandProfile[] {
   return bands;
 }
 
+/** Median of each row (horizontal) or column of the level over its pixels at least half covered by
+ *  data; NaN for those with data on less than half their length. */
+function medianProfile(lv: Level, horizontal: boolean, full: number): Float64Array {
+  const along = horizontal ? lv.w : lv.h;
+  const across = horizontal ? lv.h : lv.w;
+  const P = new Float64Array(across).fill(NaN);
+  const buf = new Float64Array(along);
+  for (let c = 0; c < across; c++) {
+    let k = 0;
+    for (let a = 0; a < along; a++) {
+      const i = horizontal ? c * lv.w + a : a * lv.w + c;
+      if (lv.n[i] >= 0.5 * full) buf[k++] = lv.m[i];
+    }
+    if (k >= 0.5 * along) P[c] = medianOfFirst(buf, k);
+  }
+  return P;
+}
+
 function medianOfFirst(a: Float64Array, k: number): number {
+  let finite = true;
+  for (let i = 0; i < k; i++) if (!Number.isFinite(a[i])) finite = false;
+  // the same middle value(s) by selection, without sorting; a full sort keeps NaN's place (last)
+  if (finite && k > 0) return median(a.subarray(0, k));
   const s = a.slice(0, k).sort();
   return k % 2 ? s[k >> 1] : 0.5 * (s[k / 2 - 1] + s[k / 2]);
+}
+
+/** Mean of the level's pixels with data over positions a0..a1-1 along a band and from..to across it,
+ *  leaving out the columns (rows) marked in skipA or skipB; null without data. */
+function stretchMeanOn(
+  lv: Level,
+  horizontal: boolean,
+  a0: number,
+  a1: number,
+  from: number,
+  to: number,
+  skipA: Uint8Array | null,
+  skipB: Uint8Array | null,
+): number | null {
+  const { w, n, m } = lv;
+  let sum = 0;
+  let cnt = 0;
+  for (let c = from; c <= to; c++) {
+    if (skipA !== null && skipB !== null && (skipA[c] || skipB[c])) continue;
+    for (let a = a0; a < a1; a++) {
+      const i = horizontal ? c * w + a : a * w + c;
+      if (n[i] > 0) {
+        sum += m[i];
+        cnt++;
+      }
+    }
+  }
+  return cnt > 0 ? sum / cnt : null;
 }
 
 /** The band between profile positions c0..c1 (level px) across the panel, measured at working resolution. */
