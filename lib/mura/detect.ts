@@ -162,6 +162,7 @@ export function buildLevels(ctx: Ctx): Level[] {
 // The smoothing below is written out for the 7 taps of SMOOTH_SIGMA = 1 (these loops are most of a level's
 // cost); each sum is still taken tap by tap from the first, in the order a loop over KERNEL would take it.
 if (KERNEL.length !== 7) throw new Error('detect.ts: the level smoothing is written for a kernel of 7 taps');
+// the taps from the outermost (K0, also KERNEL[6]) to the centre (K3); the kernel is symmetric
 const K0 = KERNEL[0];
 const K1 = KERNEL[1];
 const K2 = KERNEL[2];
