@@ -633,6 +633,10 @@ class Emitter {
   private readonly h: number;
   private clipped = 0;
   private dark = 0;
+  /** luminance weights (opts.weights), kept as fields: put() runs once per output pixel */
+  private readonly wr: number;
+  private readonly wg: number;
+  private readonly wb: number;
   constructor(
     private readonly f: Frame,
     private readonly opts: FloatDecodeOptions,
@@ -644,6 +648,7 @@ class Emitter {
     this.lum = new Float32Array(this.w * this.h);
     this.clipMask = opts.clipLinear !== null ? new Uint8Array(this.w * this.h) : null;
     this.acc = new Float64Array(this.w * 3);
+    [this.wr, this.wg, this.wb] = opts.weights;
   }
 
   emitMcuRow(my: number): void {
@@ -804,7 +809,7 @@ class Emitter {
 
   /** Output pixel q: the means of its block's linear sums, its luminance and its clip-mask bit. */
   private put(q: number, a0: number, a1: number, a2: number, inv: number): void {
-    const [wr, wg, wb] = this.opts.weights;
+    const { wr, wg, wb } = this;
     const r = Math.fround(a0 * inv);
     const g = Math.fround(a1 * inv);
     const b = Math.fround(a2 * inv);
