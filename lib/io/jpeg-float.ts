@@ -852,35 +852,66 @@ function idct(coef: Float64Array, tmp: Float64Array, rowMask: number, colMax: nu
     }
     return;
   }
-  // rows: tmp[v][x] = Σ_u BASIS[x][u] · coef[v][u]
+  // rows: tmp[v][x] = Σ_u BASIS[x][u] · coef[v][u], summed over the non-zero coefficients of the row in
+  // order of u (a zero term adds nothing, so each sum is the one a full loop over u would give)
+  let vMax = 0;
   for (let v = 0; v < 8; v++) {
     const r = v * 8;
-    if ((rowMask & (1 << v)) === 0) {
-      for (let x = 0; x < 8; x++) tmp[r + x] = 0;
-      continue;
-    }
-    for (let x = 0; x < 8; x++) {
-      const b = x * 8;
-      let sum = 0;
-      for (let u = 0; u <= colMax; u++) sum += BASIS[b + u]! * coef[r + u]!;
-      tmp[r + x] = sum;
+    tmp[r] = 0;
+    tmp[r + 1] = 0;
+    tmp[r + 2] = 0;
+    tmp[r + 3] = 0;
+    tmp[r + 4] = 0;
+    tmp[r + 5] = 0;
+    tmp[r + 6] = 0;
+    tmp[r + 7] = 0;
+    if ((rowMask & (1 << v)) === 0) continue;
+    vMax = v;
+    for (let u = 0; u <= colMax; u++) {
+      const c = coef[r + u]!;
+      if (c === 0) continue;
+      tmp[r] += BASIS[u]! * c;
+      tmp[r + 1] += BASIS[8 + u]! * c;
+      tmp[r + 2] += BASIS[16 + u]! * c;
+      tmp[r + 3] += BASIS[24 + u]! * c;
+      tmp[r + 4] += BASIS[32 + u]! * c;
+      tmp[r + 5] += BASIS[40 + u]! * c;
+      tmp[r + 6] += BASIS[48 + u]! * c;
+      tmp[r + 7] += BASIS[56 + u]! * c;
     }
   }
-  // columns: out[y][x] = Σ_v BASIS[y][v] · tmp[v][x]
-  let vMax = 0;
-  for (let v = 7; v > 0; v--) {
-    if (rowMask & (1 << v)) {
-      vMax = v;
-      break;
-    }
-  }
+  // columns: out[y][x] = Σ_v BASIS[y][v] · tmp[v][x], over the rows with a non-zero coefficient, in order of v
   for (let y = 0, p = at; y < 8; y++, p += stride) {
     const b = y * 8;
-    for (let x = 0; x < 8; x++) {
-      let sum = 0;
-      for (let v = 0; v <= vMax; v++) sum += BASIS[b + v]! * tmp[v * 8 + x]!;
-      dst[p + x] = sum + 128;
+    let s0 = 0;
+    let s1 = 0;
+    let s2 = 0;
+    let s3 = 0;
+    let s4 = 0;
+    let s5 = 0;
+    let s6 = 0;
+    let s7 = 0;
+    for (let v = 0; v <= vMax; v++) {
+      if ((rowMask & (1 << v)) === 0) continue;
+      const k = BASIS[b + v]!;
+      const r = v * 8;
+      s0 += k * tmp[r]!;
+      s1 += k * tmp[r + 1]!;
+      s2 += k * tmp[r + 2]!;
+      s3 += k * tmp[r + 3]!;
+      s4 += k * tmp[r + 4]!;
+      s5 += k * tmp[r + 5]!;
+      s6 += k * tmp[r + 6]!;
+      s7 += k * tmp[r + 7]!;
     }
+    dst[p] = s0 + 128;
+    dst[p + 1] = s1 + 128;
+    dst[p + 2] = s2 + 128;
+    dst[p + 3] = s3 + 128;
+    dst[p + 4] = s4 + 128;
+    dst[p + 5] = s5 + 128;
+    dst[p + 6] = s6 + 128;
+    dst[p + 7] = s7 + 128;
   }
 }
 
