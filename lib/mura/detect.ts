@@ -168,15 +168,19 @@ const K1 = KERNEL[1];
 const K2 = KERNEL[2];
 const K3 = KERNEL[3];
 
-/** Scratch rasters reused from level to level and call to call (each worker thread has its own). */
-let scratchA = new Float32Array(0);
-let scratchB = new Float32Array(0);
-function scratch(size: number): [Float32Array, Float32Array] {
-  if (scratchA.length < size) {
-    scratchA = new Float32Array(size);
-    scratchB = new Float32Array(size);
+/** Scratch rasters reused from level to level and call to call (each worker thread has its own): the
+ *  smoothing's two row passes (a, b: one value per pixel) and the noise's differences with their tiles
+ *  (d, t: two per pixel). */
+const scratch = { pixels: 0, a: new Float32Array(0), b: new Float32Array(0), d: new Float32Array(0), t: new Int32Array(0) };
+function scratchFor(pixels: number): typeof scratch {
+  if (scratch.pixels < pixels) {
+    scratch.pixels = pixels;
+    scratch.a = new Float32Array(pixels);
+    scratch.b = new Float32Array(pixels);
+    scratch.d = new Float32Array(2 * pixels);
+    scratch.t = new Int32Array(2 * pixels);
   }
-  return [scratchA.subarray(0, size), scratchB.subarray(0, size)];
+  return scratch;
 }
 
 /**
@@ -185,7 +189,7 @@ function scratch(size: number): [Float32Array, Float32Array] {
  * where n is).
  */
 function smoothLevel(m: Float32Array, n: Float32Array, w: number, h: number, minDen: number): Float32Array {
-  const [tmpA, tmpB] = scratch(w * h);
+  const { a: tmpA, b: tmpB } = scratchFor(w * h);
   const r = 3;
   for (let y = 0; y < h; y++) {
     const row = y * w;
@@ -256,16 +260,6 @@ function smoothLevel(m: Float32Array, n: Float32Array, w: number, h: number, min
   return s;
 }
 
-let scratchD = new Float32Array(0);
-let scratchT = new Int32Array(0);
-function differenceScratch(size: number): [Float32Array, Int32Array] {
-  if (scratchD.length < size) {
-    scratchD = new Float32Array(size);
-    scratchT = new Int32Array(size);
-  }
-  return [scratchD, scratchT];
-}
-
 function finishLevel(lv: Level): Level {
   const { w, h, m, n, f } = lv;
   const full = f * f;
@@ -297,7 +291,7 @@ function finishLevel(lv: Level): Level {
   const tilesX = Math.ceil(w / TILE);
   const tilesY = Math.ceil(h / TILE);
   const useTiles = tilesX >= 3 && tilesY >= 3;
-  const [absd, tileOf] = differenceScratch(2 * w * h);
+  const { d: absd, t: tileOf } = scratchFor(w * h);
   let nd = 0;
   for (let y = 0; y < h; y++) {
     const tileRow = Math.floor(y / TILE) * tilesX;
