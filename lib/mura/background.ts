@@ -214,7 +214,7 @@ function radialAt(T: Terms, x: number, y: number, t: number): number {
   return Math.hypot(x - T.radialX, y - T.radialY) ** RADIAL_POWERS[t] * T.radialScale ** RADIAL_POWERS[t];
 }
 
-/** Bump k's column for cell k of the design: its Gaussian at the cell times the level there. */
+/** Bump k's column in cell c's row of the design: its Gaussian at the cell times the level there. */
 function setBump(T: Terms, cells: Cells, k: number, c: number, design: Float64Array): void {
   let level = 0;
   if (T.level !== null) {
