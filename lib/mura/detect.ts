@@ -108,9 +108,10 @@ export function buildLevels(ctx: Ctx): Level[] {
   let h = ctx.h;
   let f = 1;
   const maxFeaturePx = ctx.opts.maxFeatureMm / ctx.mmPerPx;
+  const scratch = scratchFor(w * h);
   for (let l = 0; ; l++) {
     for (let i = 0; i < m.length; i++) if (!(n[i] > 0)) m[i] = 0;
-    levels.push(finishLevel({ l, w, h, f, m, n, s: m, noiseS: 0, noiseM: 0, tileNoise: null, tilesX: 0, stamp: new Int32Array(w * h), gen: 0, slot: null }));
+    levels.push(finishLevel({ l, w, h, f, m, n, s: m, noiseS: 0, noiseM: 0, tileNoise: null, tilesX: 0, stamp: new Int32Array(w * h), gen: 0, slot: null }, scratch));
     // a feature maxFeatureMm across spans 3 px two levels up: no need to go coarser
     if (Math.min(w, h) < 16 || f > maxFeaturePx / 2) break;
     const w2 = Math.ceil(w / 2);
@@ -168,19 +169,18 @@ const K1 = KERNEL[1];
 const K2 = KERNEL[2];
 const K3 = KERNEL[3];
 
-/** Scratch rasters reused from level to level and call to call (each worker thread has its own): the
+/** Scratch rasters for one pyramid, sized by its finest level and reused by the coarser ones (not kept
+ *  between pyramids: held for good they would raise a worker's resident memory at its peaks): the
  *  smoothing's two row passes (a, b: one value per pixel) and the noise's differences with their tiles
  *  (d, t: two per pixel). */
-const scratch = { pixels: 0, a: new Float32Array(0), b: new Float32Array(0), d: new Float32Array(0), t: new Int32Array(0) };
-function scratchFor(pixels: number): typeof scratch {
-  if (scratch.pixels < pixels) {
-    scratch.pixels = pixels;
-    scratch.a = new Float32Array(pixels);
-    scratch.b = new Float32Array(pixels);
-    scratch.d = new Float32Array(2 * pixels);
-    scratch.t = new Int32Array(2 * pixels);
-  }
-  return scratch;
+interface Scratch {
+  a: Float32Array;
+  b: Float32Array;
+  d: Float32Array;
+  t: Int32Array;
+}
+function scratchFor(pixels: number): Scratch {
+  return { a: new Float32Array(pixels), b: new Float32Array(pixels), d: new Float32Array(2 * pixels), t: new Int32Array(2 * pixels) };
 }
 
 /**
@@ -188,8 +188,8 @@ function scratchFor(pixels: number): typeof scratch {
  * ratio where the smoothed weight reaches minDen (NaN elsewhere). Weights of zero add nothing (m is 0
  * where n is).
  */
-function smoothLevel(m: Float32Array, n: Float32Array, w: number, h: number, minDen: number): Float32Array {
-  const { a: tmpA, b: tmpB } = scratchFor(w * h);
+function smoothLevel(m: Float32Array, n: Float32Array, w: number, h: number, minDen: number, scratch: Scratch): Float32Array {
+  const { a: tmpA, b: tmpB } = scratch;
   const r = 3;
   for (let y = 0; y < h; y++) {
     const row = y * w;
@@ -260,10 +260,10 @@ function smoothLevel(m: Float32Array, n: Float32Array, w: number, h: number, min
   return s;
 }
 
-function finishLevel(lv: Level): Level {
+function finishLevel(lv: Level, scratch: Scratch): Level {
   const { w, h, m, n, f } = lv;
   const full = f * f;
-  const s = smoothLevel(m, n, w, h, 0.35 * full);
+  const s = smoothLevel(m, n, w, h, 0.35 * full, scratch);
 
   // noise of m from full pixels: m_i minus the mean of its four neighbours (white noise: sqrt(1.25) sigma)
   const step = Math.max(1, Math.floor((w * h) / 60000));
@@ -291,7 +291,7 @@ function finishLevel(lv: Level): Level {
   const tilesX = Math.ceil(w / TILE);
   const tilesY = Math.ceil(h / TILE);
   const useTiles = tilesX >= 3 && tilesY >= 3;
-  const { d: absd, t: tileOf } = scratchFor(w * h);
+  const { d: absd, t: tileOf } = scratch;
   let nd = 0;
   for (let y = 0; y < h; y++) {
     const tileRow = Math.floor(y / TILE) * tilesX;
