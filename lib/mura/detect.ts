@@ -108,10 +108,9 @@ export function buildLevels(ctx: Ctx): Level[] {
   let h = ctx.h;
   let f = 1;
   const maxFeaturePx = ctx.opts.maxFeatureMm / ctx.mmPerPx;
-  const scratch = scratchFor(w * h);
   for (let l = 0; ; l++) {
     for (let i = 0; i < m.length; i++) if (!(n[i] > 0)) m[i] = 0;
-    levels.push(finishLevel({ l, w, h, f, m, n, s: m, noiseS: 0, noiseM: 0, tileNoise: null, tilesX: 0, stamp: new Int32Array(w * h), gen: 0, slot: null }, scratch));
+    levels.push(finishLevel({ l, w, h, f, m, n, s: m, noiseS: 0, noiseM: 0, tileNoise: null, tilesX: 0, stamp: new Int32Array(w * h), gen: 0, slot: null }));
     // a feature maxFeatureMm across spans 3 px two levels up: no need to go coarser
     if (Math.min(w, h) < 16 || f > maxFeaturePx / 2) break;
     const w2 = Math.ceil(w / 2);
@@ -169,27 +168,14 @@ const K1 = KERNEL[1];
 const K2 = KERNEL[2];
 const K3 = KERNEL[3];
 
-/** Scratch rasters for one pyramid, sized by its finest level and reused by the coarser ones (not kept
- *  between pyramids: held for good they would raise a worker's resident memory at its peaks): the
- *  smoothing's two row passes (a, b: one value per pixel) and the noise's differences with their tiles
- *  (d, t: two per pixel). */
-interface Scratch {
-  a: Float32Array;
-  b: Float32Array;
-  d: Float32Array;
-  t: Int32Array;
-}
-function scratchFor(pixels: number): Scratch {
-  return { a: new Float32Array(pixels), b: new Float32Array(pixels), d: new Float32Array(2 * pixels), t: new Int32Array(2 * pixels) };
-}
-
 /**
  * Normalised convolution of a level: m*n and n smoothed by KERNEL along rows and then columns, their
  * ratio where the smoothed weight reaches minDen (NaN elsewhere). Weights of zero add nothing (m is 0
  * where n is).
  */
-function smoothLevel(m: Float32Array, n: Float32Array, w: number, h: number, minDen: number, scratch: Scratch): Float32Array {
-  const { a: tmpA, b: tmpB } = scratch;
+function smoothLevel(m: Float32Array, n: Float32Array, w: number, h: number, minDen: number): Float32Array {
+  const tmpA = new Float32Array(w * h);
+  const tmpB = new Float32Array(w * h);
   const r = 3;
   for (let y = 0; y < h; y++) {
     const row = y * w;
@@ -260,10 +246,10 @@ function smoothLevel(m: Float32Array, n: Float32Array, w: number, h: number, min
   return s;
 }
 
-function finishLevel(lv: Level, scratch: Scratch): Level {
+function finishLevel(lv: Level): Level {
   const { w, h, m, n, f } = lv;
   const full = f * f;
-  const s = smoothLevel(m, n, w, h, 0.35 * full, scratch);
+  const s = smoothLevel(m, n, w, h, 0.35 * full);
 
   // noise of m from full pixels: m_i minus the mean of its four neighbours (white noise: sqrt(1.25) sigma)
   const step = Math.max(1, Math.floor((w * h) / 60000));
@@ -291,7 +277,8 @@ function finishLevel(lv: Level, scratch: Scratch): Level {
   const tilesX = Math.ceil(w / TILE);
   const tilesY = Math.ceil(h / TILE);
   const useTiles = tilesX >= 3 && tilesY >= 3;
-  const { d: absd, t: tileOf } = scratch;
+  const absd = new Float32Array(2 * w * h);
+  const tileOf = new Int32Array(useTiles ? 2 * w * h : 0);
   let nd = 0;
   for (let y = 0; y < h; y++) {
     const tileRow = Math.floor(y / TILE) * tilesX;
