@@ -676,6 +676,11 @@ function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number, spotPx:
   // narrower than a cloud: the equivalent diameter of a region of n level px under spotPx
   const spotSized = (n: number): boolean => 2 * Math.sqrt(n / Math.PI) < spotPx;
   const isSpot = spotSized(fl.region.length);
+  // the half-peak region flooded again against a pedestal level, when it is still of a spot's size
+  const spotOn = (level: number): ReturnType<typeof flood> => {
+    const again = flood(lv, peakIdx, sign, sign * (level + 0.5 * (peak - level)));
+    return again && spotSized(again.region.length) ? again : null;
+  };
   if (base !== 0) {
     // measured above a saddle (see candidatesOn): spots only, against the surface of their ring when it
     // fits, else against the saddle
@@ -683,8 +688,8 @@ function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number, spotPx:
     const ring = ringFit ? ringSurface(lv, fl.region, fl.gen, 2.5, 4) : null;
     pedestal = base;
     if (ring && ring.rms < 0.25 * Math.abs(peak - ring.level) && sign * (peak - ring.level) >= thr) {
-      const again = flood(lv, peakIdx, sign, sign * (ring.level + 0.5 * (peak - ring.level)));
-      if (again && spotSized(again.region.length)) {
+      const again = spotOn(ring.level);
+      if (again) {
         pedestal = ring.level;
         fl = again;
       }
@@ -702,8 +707,8 @@ function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number, spotPx:
     // sign only while the half level stays on the spot's side of the background (below that the flood
     // would run out over the background beyond the plateau)
     if (Math.abs(p) > 3 * noise && ring.rms < 0.25 * Math.abs(peak - p) && (sign * p > 0 || -sign * p < sign * peak)) {
-      const again = flood(lv, peakIdx, sign, sign * (p + 0.5 * (peak - p)));
-      if (again && spotSized(again.region.length)) {
+      const again = spotOn(p);
+      if (again) {
         pedestal = p;
         fl = again;
       }
@@ -725,9 +730,9 @@ function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number, spotPx:
     // generated photos).
     const far = surround(lv, fl.region, fl.gen, 3, 4);
     if (far !== null && -sign * far >= 0.6 * -sign * near) {
-      const again = flood(lv, peakIdx, sign, sign * (near + 0.5 * (peak - near)));
       // and still a spot measured so (a dip that spreads out to a cloud's size is no spot on a plateau)
-      if (again && spotSized(again.region.length)) {
+      const again = spotOn(near);
+      if (again) {
         pedestal = near;
         fl = again;
       }
