@@ -16,6 +16,7 @@
 // excludes them, so the steps stay visible in the contrast map.
 
 import { CholeskyDecomposition, Matrix, QrDecomposition, solve } from 'ml-matrix';
+import { EvenfieldError } from '../errors.js';
 import type { BackgroundOptions } from './options.js';
 import { robustSigma } from './raster.js';
 
@@ -378,6 +379,10 @@ export function fitBackground(
   const nBase = terms.length + nTileTerms;
   const nRadial = radial ? RADIAL_POWERS.length : 0;
   const nTerms = nBase + bumpList.length + nRadial;
+  // a least-squares fit needs at least as many observations as unknowns
+  if (nCells < nTerms) {
+    throw new EvenfieldError('internal', `only ${nCells} cells of the panel map hold data, too few for the mura background fit (${nTerms} terms)`);
+  }
   const T: Terms = {
     w,
     h,

@@ -3,6 +3,7 @@
 // lower bound of the share left out, as every feature is masked at least over its half-peak region. That
 // a surface carried under a large masked share is less certain there is common practice of robust fitting.
 import { describe, expect, it } from 'vitest';
+import { EvenfieldError } from '../../lib/errors.js';
 import { analyseMura } from '../../lib/mura/index.js';
 import { synthMap } from '../../scripts/mura-synth.js';
 import { gaussTruth, THREE_CLOUDS, threeCloudMap } from './helpers.js';
@@ -51,5 +52,26 @@ describe('share of the panel left out of the background fit', () => {
     // the threshold is settable, and 0 turns the caution off
     expect(analyseMura(map, { pattern: 'gray', coverageCautionPct: 0 }).cautions).toEqual([]);
     expect(analyseMura(map, { pattern: 'gray', coverageCautionPct: 99 }).cautions).toEqual([]);
+  });
+});
+
+describe('a panel map with too little data for the background fit', () => {
+  // A least-squares fit needs at least as many observations as unknowns (common practice of linear
+  // least squares): a map whose pixels are all marked invalid, or all NaN, is refused with a one-line
+  // error of our own instead of the linear-algebra library's.
+  const w = 200;
+  const h = 120;
+  const plane = (v: number): Float32Array => new Float32Array(w * h).fill(v);
+  const base = { width: w, height: h, pxPerMm: 0.5, widthMm: 400, heightMm: 240, mmKnown: true, X: plane(0.5), Z: plane(0.5) };
+
+  it('refuses a map with no valid pixel, naming the problem', () => {
+    const run = (): unknown => analyseMura({ ...base, Y: plane(0.5), valid: new Uint8Array(w * h) }, { pattern: 'gray' });
+    expect(run).toThrow(EvenfieldError);
+    expect(run).toThrow(/cells of the panel map hold data/);
+  });
+
+  it('refuses a map whose luminance is all NaN', () => {
+    const run = (): unknown => analyseMura({ ...base, Y: plane(NaN), valid: new Uint8Array(w * h).fill(1) }, { pattern: 'gray' });
+    expect(run).toThrow(/0 cells of the panel map hold data/);
   });
 });
