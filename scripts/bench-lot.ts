@@ -43,18 +43,55 @@ export interface CommandRun {
   panels: number;
   loadBefore: number[];
   loadAfter: number[];
+  /** when each panel was finished, ms from the spawn (from the command's progress lines; empty with `quiet`) */
+  panelDoneMs: number[];
 }
 
-/** Run `evenfield inspect` in a child process with the usage hook; wall time from spawn to exit; memory and CPU of the launcher and its child added. */
-export async function runInspect(root: string, hook: string, lotDir: string, outDir: string, extra: string[], env: NodeJS.ProcessEnv = process.env): Promise<CommandRun> {
-  const args = ['--import', pathToFileURL(hook).href, join(root, 'bin', 'evenfield.js'), 'inspect', lotDir, '--out', outDir, '--force', '--quiet', '--date', '2026-01-01T00:00:00Z', ...extra];
+/**
+ * Run `evenfield inspect` in a child process with the usage hook; wall time from spawn to exit; memory and
+ * CPU of the launcher and its child added. Unless `quiet`, the command prints a line per finished panel on
+ * its standard error (not a terminal: plain lines), and the time each arrives is kept.
+ */
+export async function runInspect(
+  root: string,
+  hook: string,
+  lotDir: string,
+  outDir: string,
+  extra: string[],
+  env: NodeJS.ProcessEnv = process.env,
+  quiet = true,
+): Promise<CommandRun> {
+  const args = [
+    '--import',
+    pathToFileURL(hook).href,
+    join(root, 'bin', 'evenfield.js'),
+    'inspect',
+    lotDir,
+    '--out',
+    outDir,
+    '--force',
+    ...(quiet ? ['--quiet'] : []),
+    '--date',
+    '2026-01-01T00:00:00Z',
+    ...extra,
+  ];
+  const panelDoneMs: number[] = [];
   const loadBefore = loadavg();
   const t0 = performance.now();
   const { status, stderr } = await new Promise<{ status: number | null; stderr: string }>((resolveRun, reject) => {
     const child = spawn(process.execPath, args, { cwd: root, stdio: ['ignore', 'ignore', 'pipe'], env });
     let err = '';
+    let seen = 0; // characters of err already looked through for whole lines
     child.stderr.setEncoding('utf8');
-    child.stderr.on('data', (s: string) => (err += s));
+    child.stderr.on('data', (s: string) => {
+      const now = performance.now() - t0;
+      err += s;
+      const end = err.lastIndexOf('\n');
+      if (end < seen) return;
+      // progress lines as lib/batch/progress.ts writes them off a terminal: "[k/N] PANEL: verdict"
+      for (const line of err.slice(seen, end).split('\n')) if (/^\[\d+\/\d+\] /.test(line)) panelDoneMs.push(now);
+      seen = end + 1;
+    });
     child.on('error', reject);
     child.on('close', (code) => resolveRun({ status: code, stderr: err }));
   });
@@ -80,7 +117,7 @@ export async function runInspect(root: string, hook: string, lotDir: string, out
     /* no results: reported as 0 photos */
   }
   if (status !== 0 && status !== 1) {
-    const msg = stderr.split('\n').filter((l) => l && !l.startsWith('evenfield-bench-usage')).slice(0, 5).join('\n');
+    const msg = stderr.split('\n').filter((l) => l && !l.startsWith('evenfield-bench-usage') && !/^\[\d+\/\d+\] /.test(l)).slice(0, 5).join('\n');
     process.stderr.write(`warning: inspect exited with status ${status}${msg ? `:\n${msg}` : ''}\n`);
   }
   return {
@@ -94,5 +131,6 @@ export async function runInspect(root: string, hook: string, lotDir: string, out
     panels,
     loadBefore,
     loadAfter,
+    panelDoneMs,
   };
 }

@@ -13,7 +13,9 @@
 //      profile, panel, rectification, grid, mura (in this process, after one warm-up per size); beside it
 //      the decode alone and the measurement without the mura analysis, to show where the time goes;
 //  (c) writing the panel's PDF (report rendering and the atomic write), per panel of three photos;
-//  (d) lot throughput of the command (`inspect`, PDFs included) with --jobs 1 and --jobs 2;
+//  (d) lot throughput of the command (`inspect`, PDFs included) with --jobs 1 and --jobs 2: over the whole
+//      run, and after start-up (from the time the command's progress lines arrive: the panels after each
+//      worker's first, whose photos run on code V8 has not yet optimised, over the time they took);
 //  (e) peak resident memory of the command (all threads; the launcher's and its child's peaks added) for
 //      lots of 20 and 200 photos.
 // (a) and (b) alternate photo by photo so that both see the same machine load. Wall time and CPU time
@@ -52,6 +54,17 @@ interface Args {
   cache: string;
 }
 
+const USAGE = `npm run bench -- [options]   (speed and memory figures; see README "Speed")
+  --runs N              runs of each photo for (a) and (b), medians reported (default 3)
+  --sizes 12MP,24MP     photo sizes (default both)
+  --lot-panels N        panels of three photos in the throughput lot (d) (default 20)
+  --memory 20,200       photo counts of the memory lots (e) (default 20,200)
+  --skip-lot            leave out (d)
+  --skip-memory         leave out (e)
+  --default-allocator   run the lots in one process with the C library's allocator defaults
+  --json FILE           where the figures are written (default .cache/bench/results.json)
+`;
+
 function parseArgs(argv: string[]): Args {
   const a: Args = {
     runs: 3,
@@ -81,7 +94,10 @@ function parseArgs(argv: string[]): Args {
     else if (k === '--skip-memory') a.skipMemory = true;
     else if (k === '--default-allocator') a.defaultAllocator = true;
     else if (k === '--json') a.json = resolve(v());
-    else throw new Error(`unknown option ${k}`);
+    else if (k === '--help' || k === '-h') {
+      process.stdout.write(USAGE);
+      process.exit(0);
+    } else throw new Error(`unknown option ${k}`);
   }
   return a;
 }
@@ -251,12 +267,33 @@ function inspectArgs(size: BenchSize, set: BenchSet, jobs: number, pdf: boolean)
   return ['--jobs', String(jobs), '--falloff', size.profile, '--panel-size', `${set.panelSizeMm.width}x${set.panelSizeMm.height}`, ...(pdf ? [] : ['--no-pdf'])];
 }
 
-function describeRun(label: string, r: CommandRun): string {
+function describeRun(label: string, r: CommandRun, steady: SteadyRate | null = null): string {
   const rate = (r.photos / r.wallMs) * 60000;
   return (
     `  ${label}: ${r.photos} photos (${r.photoErrors} unmeasurable) in ${(r.wallMs / 1000).toFixed(1)} s = ${rate.toFixed(1)} photos/min; ` +
-    `CPU ${r.cpuMs === null ? '?' : (r.cpuMs / 1000).toFixed(1)} s; peak RSS ${r.maxRssMb === null ? '?' : r.maxRssMb.toFixed(0)} MB; load ${r.loadBefore[0]!.toFixed(2)} → ${r.loadAfter[0]!.toFixed(2)}`
+    `CPU ${r.cpuMs === null ? '?' : (r.cpuMs / 1000).toFixed(1)} s; peak RSS ${r.maxRssMb === null ? '?' : r.maxRssMb.toFixed(0)} MB; load ${r.loadBefore[0]!.toFixed(2)} → ${r.loadAfter[0]!.toFixed(2)}` +
+    (steady
+      ? `\n    after start-up: panels ${steady.fromPanel}–${steady.toPanel} in ${(steady.ms / 1000).toFixed(1)} s = ${steady.photosPerMin.toFixed(1)} photos/min (first ${steady.fromPanel - 1} done at ${(steady.startUpMs / 1000).toFixed(1)} s)`
+      : '')
   );
+}
+
+/** Throughput after start-up: the panels finished after each worker's first one, over the time they took. */
+interface SteadyRate {
+  fromPanel: number;
+  toPanel: number;
+  ms: number;
+  startUpMs: number;
+  photosPerMin: number;
+}
+
+function steadyRate(r: CommandRun, jobs: number): SteadyRate | null {
+  const t = r.panelDoneMs;
+  // every panel must have reported, and some must be left after the first one of each worker
+  if (r.panels === 0 || t.length !== r.panels || t.length < jobs + 2) return null;
+  const photosPerPanel = r.photos / r.panels;
+  const ms = t[t.length - 1]! - t[jobs - 1]!;
+  return { fromPanel: jobs + 1, toPanel: t.length, ms, startUpMs: t[jobs - 1]!, photosPerMin: ((t.length - jobs) * photosPerPanel * 60000) / ms };
 }
 
 function gitCommit(): string | null {
@@ -306,14 +343,16 @@ async function main(): Promise<void> {
   const lotEnv: NodeJS.ProcessEnv = args.defaultAllocator ? { ...process.env, EVENFIELD_ALLOCATOR: 'default' } : process.env;
   if (args.defaultAllocator) log("lots run in one process with the C library's allocator defaults (--default-allocator)");
   const lots: Record<string, CommandRun> = {};
+  const steady: Record<string, SteadyRate | null> = {};
   if (!args.skipLot) {
     const n = args.lotPanels * lotSize.photos.length;
     log(`\n(d) lot throughput: inspect of ${args.lotPanels} panels × ${lotSize.photos.length} photos (${lotSize.label}), PDFs included`);
     const dir = makeLot(join(args.cache, 'lots', `${lotSize.label}-${n}`), lotSize.photos, n);
     for (const jobs of [1, 2]) {
-      const r = await runInspect(root, hook, dir, join(args.cache, 'out', `lot-jobs${jobs}`), inspectArgs(lotSize, set, jobs, true), lotEnv);
+      const r = await runInspect(root, hook, dir, join(args.cache, 'out', `lot-jobs${jobs}`), inspectArgs(lotSize, set, jobs, true), lotEnv, false);
       lots[`jobs${jobs}`] = r;
-      log(describeRun(`--jobs ${jobs}`, r));
+      steady[`jobs${jobs}`] = steadyRate(r, jobs);
+      log(describeRun(`--jobs ${jobs}`, r, steady[`jobs${jobs}`]));
     }
   }
   const memory: Record<string, CommandRun> = {};
@@ -340,7 +379,11 @@ async function main(): Promise<void> {
   const j1 = lots.jobs1;
   const j2 = lots.jobs2;
   const speedup = j1 && j2 ? j1.wallMs / j2.wallMs : null;
-  if (speedup !== null) log(`  (d) --jobs 2 throughput / --jobs 1: ${speedup.toFixed(2)}×`);
+  const s1 = steady.jobs1;
+  const s2 = steady.jobs2;
+  const steadySpeedup = s1 && s2 ? s2.photosPerMin / s1.photosPerMin : null;
+  if (speedup !== null)
+    log(`  (d) --jobs 2 throughput / --jobs 1: ${speedup.toFixed(2)}× over the whole lot${steadySpeedup !== null ? `, ${steadySpeedup.toFixed(2)}× after start-up` : ''}`);
   const memKeys = Object.keys(memory);
   let memoryGrowth: number | null = null;
   if (memKeys.length >= 2) {
@@ -352,7 +395,7 @@ async function main(): Promise<void> {
   const totalS = (performance.now() - started) / 1000;
   log(`  bench time ${totalS.toFixed(0)} s, load at end ${loadavg().map((x) => x.toFixed(2)).join(' ')}`);
 
-  const doc = { env, args, photos: photoFigures, lots, lotSpeedup: speedup, memory, memoryGrowth, benchSeconds: totalS, loadAtEnd: loadavg() };
+  const doc = { env, args, photos: photoFigures, lots, lotSpeedup: speedup, lotSteady: steady, lotSpeedupAfterStartUp: steadySpeedup, memory, memoryGrowth, benchSeconds: totalS, loadAtEnd: loadavg() };
   mkdirSync(dirname(args.json), { recursive: true });
   writeFileSync(args.json, JSON.stringify(doc, null, 2) + '\n');
   log(`figures written to ${args.json}`);
