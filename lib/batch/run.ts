@@ -3,11 +3,11 @@
 // results.json, results.csv and the lot summary PDF. Every file is written atomically.
 
 import { createHash } from 'node:crypto';
-import { existsSync, mkdirSync, readFileSync, readdirSync, rmSync, statSync } from 'node:fs';
+import { existsSync, readFileSync, readdirSync, rmSync, statSync } from 'node:fs';
 import { dirname, join, resolve } from 'node:path';
 import { fileURLToPath, pathToFileURL } from 'node:url';
 import { availableParallelism } from 'node:os';
-import { setDecoderThreads, writeFileAtomic } from '../io/index.js';
+import { makeFolder, setDecoderThreads, writeFileAtomic } from '../io/index.js';
 import { EvenfieldError } from '../errors.js';
 import { renderLotPdf } from '../report/index.js';
 import type { PanelResult } from '../types.js';
@@ -149,7 +149,7 @@ function prepareOutDir(outDir: string, opts: BatchOptions): string {
     rmSync(work, { recursive: true, force: true });
     for (const f of [RESULTS_JSON, RESULTS_CSV, SUMMARY_PDF]) rmSync(join(outDir, f), { force: true });
   }
-  mkdirSync(work, { recursive: true });
+  makeFolder(work);
   removeStaleTemporaries(outDir);
   removeStaleTemporaries(work);
   if (opts.resume && existsSync(statePath)) {
@@ -179,7 +179,7 @@ function storedOutcome(outDir: string, group: PanelGroup, signature: string, pdf
 export async function runBatch(opts: BatchOptions): Promise<BatchOutcome> {
   const t0 = performance.now();
   const outDir = resolve(opts.ctx.outDir);
-  mkdirSync(outDir, { recursive: true });
+  makeFolder(outDir);
   const date = prepareOutDir(outDir, opts);
   const ctx: RunContext = { ...opts.ctx, outDir, date };
   await writeFileAtomic(join(outDir, WORK_DIR, 'run.json'), JSON.stringify({ date, startedBy: `evenfield ${ctx.toolVersion}` } satisfies RunState) + '\n');

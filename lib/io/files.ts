@@ -1,6 +1,7 @@
-// File helpers: hashing, reading a photo once, atomic writes.
+// File helpers: hashing, reading a photo once, making output folders, atomic writes.
 
 import { createHash, randomBytes } from 'node:crypto';
+import { mkdirSync, statSync } from 'node:fs';
 import { open, readFile, rename, unlink } from 'node:fs/promises';
 import { basename, dirname, join, resolve } from 'node:path';
 import { EvenfieldError } from '../errors.js';
@@ -27,6 +28,63 @@ export async function readInputFile(file: string): Promise<Buffer> {
   }
   if (buf.length === 0) throw new EvenfieldError('unreadable', 'empty file (0 bytes)', file);
   return buf;
+}
+
+/** A plain reason for a failed folder or file operation, from its error code. */
+function outputReason(code: string | undefined, fallback: string): string {
+  switch (code) {
+    case 'EACCES':
+    case 'EPERM':
+      return 'permission denied';
+    case 'EROFS':
+      return 'read-only file system';
+    case 'ENOSPC':
+      return 'disk full';
+    case 'ENOTDIR':
+      return 'a file is in the way';
+    case 'ENOENT':
+      // the parent exists (it was checked or made just before): a file system that takes no new folders
+      return 'the file system refused it: ENOENT';
+    default:
+      return code ?? fallback;
+  }
+}
+
+/**
+ * Create a folder and any missing parents (as `mkdir -p`), or throw an EvenfieldError with code 'output'
+ * that names the folder and why. Written out rather than with mkdirSync's `recursive` option, which on
+ * some special file systems never returns: under Linux's /proc a mkdir fails with "no such file" though
+ * the parent exists, and Node's recursive mkdir (Node 20) then creates the parent and tries again, for
+ * ever.
+ */
+export function makeFolder(path: string): void {
+  const target = resolve(path);
+  const missing: string[] = [];
+  for (let p = target; ; ) {
+    let isDir: boolean | null = null;
+    try {
+      isDir = statSync(p).isDirectory();
+    } catch (e) {
+      const code = (e as NodeJS.ErrnoException).code;
+      if (code !== 'ENOENT' && code !== 'ENOTDIR') throw new EvenfieldError('output', `cannot create the folder (${outputReason(code, (e as Error).message)})`, path);
+    }
+    if (isDir === true) break;
+    if (isDir === false) throw new EvenfieldError('output', `cannot create the folder (${p === target ? 'a file of that name exists' : `${p} is a file`})`, path);
+    missing.push(p);
+    const up = dirname(p);
+    if (up === p) break;
+    p = up;
+  }
+  for (const d of missing.reverse()) {
+    try {
+      mkdirSync(d);
+    } catch (e) {
+      const code = (e as NodeJS.ErrnoException).code;
+      // made meanwhile by another process: fine
+      if (code === 'EEXIST' && statSync(d, { throwIfNoEntry: false })?.isDirectory()) continue;
+      throw new EvenfieldError('output', `cannot create the folder (${outputReason(code, (e as Error).message)})`, path);
+    }
+  }
 }
 
 /**

@@ -9,8 +9,8 @@ import { randomScene, renderPhoto } from '../../fixtures/generator/index.js';
 
 const BIN = join(__dirname, '..', '..', 'bin', 'evenfield.js');
 
-function run(args: string[]) {
-  const r = spawnSync(process.execPath, [BIN, ...args], { encoding: 'utf8' });
+function run(args: string[], timeout?: number) {
+  const r = spawnSync(process.execPath, [BIN, ...args], { encoding: 'utf8', timeout });
   return { status: r.status, stdout: r.stdout, stderr: r.stderr };
 }
 
@@ -66,6 +66,19 @@ describe('evenfield inspect', () => {
     const lines = r.stderr.trim().split('\n');
     expect(lines).toHaveLength(1);
     expect(lines[0]).toMatch(/^evenfield: Unknown argument: spot-size/);
+  });
+
+  it('stops with one line naming an output folder it cannot make, also where mkdir never succeeds', () => {
+    // Under Linux's /proc a new folder fails with "no such file" though /proc exists; Node 20's recursive
+    // mkdir loops on that for ever (seen here: ten minutes at full CPU). Elsewhere /proc is missing and
+    // cannot be made at the root, which must end the same way. Common practice: a command that cannot
+    // write its output says so and exits, with the usage/unusable status.
+    const out = '/proc/evenfield-no-such-folder/out';
+    const r = run(['inspect', join(dir, 'A1_white.jpg'), '--out', out, '--panel-size', '597.9x336.3', '--jobs', '1', '--quiet'], 60_000);
+    expect(r.status).toBe(2);
+    const lines = r.stderr.trim().split('\n');
+    expect(lines).toHaveLength(1);
+    expect(lines[0]).toMatch(/^evenfield: \/proc\/evenfield-no-such-folder\/out: cannot create the folder \(.+\)$/);
   });
 
   it('rejects a missing input with one line naming it', () => {

@@ -1,8 +1,8 @@
 import { afterAll, describe, expect, it } from 'vitest';
-import { mkdirSync, readFileSync, readdirSync, writeFileSync } from 'node:fs';
+import { mkdirSync, readFileSync, readdirSync, statSync, writeFileSync } from 'node:fs';
 import { quantile as ssQuantile, median as ssMedian } from 'simple-statistics';
 import { EvenfieldError } from '../../lib/errors.js';
-import { kthSmallest, orderStatistics, quantile, quantiles, readInputFile, sha256OfBuffer, writeFileAtomic } from '../../lib/io/index.js';
+import { kthSmallest, makeFolder, orderStatistics, quantile, quantiles, readInputFile, sha256OfBuffer, writeFileAtomic } from '../../lib/io/index.js';
 import { gauss, lcg, tempDir } from './helpers.js';
 
 const tmp = tempDir();
@@ -17,6 +17,38 @@ describe('sha256OfBuffer', () => {
     );
     // empty input (well-known value of SHA-256 of the empty string)
     expect(sha256OfBuffer(new Uint8Array(0))).toBe('e3b0c44298fc1c149afbf4c8996fb92427ae41e4649b934ca495991b7852b855');
+  });
+});
+
+describe('makeFolder', () => {
+  // the behaviour of POSIX `mkdir -p` (IEEE Std 1003.1, mkdir utility): missing parents made, an
+  // existing folder left as it is, a file in the way an error
+  it('makes missing parents and leaves an existing folder alone', () => {
+    const d = tmp.file('mk/a/b/c');
+    makeFolder(d);
+    expect(statSync(d).isDirectory()).toBe(true);
+    writeFileSync(`${d}/keep.txt`, 'x');
+    makeFolder(d);
+    expect(readdirSync(d)).toEqual(['keep.txt']);
+  });
+
+  it("fails with 'output', naming the folder, when a file is in the way", () => {
+    const f = tmp.file('mk-file');
+    writeFileSync(f, 'x');
+    for (const [path, why] of [
+      [f, 'a file of that name exists'],
+      [`${f}/sub/deeper`, `${f} is a file`],
+    ]) {
+      let err: unknown = null;
+      try {
+        makeFolder(path);
+      } catch (e) {
+        err = e;
+      }
+      expect(err).toBeInstanceOf(EvenfieldError);
+      expect((err as EvenfieldError).code).toBe('output');
+      expect((err as EvenfieldError).message).toBe(`${path}: cannot create the folder (${why})`);
+    }
   });
 });
 
