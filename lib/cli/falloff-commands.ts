@@ -21,9 +21,17 @@ export function loadFalloffProfile(path: string): FalloffProfile {
   try {
     return profileFromJson(text, path);
   } catch (e) {
-    if (e instanceof EvenfieldError) throw new EvenfieldError(e.code, e.message.startsWith(path) ? e.message.slice(path.length + 2) : e.message, path);
+    // the message names the file itself ("PATH: ..." or "PATH is not ..."): said once, as "PATH: problem"
+    if (e instanceof EvenfieldError) throw new EvenfieldError(e.code, withoutLeadingName(e.message, path), path);
     throw e;
   }
+}
+
+/** A message that begins with `name` ("NAME: problem", "NAME is problem"), as "problem"; others as they are. */
+export function withoutLeadingName(message: string, name: string): string {
+  if (message.startsWith(`${name}: `)) return message.slice(name.length + 2);
+  if (message.startsWith(`${name} is `)) return message.slice(name.length + 4);
+  return message;
 }
 
 function scaleFor(width: number, height: number): 1 | 2 | 4 | 8 {

@@ -84,7 +84,7 @@ async function inspect(a: InspectArgs): Promise<number> {
   const corners = a.corners ? parseCornersText(a.corners) : null;
   if (a.corners && !corners) throw new EvenfieldError('usage', '--corners must be 8 numbers "x,y x,y x,y x,y" (top-left, top-right, bottom-right, bottom-left, image pixels)');
   const jobs = a.jobs ?? defaultJobs();
-  if (!(Number.isInteger(jobs) && jobs >= 1 && jobs <= 64)) throw new EvenfieldError('usage', `--jobs must be a whole number from 1 to 64 (got ${a.jobs})`);
+  if (!(Number.isInteger(jobs) && jobs >= 1 && jobs <= 64)) throw new EvenfieldError('usage', `--jobs must be a whole number from 1 to 64 (got ${Number.isNaN(a.jobs) ? 'something that is not a number' : a.jobs})`);
 
   let falloff: FalloffChoice = { kind: 'none' };
   const falloffChoices = [a.falloff, a.flat && a.flat.length > 0 ? 'flat' : undefined, a['cos4-model'] ? 'cos4' : undefined].filter(Boolean);

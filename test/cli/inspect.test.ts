@@ -81,6 +81,21 @@ describe('evenfield inspect', () => {
     expect(lines[0]).toMatch(/^evenfield: \/proc\/evenfield-no-such-folder\/out: cannot create the folder \(.+\)$/);
   });
 
+  it('names a damaged falloff profile once, and says what is wrong with --jobs', () => {
+    // common practice: "FILE: problem" on one line, the file named once; a value that is not a number
+    // called that, not "NaN"
+    const bad = join(dir, 'lens.json');
+    writeFileSync(bad, '{ not json');
+    const r = run(['inspect', join(dir, 'A1_white.jpg'), '--out', join(dir, 'o4'), '--falloff', bad, '--quiet']);
+    expect(r.status).toBe(2);
+    const lines = r.stderr.trim().split('\n');
+    expect(lines).toHaveLength(1);
+    expect(lines[0]!.startsWith(`evenfield: ${bad}: not valid JSON: `)).toBe(true);
+    const j = run(['inspect', join(dir, 'A1_white.jpg'), '--out', join(dir, 'o5'), '--jobs', 'two']);
+    expect(j.status).toBe(2);
+    expect(j.stderr.trim()).toBe('evenfield: --jobs must be a whole number from 1 to 64 (got something that is not a number)');
+  });
+
   it('rejects a missing input with one line naming it', () => {
     const r = run(['inspect', join(dir, 'nope.jpg'), '--out', join(dir, 'o3')]);
     expect(r.status).toBe(2);
