@@ -28,7 +28,7 @@ export function loadFalloffProfile(path: string): FalloffProfile {
 }
 
 /** A message that begins with `name` ("NAME: problem", "NAME is problem"), as "problem"; others as they are. */
-export function withoutLeadingName(message: string, name: string): string {
+function withoutLeadingName(message: string, name: string): string {
   if (message.startsWith(`${name}: `)) return message.slice(name.length + 2);
   if (message.startsWith(`${name} is `)) return message.slice(name.length + 4);
   return message;
