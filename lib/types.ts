@@ -171,6 +171,11 @@ export interface MuraResult {
   coveredPct?: number;
   /** candidates found and then left out, with the reason (absent in results written before it) */
   leftOut?: LeftOutFinding[];
+  /** map pixels per pixel of the raster the mura analysis ran on (1 = the map itself) */
+  workScale?: number;
+  /** smallest feature diameter (mm) the analysed map resolves: two of its pixels across (absent in
+   *  results written before it) */
+  resolvedFromMm?: number;
 }
 
 /** A cloud left out of the findings because a radial roll-off of the panel explained it better. */

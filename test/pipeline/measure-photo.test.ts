@@ -71,6 +71,46 @@ describe('measurePhoto', () => {
     expect(nearEdge).toEqual([]);
   });
 
+  it('says from what size it resolves mura features when the photo gives the panel too few pixels', async () => {
+    // Two samples across the smallest feature (the Nyquist-Shannon sampling theorem; common practice for
+    // the smallest feature an image can show): the mura list of a coarse photo says nothing of smaller
+    // features, and the photo must say so. The same scene photographed at 480 x 360 and at 1200 x 900.
+    const opts = (spec: { panel: { widthMm: number; heightMm: number } }) => ({
+      ...DEFAULT_MEASURE_OPTIONS,
+      pattern: 'white' as const,
+      patternLevel: null,
+      panelSizeMm: { width: spec.panel.widthMm, height: spec.panel.heightMm },
+      grid: { layout: 9 as const, placement: 'cells' as const, insetFraction: 0.1, spotRadiusPct: 2 },
+      muraOptions: { minFeatureMm: 3 },
+      artifacts: false,
+    });
+    for (const [width, height] of [
+      [480, 360],
+      [1200, 900],
+    ] as const) {
+      const spec = randomScene(11, { width, height, features: [0, 0], k1: [0, 0], focal35: [50, 50], fill: [0.7, 0.7] });
+      spec.camera.cos4 = false;
+      const r = await renderPhoto(spec);
+      const file = join(dir, `R${width}_white.${r.ext}`);
+      writeFileSync(file, r.buffer);
+      const m = await measurePhoto(file, opts(spec));
+      expect(m.result.status).toBe('ok');
+      const pxPerMm = m.result.geometry!.pxPerMm / m.result.mura!.workScale!;
+      expect(m.result.mura!.resolvedFromMm).toBeCloseTo(2 / pxPerMm, 2);
+      const said = m.result.warnings.filter((w) => w.startsWith('the photo resolves mura features from'));
+      if (width === 480) {
+        // about 0.58 px per mm on the panel: features from about 3.5 mm
+        expect(m.result.mura!.resolvedFromMm).toBeGreaterThan(3.1);
+        expect(said).toHaveLength(1);
+        expect(said[0]).toContain(`from ${(2 / pxPerMm).toFixed(1)} mm across`);
+        expect(said[0]).toContain('not from the 3 mm sought');
+      } else {
+        expect(m.result.mura!.resolvedFromMm).toBeLessThan(3);
+        expect(said).toEqual([]);
+      }
+    }
+  });
+
   it('keeps the thumbnail of a photo it refuses, so the report can show why', async () => {
     const { file } = await photo(8, 'jpeg');
     const m = await measurePhoto(file, {
