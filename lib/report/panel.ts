@@ -739,7 +739,8 @@ function drawMura(ctx: Ctx, p: PreparedPhoto): void {
     .join(', ');
   const intro =
     `Background model: ${m.backgroundModel}. Contrast noise floor ${fmtContrast(m.noiseFloorPct)} % (1\u03c3 at the map's pixel scale)` +
-    `${res ? `; smallest contrast that can be resolved, by feature diameter: ${res}` : ''}.`;
+    `${res ? `; smallest contrast that can be resolved, by feature diameter: ${res}` : ''}` +
+    `${m.resolvedFromMm !== undefined ? `; features resolved from ${m.resolvedFromMm.toFixed(1)} mm across (two pixels of the analysed map)` : ''}.`;
   const block: MapBlock | null = p.contrast
     ? {
         png: p.contrast.png,
