@@ -30,6 +30,8 @@ export interface MuraAnalysis extends MuraResult {
   coveredPct: number;
   /** cautions the photo's own result should carry as warnings (see MuraOptions.coverageCautionPct) */
   cautions: string[];
+  /** smallest feature diameter (mm) the analysed raster resolves: two of its pixels across */
+  resolvedFromMm: number;
 }
 
 /** Diameters (mm) at which the smallest resolvable contrast is reported. */
@@ -185,6 +187,9 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
     contrast: { width: work.w, height: work.h, data: out },
     background: { width: work.w, height: work.h, data: bg },
     workScale: factor,
+    // two pixels of the analysed raster across a feature, as the sampling theorem asks: anything smaller
+    // cannot be told from the pixel grid (the map's default 2 px/mm serves 1 mm features)
+    resolvedFromMm: round(2 * work.mmPerPx, 2),
     notes,
     coveredPct: round(maskedPct, 1),
     cautions,

@@ -342,20 +342,18 @@ async function measureInner(
     const { contrast, background, cautions, ...rest } = mura;
     void background;
     result.warnings.push(...cautions);
-    // Two pixels of the analysed map across a feature, as the sampling theorem asks: anything smaller
-    // cannot be told from the pixel grid. The map's default of 2 px/mm serves 1 mm features; a photo that
-    // gives the panel fewer pixels lowers it, and the mura list then says nothing of smaller features.
-    // Compared at the 0.1 mm the message shows (a map of 1.997 px/mm still serves 1 mm).
-    const resolvedFromMm = (2 * rest.workScale) / map.pxPerMm;
+    // The mura list says nothing of features smaller than the analysed map resolves; say so when the
+    // criteria seek smaller ones. Compared at the 0.1 mm the message shows (a map of 1.997 px/mm still
+    // serves 1 mm).
     const soughtMm = opts.muraOptions.minFeatureMm ?? DEFAULT_MIN_FEATURE_MM;
-    if (Math.round(10 * resolvedFromMm) > Math.round(10 * soughtMm)) {
+    if (Math.round(10 * rest.resolvedFromMm) > Math.round(10 * soughtMm)) {
       result.warnings.push(
-        `the photo resolves mura features from ${resolvedFromMm.toFixed(1)} mm across (two pixels of the analysed map, ${(map.pxPerMm / rest.workScale).toFixed(2)} per mm), ` +
+        `the photo resolves mura features from ${rest.resolvedFromMm.toFixed(1)} mm across (two pixels of the analysed map, ${(2 / rest.resolvedFromMm).toFixed(2)} per mm), ` +
           `not from the ${soughtMm} mm sought: smaller spots and lines cannot be seen, and pass unseen. Come closer, zoom in or use more pixels, ` +
-          `or seek features from ${Math.ceil(resolvedFromMm)} mm (mura.minFeatureMm in the criteria)`,
+          `or seek features from ${Math.ceil(rest.resolvedFromMm)} mm (mura.minFeatureMm in the criteria)`,
       );
     }
-    result.mura = { ...rest, resolvedFromMm: Math.round(100 * resolvedFromMm) / 100 };
+    result.mura = rest;
     result.blobs = rest.blobs;
     contrastMap = contrast;
     if (!known) result.warnings.push('mura areas and SEMU use the nominal panel size: give --panel-size for figures in mm² and true SEMU');
