@@ -36,6 +36,8 @@ const big = process.argv.includes('--big');
 const seedArg = process.argv.find((a) => a.startsWith('--seeds='));
 const seedOffset = seedArg ? Number(seedArg.slice('--seeds='.length)) : 0;
 if (!Number.isInteger(seedOffset) || seedOffset < 0 || seedOffset > 900) throw new Error('--seeds=N needs an integer 0..900');
+// --no-falloff: leave the lens falloff in the photo (no correction), as a run without a profile does
+const noFalloff = process.argv.includes('--no-falloff');
 const cloudSizes = process.argv.includes('--nominal') ? 'nominal' : 'half-peak';
 // --panel=WxH: another panel size in mm (default the generator's 597.9 x 336.3, a 27-inch 16:9 monitor)
 const panelArg = process.argv.find((a) => a.startsWith('--panel='));
@@ -83,7 +85,7 @@ async function measure(name: string, spec: PhotoSpec): Promise<Measured> {
     panelSizeMm: { width: spec.panel.widthMm, height: spec.panel.heightMm },
     grid: { layout: 9, placement: 'cells', insetFraction: 0.1, spotRadiusPct: 2 },
     corners: truth.corners,
-    falloff: { kind: 'cos4', focal35mm: spec.camera.focal35 },
+    falloff: noFalloff ? { kind: 'none' } : { kind: 'cos4', focal35mm: spec.camera.focal35 },
     // the generator renders no angular emission unless asked; the viewing-angle gate is about that
     quality: { ...DEFAULT_QUALITY_LIMITS, maxViewAngleDeg: 90, warnViewAngleDeg: 90 },
     mura: true,
@@ -405,7 +407,9 @@ async function main(): Promise<void> {
         glowList.push(`black ${seed}: ${t.kind} ${where} (decay ${t.detail.decayMm} mm, C ${t.contrastPct.toFixed(0)} %) not found as such; reported: ${seen || 'nothing'}`);
       }
     }
-    blackExtra += r.mura.blobs.filter((x) => !used.has(x) && x.semu >= 1).length;
+    const extra = r.mura.blobs.filter((x) => !used.has(x) && x.semu >= 1);
+    blackExtra += extra.length;
+    for (const x of extra) glowList.push(`black ${seed}: other finding ${x.kind} ${x.detail.edge ?? x.detail.corner ?? ''} at (${x.xMm}, ${x.yMm}) C ${x.contrastPct} % SEMU ${x.semu}`);
     process.stderr.write(`black ${k + 1}/${nBlack}\r`);
   }
   log(`black fields with glow: ${nBlack} photos`);
