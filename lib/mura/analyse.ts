@@ -12,7 +12,7 @@ import { buildLevels, detectFeatures, noiseCorrelation } from './detect.js';
 import { classify, round } from './classify.js';
 import { panelEdges, register, type Ctx, type Found } from './context.js';
 import { groupHotspots, type Finding } from './hotspots.js';
-import { resolveMuraOptions, type MuraOptions, type MuraOptionsInput } from './options.js';
+import { resolveMuraOptions, type LensField, type MuraOptions, type MuraOptionsInput } from './options.js';
 import { chamfer, robustSigma, sampleIndices } from './raster.js';
 import { semu } from './semu.js';
 import { analyseTiles } from './tiles.js';
@@ -39,15 +39,18 @@ export const RESOLVABLE_DIAMETERS_MM = [3, 10, 30, 100];
 
 export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysis {
   const opts = resolveMuraOptions(input);
-  const work = workRaster(map, opts.maxWorkPixels);
-  const factor = Math.round((work.mmPerPx * map.pxPerMm) * 1e6) / 1e6;
   const black = opts.pattern === 'black';
-  const edges = panelEdges(work.wt, work.w, work.h);
-  const N = work.w * work.h;
+  const raw = workRaster(map, opts.maxWorkPixels);
+  const factor = Math.round((raw.mmPerPx * map.pxPerMm) * 1e6) / 1e6;
+  const edges = panelEdges(raw.wt, raw.w, raw.h);
+  const N = raw.w * raw.h;
 
   let mask: Uint8Array | null = null;
   let rho = 1;
-  let noisePct = neighbourNoise(relativeY(work), work);
+  let noisePct = neighbourNoise(relativeY(raw), raw);
+  // the lens falloff left in the photo, estimated and divided out
+  const lensFalloff = opts.lens ? withoutLensFalloff(raw, opts.lens, opts, noisePct) : null;
+  const work = lensFalloff ? lensFalloff.work : raw;
   let fit: BackgroundFit | null = null;
   let ctx: Ctx | null = null;
   let C: Float32Array = new Float32Array(N);
@@ -167,6 +170,9 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
       : '') +
     (unconfirmed
       ? `; ${unconfirmed} finding${unconfirmed > 1 ? 's' : ''} left out as not found against a surface of order ${opts.background.blackCheckOrder} (the panel's own drop-off, which the stiffer surface cannot follow)`
+      : '') +
+    (lensFalloff
+      ? `; the lens falloff left in the photo estimated from the field (the cos⁴ law of a lens seeing ${round((2 * Math.atan(lensFalloff.tan) * 180) / Math.PI, 0)}° across the image diagonal, to the power ${round(lensFalloff.power, 2)}: ${round(lensFalloff.rangePct[0], 1)} to ${round(lensFalloff.rangePct[1], 1)} % of the level at the image centre over the panel) and divided out first`
       : '');
 
   const out = onPanelOnly(C, work.wt);
@@ -194,6 +200,81 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
     coveredPct: round(maskedPct, 1),
     cautions,
   };
+}
+
+/** Widths of the falloff profile tried when the photo does not give its focal length (tangent of the
+ *  field angle at the image corner: 0.3 for a 72 mm lens, 1.2 for an 18 mm one, 35 mm-equivalent). */
+const LENS_TANS = [0.3, 0.45, 0.6, 0.75, 0.9, 1.05, 1.2];
+
+/** Powers of the cos⁴ law a falloff may show (withoutLensFalloff): 0 for a camera that corrected all of
+ *  it, about 1 for the law alone, up to 3 for a fast lens wide open, whose barrel cuts the corner
+ *  beams too (common practice; from memory). A fit outside this range has taken the panel's own
+ *  roll-off for the lens's (the two are alike when the panel sits centred and square to the camera),
+ *  and nothing is divided out. */
+const LENS_POWER_RANGE: [number, number] = [0, 3];
+
+/**
+ * A field photographed without a lens falloff correction still holds the lens's falloff, radial
+ * about the image centre: seen on the panel, deepest towards the corners farthest from the image
+ * centre, and of a profile no low-order surface in panel coordinates follows (the cos⁴ law of a 26 mm
+ * lens is 1 / (1 + x)² with x up to about 0.5 on the panel, a slowly converging series). Left to the
+ * rounds it read as faint clouds and corner spots on clean generated fields, and as edge glows on black
+ * ones (whose surface is of order 2). Here it is estimated from
+ * the field itself and divided out: the logarithm of the level (where the falloff is a factor, so a term
+ * of its own) is fitted robustly by an order-2 surface in panel coordinates plus the cos⁴ law's logarithm
+ * at each point's place in the photo, with a free power (fitBackground's lens term: what the camera
+ * corrected of it, or what the lens barrel adds). The profile's width comes from the photo's focal
+ * length, or without one is chosen among LENS_TANS by the fit's error. The field is divided by the lens term's part only: the
+ * polynomial's part stays for the rounds to fit again with the features masked.
+ * Returns the divided raster and the range of the factor divided out over the panel (% of the level at
+ * the image centre), or null when no panel pixel has data or no fit's power is in LENS_POWER_RANGE.
+ */
+function withoutLensFalloff(raw: WorkRaster, lens: LensField, opts: MuraOptions, noisePct: number): { work: WorkRaster; rangePct: [number, number]; tan: number; power: number } | null {
+  const N = raw.w * raw.h;
+  const idx = sampleIndices(N, (i) => raw.wt[i] > 0 && raw.Y[i] > 0, 50_000);
+  if (idx.length === 0) return null;
+  const vals = Array.from(idx, (i) => raw.Y[i]).sort((a, b) => a - b);
+  const med = vals[vals.length >> 1];
+  // 1 + ln(Y / median): the fit's residuals (in % of the surface, about 1) are then log differences, as
+  // a contrast in % is for small contrasts
+  const L = new Float32Array(N);
+  const wt = new Float32Array(N);
+  for (let i = 0; i < N; i++) {
+    if (raw.wt[i] > 0 && raw.Y[i] > 0) {
+      L[i] = 1 + Math.log(raw.Y[i] / med);
+      wt[i] = raw.wt[i];
+    }
+  }
+  const toImage = Float64Array.from(lens.panelMmToImage);
+  // the focal length gives the profile's width; without it, the width that fits best
+  const tans = lens.tan ? [lens.tan] : LENS_TANS;
+  let best: BackgroundFit | null = null;
+  let bestTan = 0;
+  for (const tan of tans) {
+    const fit = fitBackground({ ...raw, Y: L, wt, lens: { toImage, tan } }, null, { ...opts.background, order: 2 }, noisePct, opts.tileGrid, false);
+    if (process.env.MURA_DBG) console.log(`lens tan ${tan.toFixed(3)} power ${fit.lensPower?.toFixed(3)} fitErr ${fit.fitErrorPct.toFixed(4)}`);
+    const power = fit.lensPower!;
+    if (!(power >= LENS_POWER_RANGE[0] && power <= LENS_POWER_RANGE[1])) continue;
+    if (!best || fit.fitErrorPct < best.fitErrorPct) {
+      best = fit;
+      bestTan = tan;
+    }
+  }
+  if (!best) return null;
+  const part = best.lensPart!;
+  const Y = new Float32Array(N);
+  let lo = Infinity;
+  let hi = -Infinity;
+  for (let i = 0; i < N; i++) {
+    const g = Math.exp(part[i]);
+    Y[i] = raw.Y[i] / g;
+    if (raw.wt[i] > 0) {
+      lo = Math.min(lo, g);
+      hi = Math.max(hi, g);
+    }
+  }
+  if (process.env.MURA_DBG) console.log(`lens falloff divided out: tan ${bestTan} ${(100 * lo).toFixed(1)} .. ${(100 * hi).toFixed(1)} %`);
+  return { work: { w: raw.w, h: raw.h, mmPerPx: raw.mmPerPx, Y, wt: raw.wt, lens: null }, rangePct: [100 * lo, 100 * hi], tan: bestTan, power: best.lensPower! };
 }
 
 /** The map's luminance box-averaged by an integer factor so that it has at most maxPixels pixels. */
@@ -224,7 +305,7 @@ export function workRaster(map: PanelMap, maxPixels: number): WorkRaster {
     if (wt[j] > 0) Y[j] /= wt[j];
     wt[j] /= full;
   }
-  return { w, h, mmPerPx: f / map.pxPerMm, Y, wt };
+  return { w, h, mmPerPx: f / map.pxPerMm, Y, wt, lens: null };
 }
 
 function relativeY(work: WorkRaster): Float32Array {
@@ -740,7 +821,7 @@ function coarsened(work: WorkRaster, k: number): WorkRaster {
   const Y = coarsenedPlane(yw, work.w, work.h, k);
   const wt = coarsenedPlane(work.wt, work.w, work.h, k);
   for (let j = 0; j < Y.length; j++) Y[j] = wt[j] > 0 ? Y[j] / wt[j] : 0;
-  return { w: Math.ceil(work.w / k), h: Math.ceil(work.h / k), mmPerPx: work.mmPerPx * k, Y, wt };
+  return { w: Math.ceil(work.w / k), h: Math.ceil(work.h / k), mmPerPx: work.mmPerPx * k, Y, wt, lens: work.lens ?? null };
 }
 
 /** A plane box-averaged by k (plain mean of the pixels each coarse pixel covers). */

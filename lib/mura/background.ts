@@ -30,6 +30,8 @@ export interface WorkRaster {
   Y: Float32Array;
   /** fraction of the pixel that had camera data (0 = none) */
   wt: Float32Array;
+  /** a lens falloff term for the surface (see lensColumn), or null/absent (none) */
+  lens?: LensTerm | null;
 }
 
 export interface BackgroundFit {
@@ -50,6 +52,10 @@ export interface BackgroundFit {
   /** the bumps fitted with the surface, each with the width scale chosen and its fitted amplitude
    *  (relative to the background: 0.05 = a 5 % cloud) */
   bumps: (Bump & { amplitude: number })[];
+  /** the lens term's part of B (included in it), or null without a lens term */
+  lensPart: Float32Array | null;
+  /** the lens term's coefficient (the falloff's power), or null */
+  lensPower: number | null;
 }
 
 /**
@@ -94,6 +100,35 @@ export function legendre(n: number, x: number, out: Float64Array): void {
  *  polynomial's even powers they follow a roll-off whose profile is not a polynomial, e.g. one falling
  *  as the 1.5th power of the distance from its peak (sharper at the peak than any low-order surface). */
 const RADIAL_POWERS = [1, 3];
+
+/**
+ * A lens falloff term: where each panel point lay in the photo, and the falloff profile's width. Falloff
+ * is radial about the optical axis (common practice to take the image centre for it), so seen on the
+ * panel it is a function of where each point lay in the photo, not of the panel's own coordinates.
+ */
+export interface LensTerm {
+  /** homography (row-major 3 x 3) from panel mm to image coordinates centred on the image centre, in
+   *  half-diagonals of the image */
+  toImage: Float64Array;
+  /** tangent of the field angle at the image corner (half-diagonal over focal length) */
+  tan: number;
+}
+
+/**
+ * The lens term's column: the logarithm of the cos⁴ law's falloff at image radius r (half-diagonals),
+ * ln cos⁴θ = -2 ln(1 + tan² r²) (cos⁴ law of natural vignetting, common optics). Fitted to the
+ * logarithm of the level, its coefficient is the power the falloff shows in the photo (1 for the law
+ * alone, less where the camera corrected part of it, more with vignetting of the lens barrel).
+ */
+function lensColumn(L: LensTerm, mmPerPx: number, x: number, y: number): number {
+  const xm = (x + 0.5) * mmPerPx;
+  const ym = (y + 0.5) * mmPerPx;
+  const h = L.toImage;
+  const d = h[6] * xm + h[7] * ym + h[8];
+  const u = (h[0] * xm + h[1] * ym + h[2]) / d;
+  const v = (h[3] * xm + h[4] * ym + h[5]) / d;
+  return -2 * Math.log(1 + L.tan * L.tan * (u * u + v * v));
+}
 
 function termList(order: number): [number, number][] {
   const t: [number, number][] = [];
@@ -181,8 +216,8 @@ function gatherCells(work: WorkRaster, mask: Uint8Array | null, cellPx: number, 
 }
 
 /**
- * The fit's terms: Legendre products of order `order`, tile offsets (tile 0 the reference), bumps and
- * radial terms, in that order. Kept in one object of fixed shape and used by module-level functions
+ * The fit's terms: Legendre products of order `order`, tile offsets (tile 0 the reference), bumps,
+ * radial terms and lens terms, in that order. Kept in one object of fixed shape and used by module-level functions
  * (closures made anew on every fit would each be compiled anew by V8).
  */
 interface Terms {
@@ -205,6 +240,9 @@ interface Terms {
   radialY: number;
   nRadial: number;
   radialScale: number;
+  /** the lens term (WorkRaster.lens), or null */
+  lens: LensTerm | null;
+  mmPerPx: number;
   /** Legendre values, scratch */
   px: Float64Array;
   py: Float64Array;
@@ -239,6 +277,7 @@ function designRow(T: Terms, cells: Cells, c: number, design: Float64Array): voi
   for (let t = 1; t < T.nTiles; t++) design[at + nPoly + t - 1] = cells.tile[c] === t ? 1 : 0;
   for (let k = 0; k < T.bumpList.length; k++) setBump(T, cells, k, c, design);
   for (let t = 0; t < T.nRadial; t++) design[at + T.nBase + T.bumpList.length + t] = radialAt(T, x, y, t);
+  if (T.lens !== null) design[at + T.nBase + T.bumpList.length + T.nRadial] = lensColumn(T.lens, T.mmPerPx, x, y);
 }
 
 /** Value of the fitted surface at cell c. */
@@ -378,7 +417,8 @@ export function fitBackground(
   const bumpList = bumps?.list ?? [];
   const nBase = terms.length + nTileTerms;
   const nRadial = radial ? RADIAL_POWERS.length : 0;
-  const nTerms = nBase + bumpList.length + nRadial;
+  const lens = work.lens ?? null;
+  const nTerms = nBase + bumpList.length + nRadial + (lens ? 1 : 0);
   // a least-squares fit needs at least as many observations as unknowns
   if (nCells < nTerms) {
     throw new EvenfieldError('internal', `only ${nCells} cells of the panel map hold data, too few for the mura background fit (${nTerms} terms)`);
@@ -399,6 +439,8 @@ export function fitBackground(
     radialY: radial ? radial.y : 0,
     nRadial,
     radialScale: 1 / Math.hypot(w / 2, h / 2),
+    lens,
+    mmPerPx: work.mmPerPx,
     px: new Float64Array(order + 1),
     py: new Float64Array(order + 1),
   };
@@ -495,6 +537,12 @@ export function fitBackground(
 
   // 5. evaluate at working resolution
   const B = evaluateSurface(T, coef);
+  let lensPart: Float32Array | null = null;
+  if (T.lens !== null) {
+    lensPart = new Float32Array(w * h);
+    addLensTerms(T, coef, lensPart);
+    for (let i = 0; i < B.length; i++) B[i] += lensPart[i];
+  }
 
   if (tileOffsetsPct && tileGrid) {
     for (let t = 0; t < nTiles; t++) {
@@ -525,10 +573,12 @@ export function fitBackground(
     cellNoisePct: noiseLevel,
     tileOffsetsPct,
     bumps: bumpList.map((b, k) => ({ ...b, sLong: b.sLong * bumpScale[k], sShort: b.sShort * bumpScale[k], amplitude: coef[nBase + k] })),
+    lensPart,
+    lensPower: lens ? coef[nBase + bumpList.length + nRadial] : null,
   };
 }
 
-/** The fitted surface (polynomial and radial terms; tile offsets and bumps left out) at working resolution. */
+/** The fitted surface (polynomial and radial terms; tile offsets, bumps and lens terms left out) at working resolution. */
 function evaluateSurface(T: Terms, coef: Float64Array): Float32Array {
   const { w, h, order, px, py, ti, tj } = T;
   const B = new Float32Array(w * h);
@@ -562,6 +612,13 @@ function evaluateSurface(T: Terms, coef: Float64Array): Float32Array {
     for (let y = 0; y < h; y++) for (let x = 0; x < w; x++) B[y * w + x] += a * radialAt(T, x, y, t);
   }
   return B;
+}
+
+/** The lens term's part of the surface, written into out. */
+function addLensTerms(T: Terms, coef: Float64Array, out: Float32Array): void {
+  const L = T.lens!;
+  const a = coef[T.nBase + T.bumpList.length + T.nRadial];
+  for (let y = 0; y < T.h; y++) for (let x = 0; x < T.w; x++) out[y * T.w + x] = a * lensColumn(L, T.mmPerPx, x, y);
 }
 
 function median1(a: Float64Array): number {

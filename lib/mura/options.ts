@@ -139,6 +139,20 @@ export interface MuraOptions {
    *  finding is rather than at the panel's centre (null: codeStepPct everywhere). The step grows where the
    *  camera saw the panel darker: towards the corners (lens falloff, the panel's own roll-off). */
   codeLevel: CodeLevel | null;
+  /** where the panel lay in the photo, when the photo's lens falloff was left in it (no correction
+   *  applied), or null (default). On lit fields the falloff is then estimated from the field and divided
+   *  out before the rounds (withoutLensFalloff in analyse.ts). */
+  lens: LensField | null;
+}
+
+/** Where the panel lay in the photo, for the lens terms of the background surface. */
+export interface LensField {
+  /** homography (row-major 3 x 3) from panel mm (x right, y down from the active area's top-left) to
+   *  image coordinates centred on the image centre, in half-diagonals of the image */
+  panelMmToImage: number[];
+  /** tangent of the field angle at the image corner, from the photo's focal length (21.63 mm over the
+   *  35 mm-equivalent focal length), or null when unknown */
+  tan: number | null;
 }
 
 /** The camera's linear code level across the panel, for the local 8-bit code step. */
@@ -201,6 +215,7 @@ export function resolveMuraOptions(input: MuraOptionsInput): MuraOptions {
     codeStepFactor: input.codeStepFactor ?? 1,
     jpegPlateauShare: input.jpegPlateauShare ?? 0.6,
     codeLevel: input.codeLevel ?? null,
+    lens: input.lens ?? null,
   };
   validate(o);
   return o;
@@ -237,6 +252,10 @@ function validate(o: MuraOptions): void {
   if (!(Number.isInteger(o.hotspotMinCount) && o.hotspotMinCount >= 3)) bad('hotspotMinCount must be an integer >= 3');
   if (!(o.maxWorkPixels >= 10_000)) bad('maxWorkPixels must be at least 10000');
   if (o.jpegBlockMm !== null) positive('jpegBlockMm', o.jpegBlockMm);
+  if (o.lens !== null && !(o.lens.panelMmToImage.length === 9 && o.lens.panelMmToImage.every(Number.isFinite))) {
+    bad('lens.panelMmToImage must be 9 finite numbers (a 3 x 3 homography)');
+  }
+  if (o.lens !== null && o.lens.tan !== null) positive('lens.tan', o.lens.tan);
   if (o.codeStepPct !== null) positive('codeStepPct', o.codeStepPct);
   if (!(Number.isFinite(o.codeStepFactor) && o.codeStepFactor >= 0)) bad(`codeStepFactor must be >= 0, got ${o.codeStepFactor}`);
   if (!(Number.isFinite(o.jpegPlateauShare) && o.jpegPlateauShare >= 0)) bad(`jpegPlateauShare must be >= 0, got ${o.jpegPlateauShare}`);

@@ -9,7 +9,7 @@ import { applyCoarseTransmissionWithLuminance, channelTransmissionFromProfile, c
 import type { CoarseTransmission } from '../falloff/index.js';
 import type { FalloffProfile } from '../falloff/index.js';
 import { analyseMura } from '../mura/index.js';
-import type { MuraOptions } from '../mura/index.js';
+import type { LensField, MuraOptions } from '../mura/index.js';
 import { measureGrid, uniformityFigures } from '../measure/index.js';
 import type { GridOptions } from '../measure/index.js';
 import { EvenfieldError, isEvenfieldError } from '../errors.js';
@@ -58,6 +58,29 @@ function transmissionOnPanel(t: CoarseTransmission, corners: Corners, nodes: num
     }
   }
   return { cols: nodes, rows: nodes, data };
+}
+
+/**
+ * Panel mm to image coordinates about the image centre in half-diagonals (the lens terms of the mura
+ * background): the outline's homography (unit square to image pixels) with the panel's size before it
+ * and the centring after it.
+ */
+export function lensFieldOf(corners: Corners, imageWidth: number, imageHeight: number, widthMm: number, heightMm: number, focal35mm: number | null): LensField {
+  const r = 2 / Math.hypot(imageWidth, imageHeight);
+  const cx = (imageWidth - 1) / 2;
+  const cy = (imageHeight - 1) / 2;
+  const centring = [r, 0, -r * cx, 0, r, -r * cy, 0, 0, 1];
+  const size = [1 / widthMm, 0, 0, 0, 1 / heightMm, 0, 0, 0, 1];
+  // the 35 mm frame's half-diagonal, 21.63 mm, over the equivalent focal length
+  const tan = focal35mm ? Math.hypot(36, 24) / 2 / focal35mm : null;
+  return { panelMmToImage: times3(times3(centring, panelToCamera(corners)), size), tan };
+}
+
+/** Product of two row-major 3 x 3 matrices. */
+function times3(a: readonly number[], b: readonly number[]): number[] {
+  const out = new Array<number>(9).fill(0);
+  for (let i = 0; i < 3; i++) for (let j = 0; j < 3; j++) for (let k = 0; k < 3; k++) out[3 * i + j] += a[3 * i + k] * b[3 * k + j];
+  return out;
 }
 
 function withoutBorder(valid: Uint8Array, w: number, h: number, border: number): Uint8Array {
@@ -305,7 +328,7 @@ async function measureInner(
   // Steps 1-7 work on camera-sized images. They run in their own function so that those images are
   // unreachable (and can be freed) during the mura analysis: a local variable of a running function
   // keeps its array alive until the function returns, even after its last use.
-  const { map, points, known, widthMm, heightMm, cameraPxPerMapPx, cornerStrength, gainGrid } = await measureCamera(file, opts, result, partial);
+  const { map, points, known, widthMm, heightMm, cameraPxPerMapPx, cornerStrength, gainGrid, lens } = await measureCamera(file, opts, result, partial);
 
   // 8. mura
   let contrastMap: Plane | null = null;
@@ -332,7 +355,7 @@ async function measureInner(
       codeStepPct !== null && centreY !== undefined && centreY > 0 ? { centreY, gain: gainGrid, stepCodes: result.decode?.levelStepCodes ?? 1 } : null;
     const mura = analyseMura(
       { ...map, valid: withoutBorder(map.valid, map.width, map.height, border) },
-      { jpegBlockMm, codeStepPct, codeLevel, edgeBorderMm: border / map.pxPerMm, ...opts.muraOptions, pattern: opts.pattern },
+      { jpegBlockMm, codeStepPct, codeLevel, edgeBorderMm: border / map.pxPerMm, lens, ...opts.muraOptions, pattern: opts.pattern },
     );
     if (codeStepPct !== null && codeStepPct > 1.5) {
       result.warnings.push(
@@ -381,6 +404,8 @@ interface CameraStage {
   cornerStrength: number;
   /** lens transmission at panel points (grid of nodes over u, v = 0..1), null without a correction */
   gainGrid: { cols: number; rows: number; data: Float32Array } | null;
+  /** where the panel lay in the photo, when the lens falloff was left in it (for the mura background) */
+  lens: LensField | null;
 }
 
 /** Steps 1-7: decode, falloff, outline, pose, quality gates, rectification, grid; fills `result`. */
@@ -596,7 +621,9 @@ async function measureCamera(
   };
   result.uniformity = uniformityFigures(points);
   const gainGrid = transmission ? transmissionOnPanel(transmission, cornersWork, 17) : null;
-  return { map, points, known, widthMm, heightMm, cameraPxPerMapPx: rect.cameraPxPerMapPx, cornerStrength, gainGrid };
+  const f35 = decoded.exposure.focalLength35mm;
+  const lens = transmission ? null : lensFieldOf(cornersWork, img.width, img.height, widthMm, heightMm, f35 && f35 > 0 ? f35 : null);
+  return { map, points, known, widthMm, heightMm, cameraPxPerMapPx: rect.cameraPxPerMapPx, cornerStrength, gainGrid, lens };
 }
 
 function downsamplePlane(p: Plane, maxWidth: number): Plane {
