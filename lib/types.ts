@@ -200,6 +200,9 @@ export interface GeometryRecord {
   cornersSource: 'auto' | 'manual' | 'shared';
   /** rms of edge-point distances to the fitted edge lines, camera pixels (auto only) */
   edgeResidualPx: number | null;
+  /** largest sagitta of the edges' arcs about their fitted lines, camera pixels (lens distortion or a
+   *  curved panel; auto, or shared from the photo the corners came from); null when not measured */
+  edgeBowPx: number | null;
   /** angle between the camera's optical axis and the panel normal, degrees, when estimable */
   tiltDeg: number | null;
   /** largest angle between the panel normal and the line of sight to any point of the active area, degrees */

@@ -80,6 +80,7 @@ export async function runPanel(task: PanelTask): Promise<PanelOutcome> {
         strength: m.result.geometry?.cornersSource === 'manual' ? 1 : m.cornerStrength,
         imageWidth: m.result.decode.width,
         imageHeight: m.result.decode.height,
+        edgeBowPx: m.result.geometry?.edgeBowPx ?? null,
       };
     }
   }

@@ -644,11 +644,73 @@ export function fitEdge(
 }
 
 /**
+ * How an edge bends away from its fitted line: a quadratic d(s) = a + b s + c s² fitted by weighted least
+ * squares to the edge points' distances d from the line against their places s along it (s from the
+ * foot of the first profile's base). A straight edge photographed through a lens with radial
+ * distortion (or a curved panel) is such an arc. bowPx is the arc's sagitta over the edge points'
+ * span, c (span / 2)²: 0 when fewer than 6 points are used.
+ */
+export interface EdgeBow {
+  origin: Point;
+  a: number;
+  b: number;
+  c: number;
+  bowPx: number;
+}
+
+export function edgeBow(fit: EdgeFit): EdgeBow {
+  const { line, direction: dir } = fit;
+  let origin: Point | null = null;
+  const ss: number[] = [];
+  const ds: number[] = [];
+  const ws: number[] = [];
+  for (let k = 0; k < fit.profiles.length; k++) {
+    const w = fit.weights[k];
+    if (!(w > 0)) continue;
+    const p = fit.profiles[k];
+    const ex = p.base[0] + p.offset * fit.normal[0];
+    const ey = p.base[1] + p.offset * fit.normal[1];
+    const d = line.nx * ex + line.ny * ey - line.c;
+    if (origin === null) origin = [ex - d * line.nx, ey - d * line.ny];
+    ss.push((ex - origin[0]) * dir[0] + (ey - origin[1]) * dir[1]);
+    ds.push(d);
+    ws.push(w);
+  }
+  const none: EdgeBow = { origin: origin ?? [0, 0], a: 0, b: 0, c: 0, bowPx: 0 };
+  if (ss.length < 6) return none;
+  // normal equations of the quadratic in s centred and scaled on the span (well conditioned)
+  const lo = Math.min(...ss);
+  const hi = Math.max(...ss);
+  const mid = (lo + hi) / 2;
+  const half = Math.max((hi - lo) / 2, 1e-9);
+  const A = [0, 0, 0, 0, 0, 0, 0, 0, 0];
+  const r = [0, 0, 0];
+  for (let k = 0; k < ss.length; k++) {
+    const t = (ss[k] - mid) / half;
+    const row = [1, t, t * t];
+    for (let i = 0; i < 3; i++) {
+      r[i] += ws[k] * row[i] * ds[k];
+      for (let j = 0; j < 3; j++) A[3 * i + j] += ws[k] * row[i] * row[j];
+    }
+  }
+  const q = solve3(A, r);
+  if (!q) return none;
+  // back to s: d = q0 + q1 t + q2 t², t = (s - mid) / half
+  const c = q[2] / (half * half);
+  const b = q[1] / half - 2 * c * mid;
+  const a = q[0] - (q[1] * mid) / half + c * mid * mid;
+  return { origin: origin!, a, b, c, bowPx: Math.abs(q[2]) };
+}
+
+/**
  * 10-90 % width of the edge spread function, measured as in the slanted-edge method: pixel values near
- * each used profile, normalised with that profile's levels, binned by signed distance to the fitted line.
- * Returns NaN when the spread function cannot be traced.
+ * each used profile, normalised with that profile's levels, binned by signed distance to the edge. The
+ * edge is the quadratic of edgeBow rather than the straight line, as the slanted-edge method's polynomial
+ * edge fit does for distorted edges (ISO 12233's e-SFR; from memory): an edge bowed by lens distortion
+ * would otherwise read as blurred by its sagitta. Returns NaN when the spread function cannot be traced.
  */
 export function edgeSpreadWidth(lum: Plane, fit: EdgeFit, R: number, alongHalf: number): number {
+  const bow = edgeBow(fit);
   const binW = 0.1;
   const nb = Math.ceil((2 * R) / binW);
   const sum = new Float64Array(nb);
@@ -675,7 +737,8 @@ export function edgeSpreadWidth(lum: Plane, fit: EdgeFit, R: number, alongHalf: 
         const ry = y - cy;
         const s = rx * dir[0] + ry * dir[1];
         if (Math.abs(s) > alongHalf) continue;
-        const dd = rx * line.nx + ry * line.ny;
+        const sb = (x - bow.origin[0]) * dir[0] + (y - bow.origin[1]) * dir[1];
+        const dd = rx * line.nx + ry * line.ny - (bow.a + bow.b * sb + bow.c * sb * sb);
         if (dd <= -R || dd >= R) continue;
         const q = (data[y * W + x] - p.outside) / step;
         const b = Math.floor((dd + R) / binW);

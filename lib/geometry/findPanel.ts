@@ -5,7 +5,7 @@
 import { EvenfieldError } from '../errors.js';
 import type { Corners, Pattern, Plane, Point } from '../types.js';
 import { coarseQuad, downsampleLog, findCandidates, type CoarseCandidate } from './coarse.js';
-import { edgeSpreadWidth, fitEdge, ProfileScratch, type EdgeFit, type EdgeOptions } from './edges.js';
+import { edgeBow, edgeSpreadWidth, fitEdge, ProfileScratch, type EdgeFit, type EdgeOptions } from './edges.js';
 import { checkQuadrilateral, intersectLines } from './quad.js';
 
 export interface FindPanelOptions {
@@ -65,6 +65,9 @@ export interface PanelFind {
   edgeWidthPx: number;
   /** per edge (top, right, bottom, left): profiles used / profiles taken */
   edgeInlierFractions: [number, number, number, number];
+  /** largest sagitta of the edges' arcs about their fitted lines (edgeBow), input-plane pixels: lens
+   *  distortion or a curved panel */
+  edgeBowPx: number;
 }
 
 type Resolved = Required<Omit<FindPanelOptions, 'profileHalfWidthPx' | 'pattern'>> & {
@@ -315,5 +318,6 @@ function summarise(r: Refined, o: Resolved): PanelFind {
     strength: Math.max(0, Math.min(1, strength)),
     edgeWidthPx: median(r.widths),
     edgeInlierFractions: fractions as [number, number, number, number],
+    edgeBowPx: Math.max(...r.fits.map((f) => edgeBow(f).bowPx)),
   };
 }

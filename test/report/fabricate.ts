@@ -235,7 +235,7 @@ export function fakePhoto(spec: FakePhotoSpec, index: number, mapW = 600): { pho
     },
     exposureStats: { clippedFraction: 0, darkFraction: spec.pattern === 'black' ? 0.004 : 0, p999: 0.61, median: 0.42 },
     corners,
-    geometry: { cornersSource: 'auto', edgeResidualPx: 0.62, tiltDeg: 3.4, viewAngleMaxDeg: 12.8, mapWidth: 1200, mapHeight: Math.round(1200 * PANEL_H_MM / PANEL_W_MM), pxPerMm: 1200 / PANEL_W_MM, cameraPxPerMapPx: 3.1 },
+    geometry: { cornersSource: 'auto', edgeResidualPx: 0.62, edgeBowPx: 0.4, tiltDeg: 3.4, viewAngleMaxDeg: 12.8, mapWidth: 1200, mapHeight: Math.round(1200 * PANEL_H_MM / PANEL_W_MM), pxPerMm: 1200 / PANEL_W_MM, cameraPxPerMapPx: 3.1 },
     falloff: { applied: true, method: 'flat-frames', source: 'falloff/fakecam-50mm-f8.json', cornerFalloff: 0.71, warnings: [] },
     grid: { layout: spec.layout, placement: 'cells', insetPct: null, spotRadiusPct: 3, points },
     uniformity: {
