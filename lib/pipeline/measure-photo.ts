@@ -353,7 +353,9 @@ async function measureInner(
     const ringMapPx = isJpeg && camPerMap && opts.pattern !== 'black' ? 8 / camPerMap : 0;
     // An edge bowed by lens distortion (or a curved panel) leaves the straight outline by up to its
     // sagitta, inside or out: the border reaches that much further, or the bezel shows as a dark line.
-    const bowMapPx = camPerMap && result.geometry?.edgeBowPx ? result.geometry.edgeBowPx / camPerMap : 0;
+    // (bows within the transition's own 3 px are left to it: a straight edge measures a few hundredths)
+    const bowPx = result.geometry?.edgeBowPx ?? 0;
+    const bowMapPx = camPerMap && bowPx > 1 ? bowPx / camPerMap : 0;
     const border = Math.ceil(EDGE_TRANSITION_CAMERA_PX / Math.max(cameraPxPerMapPx, 1e-3) + ringMapPx + bowMapPx) + 1;
     // JPEG codes each 8 x 8 block on its own: tell the analysis how large a block is on the panel
     const jpegBlockMm = isJpeg && camPerMap ? 8 / (camPerMap * map.pxPerMm) : null;
