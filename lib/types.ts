@@ -66,6 +66,9 @@ export interface DecodeInfo {
    * decoded in float, the luma DC quantiser over 8 (0.375 at quality 92). Null for 16-bit input.
    */
   levelStepCodes: number | null;
+  /** the pixels were coded by JPEG: a JPEG file, or a TIFF with JPEG compression (TIFF tag 259 = 6 or 7).
+   *  Its 8 x 8 blocks and the ringing at sharp edges are then allowed for (mura border, block size). */
+  jpegCoded: boolean;
 }
 
 /** Exposure quality of the decoded pixels (whole frame and, once known, the panel area). */

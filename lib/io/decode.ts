@@ -733,6 +733,7 @@ function finish(
     scale,
     jpegSamples,
     levelStepCodes,
+    jpegCoded: plan.format === 'jpeg' || (plan.format === 'tiff' && (exif.compression === 6 || exif.compression === 7)),
   };
   return {
     image,

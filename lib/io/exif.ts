@@ -9,6 +9,8 @@ export interface ExifResult {
   exposure: ExposureRecord;
   /** EXIF Orientation tag 1..8 as stored, or null */
   orientation: number | null;
+  /** TIFF Compression tag (259) of the first image directory, or null (6 and 7 are JPEG) */
+  compression: number | null;
 }
 
 export const EMPTY_EXPOSURE: ExposureRecord = Object.freeze({
@@ -113,5 +115,7 @@ export async function readExif(file: Uint8Array, exifBlock?: Uint8Array | null):
   }
   const o = tags ? tags.Orientation : undefined;
   const orientation = typeof o === 'number' && Number.isInteger(o) && o >= 1 && o <= 8 ? o : null;
-  return { exposure: exposureFromTags(tags), orientation };
+  const c = tags ? tags.Compression : undefined;
+  const compression = typeof c === 'number' && Number.isInteger(c) ? c : null;
+  return { exposure: exposureFromTags(tags), orientation, compression };
 }

@@ -349,7 +349,7 @@ async function measureInner(
     // measured peaks at the edge, and their limits are tens of % (lot study: a corner glow's peak
     // measured 89 % instead of 173 % with the wider border).
     const camPerMap = result.geometry?.cameraPxPerMapPx ?? null;
-    const isJpeg = result.decode?.format === 'jpeg';
+    const isJpeg = result.decode?.jpegCoded ?? false;
     const ringMapPx = isJpeg && camPerMap && opts.pattern !== 'black' ? 8 / camPerMap : 0;
     // An edge bowed by lens distortion (or a curved panel) leaves the straight outline by up to its
     // sagitta, inside or out: the border reaches that much further, or the bezel shows as a dark line.

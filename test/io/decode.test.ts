@@ -123,7 +123,7 @@ describe('decode agrees with jimp (independent pure-JavaScript decoders)', () =>
     // PNG is lossless: both decoders must return the very same codes (PNG spec), so the linear
     // values must equal the sRGB decode of jimp's codes exactly (float32 of the same double).
     for (let i = 0; i < ref.rgb.length; i++) expect(d.image.data[i]).toBe(SRGB_LUT_8[ref.rgb[i]!]);
-    expect(d.info).toEqual({ format: 'png', width: W, height: H, bitDepth: 8, channels: 3, transfer: 'srgb', scale: 1, jpegSamples: null, levelStepCodes: 1 });
+    expect(d.info).toEqual({ format: 'png', width: W, height: H, bitDepth: 8, channels: 3, transfer: 'srgb', scale: 1, jpegSamples: null, levelStepCodes: 1, jpegCoded: false });
     expect(d.method).toBe('full');
   });
 
@@ -203,6 +203,16 @@ describe('layouts and depths', () => {
     expect(srgb.info.transfer).toBe('srgb');
     // float32 storage: relative rounding 6e-8 (IEEE 754 single)
     for (let i = 0; i < codes.length; i += 7) expect(Math.abs(srgb.image.data[i]! - srgbDecode(codes[i]! / 65535))).toBeLessThan(1e-7);
+  });
+
+  it('marks pixels JPEG coded for a JPEG file and a TIFF with JPEG compression, not for an LZW TIFF', async () => {
+    // TIFF 6.0 tag 259 Compression: 5 = LZW, 6 = old-style JPEG, 7 = JPEG (TIFF Technical Note 2)
+    const jpegTif = await rawImage(picture, W, H, 3).tiff({ compression: 'jpeg', quality: 80 }).toBuffer();
+    const lzwTif = await rawImage(picture, W, H, 3).tiff({ compression: 'lzw' }).toBuffer();
+    const jpg = await rawImage(picture, W, H, 3).jpeg({ quality: 90 }).toBuffer();
+    expect((await decodePhotoBuffer(jpegTif, 'j.tif')).info.jpegCoded).toBe(true);
+    expect((await decodePhotoBuffer(lzwTif, 'l.tif')).info.jpegCoded).toBe(false);
+    expect((await decodePhotoBuffer(jpg, 'j.jpg')).info.jpegCoded).toBe(true);
   });
 
   it('16-bit TIFF and 8-bit lossless WebP keep their code values (lossless formats)', async () => {

@@ -221,7 +221,7 @@ export function fakePhoto(spec: FakePhotoSpec, index: number, mapW = 600): { pho
     status: spec.status ?? 'ok',
     error: spec.status === 'error' ? 'panel signal lost in the noise floor' : null,
     errorCode: spec.status === 'error' ? 'too-dark' : null,
-    decode: { format: 'jpeg', width: 6000, height: 4000, bitDepth: 8, channels: 3, transfer: 'srgb', scale: 4, jpegSamples: 'float', levelStepCodes: 0.375 },
+    decode: { format: 'jpeg', width: 6000, height: 4000, bitDepth: 8, channels: 3, transfer: 'srgb', scale: 4, jpegSamples: 'float', levelStepCodes: 0.375, jpegCoded: true },
     exposure: {
       make: 'FakeCam',
       model: 'Model 7',
