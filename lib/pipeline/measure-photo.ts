@@ -209,6 +209,19 @@ function quadAspect(c: Corners): number {
   return w / h;
 }
 
+/** Outline and size of opposite orientation, each at least QUARTER_TURN_ASPECT from square (a 16:9 or
+ *  4:3 panel seen with a quarter turn reads 0.56 or 0.75 against 1.78 or 1.33; perspective changes an
+ *  outline's aspect by far less than that ratio), or null. */
+const QUARTER_TURN_ASPECT = 1.2;
+export function quarterTurn(seenAspect: number, givenAspect: number): { seen: string; given: string } | null {
+  const k = QUARTER_TURN_ASPECT;
+  const name = (a: number) => (a > 1 ? 'landscape' : 'portrait');
+  if ((seenAspect < 1 / k && givenAspect > k) || (seenAspect > k && givenAspect < 1 / k)) {
+    return { seen: `${name(seenAspect)} (${seenAspect.toFixed(2)})`, given: `${name(givenAspect)} (${givenAspect.toFixed(2)})` };
+  }
+  return null;
+}
+
 function quadWidthPx(c: Corners): number {
   const d = (a: Point, b: Point) => Math.hypot(a[0] - b[0], a[1] - b[1]);
   return Math.max(d(c[0], c[1]), d(c[3], c[2]));
@@ -540,6 +553,24 @@ async function measureCamera(
       }
     } else {
       throw findError ?? new EvenfieldError('no-panel', 'no panel outline found', file);
+    }
+  }
+  // A panel size given landscape for an outline seen portrait (or the other way round): the photo is
+  // turned a quarter against the panel and no EXIF orientation says so (or the size was given the wrong
+  // way round). Mapping the outline onto the size as it stands would stretch the panel about threefold;
+  // the outline's long side is taken as the panel's long side instead.
+  if (opts.panelSizeMm) {
+    const turn = quarterTurn(quadAspect(cornersWork), opts.panelSizeMm.width / opts.panelSizeMm.height);
+    if (turn && geometrySource === 'manual') {
+      result.warnings.push(
+        `the corners given outline a ${turn.seen} panel but the panel size is ${turn.given}: the corners are used as given (top-left first), so the map stretches the panel; give them starting from the panel's own top-left, or the size the other way round`,
+      );
+    } else if (turn) {
+      cornersWork = [cornersWork[3], cornersWork[0], cornersWork[1], cornersWork[2]];
+      result.warnings.push(
+        `the outline is ${turn.seen} but the panel size is ${turn.given}: the photo is turned a quarter against the panel (no EXIF orientation says so), so the panel's top is taken to be the photo's left side; ` +
+          'if it is the right side, positions on the panel are turned 180°. Rotate the photo upright, or give the size the other way round for a panel mounted that way',
+      );
     }
   }
   const cornersFull = cornersWork.map((p) => toFull(p, scale)) as Corners;

@@ -7,6 +7,7 @@ import sharp from 'sharp';
 import { describe, expect, it } from 'vitest';
 import { randomScene, renderPhoto } from '../../fixtures/generator/index.js';
 import { DEFAULT_MEASURE_OPTIONS, measurePhoto, orientCorners } from '../../lib/pipeline/index.js';
+import { quarterTurn } from '../../lib/pipeline/measure-photo.js';
 import type { Corners } from '../../lib/types.js';
 
 const dir = mkdtempSync(join(tmpdir(), 'ef-pipe-'));
@@ -90,6 +91,47 @@ describe('measurePhoto', () => {
     expect(m.result.decode?.jpegCoded).toBe(true);
     const nearEdge = m.result.blobs!.filter((b) => Math.min(b.u, 1 - b.u, b.v, 1 - b.v) < 0.02);
     expect(nearEdge).toEqual([]);
+  });
+
+  it('takes a photo turned a quarter against the panel size (no EXIF orientation) without stretching the panel', async () => {
+    // the demo's HX27-3104 (a cloud planted, fixtures/demo/truth/planted.md) turned 90° clockwise and
+    // half a turn, pixels rotated and no orientation tag. The quarter-turned outline is portrait against
+    // a landscape size: its long side is taken as the panel's width, the top as the photo's left, which
+    // for a clockwise quarter turn is the half-turned view. Before, the outline was mapped onto the
+    // size as it stood: the panel stretched about threefold, the cloud at (0.60, 0.35) instead.
+    const src = join(__dirname, '..', '..', 'fixtures', 'demo', 'HX27-3104_white.jpg');
+    const quarter = join(dir, 'Q1_white.jpg');
+    const half = join(dir, 'Q2_white.jpg');
+    await sharp(src).rotate(90).jpeg({ quality: 95 }).toFile(quarter);
+    await sharp(src).rotate(180).jpeg({ quality: 95 }).toFile(half);
+    const opts = {
+      ...DEFAULT_MEASURE_OPTIONS,
+      pattern: 'white' as const,
+      patternLevel: null,
+      panelSizeMm: { width: 597.9, height: 336.3 },
+      grid: { layout: 9 as const, placement: 'cells' as const, insetFraction: 0.1, spotRadiusPct: 2 },
+      artifacts: false,
+    };
+    const q = (await measurePhoto(quarter, opts)).result;
+    const h = (await measurePhoto(half, opts)).result;
+    expect(q.warnings.some((w) => w.includes('the photo is turned a quarter against the panel'))).toBe(true);
+    expect(h.warnings.some((w) => w.includes('turned a quarter'))).toBe(false);
+    const cq = q.blobs!.find((b) => b.kind === 'cloud')!;
+    const ch = h.blobs!.find((b) => b.kind === 'cloud')!;
+    // the same panel either way: the cloud at the same place (within 2 % of the panel) and of the same
+    // area (within 10 %: the two photos are resampled and coded differently), the same uniformity
+    // (within the criteria's 1-point allowance, common practice)
+    expect(Math.hypot(cq.u - ch.u, cq.v - ch.v)).toBeLessThan(0.02);
+    expect(Math.abs(cq.areaMm2 / ch.areaMm2 - 1)).toBeLessThan(0.1);
+    expect(Math.abs(q.uniformity!.minOverMaxPct - h.uniformity!.minOverMaxPct)).toBeLessThan(1);
+  });
+
+  it('tells a quarter turn only from outlines clearly of the other orientation', () => {
+    expect(quarterTurn(0.57, 1.78)).not.toBeNull();
+    expect(quarterTurn(1.7, 0.6)).not.toBeNull();
+    // a 16:9 panel seen at a steep angle, or a square one: not a quarter turn
+    expect(quarterTurn(1.3, 1.78)).toBeNull();
+    expect(quarterTurn(0.9, 1.0)).toBeNull();
   });
 
   it('says from what size it resolves mura features when the photo gives the panel too few pixels', async () => {
