@@ -678,28 +678,42 @@ export function edgeBow(fit: EdgeFit): EdgeBow {
   }
   const none: EdgeBow = { origin: origin ?? [0, 0], a: 0, b: 0, c: 0, bowPx: 0 };
   if (ss.length < 6) return none;
-  // normal equations of the quadratic in s centred and scaled on the span (well conditioned)
   const lo = Math.min(...ss);
   const hi = Math.max(...ss);
+  const q = quadraticFit(ss, ds, ws);
+  if (!q) return none;
+  const [a, b, c] = q;
+  return { origin: origin!, a, b, c, bowPx: Math.abs(c) * ((hi - lo) / 2) ** 2 };
+}
+
+/**
+ * Weighted least-squares quadratic y = c0 + c1 x + c2 x² (weights 1 when not given), solved on x centred
+ * and scaled to its span for conditioning; null for fewer than 3 points or a singular system.
+ */
+export function quadraticFit(x: readonly number[], y: readonly number[], w?: readonly number[]): [number, number, number] | null {
+  if (x.length < 3) return null;
+  const lo = Math.min(...x);
+  const hi = Math.max(...x);
   const mid = (lo + hi) / 2;
   const half = Math.max((hi - lo) / 2, 1e-9);
   const A = [0, 0, 0, 0, 0, 0, 0, 0, 0];
   const r = [0, 0, 0];
-  for (let k = 0; k < ss.length; k++) {
-    const t = (ss[k] - mid) / half;
+  for (let k = 0; k < x.length; k++) {
+    const wk = w ? w[k] : 1;
+    const t = (x[k] - mid) / half;
     const row = [1, t, t * t];
     for (let i = 0; i < 3; i++) {
-      r[i] += ws[k] * row[i] * ds[k];
-      for (let j = 0; j < 3; j++) A[3 * i + j] += ws[k] * row[i] * row[j];
+      r[i] += wk * row[i] * y[k];
+      for (let j = 0; j < 3; j++) A[3 * i + j] += wk * row[i] * row[j];
     }
   }
   const q = solve3(A, r);
-  if (!q) return none;
-  // back to s: d = q0 + q1 t + q2 t², t = (s - mid) / half
-  const c = q[2] / (half * half);
-  const b = q[1] / half - 2 * c * mid;
-  const a = q[0] - (q[1] * mid) / half + c * mid * mid;
-  return { origin: origin!, a, b, c, bowPx: Math.abs(q[2]) };
+  if (!q) return null;
+  // back to x: y = q0 + q1 t + q2 t², t = (x - mid) / half
+  const c2 = q[2] / (half * half);
+  const c1 = q[1] / half - 2 * c2 * mid;
+  const c0 = q[0] - (q[1] * mid) / half + c2 * mid * mid;
+  return [c0, c1, c2];
 }
 
 /**

@@ -11,6 +11,7 @@ export {
   type ReprojectionError,
 } from './homography.js';
 export { findPanel, type FindPanelOptions, type PanelFind } from './findPanel.js';
+export { quadraticFit } from './edges.js';
 export {
   checkQuadrilateral,
   orderCorners,

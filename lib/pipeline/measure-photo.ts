@@ -4,7 +4,7 @@
 import { decodePhotoBuffer, readInputFile } from '../io/index.js';
 import type { DecodedPhoto } from '../io/index.js';
 import { SRGB_TO_XYZ, srgbCodeStepPct, srgbEncode } from '../photometry/index.js';
-import { applyHomography, findPanel, panelToCamera, rectifyRgb, estimatePose } from '../geometry/index.js';
+import { applyHomography, findPanel, multiply3, panelToCamera, rectifyRgb, estimatePose } from '../geometry/index.js';
 import { applyCoarseTransmissionWithLuminance, channelTransmissionFromProfile, coarseCornerTransmission, coarseTransmission, coarseTransmissionAt, cos4Transmission, profileMismatch } from '../falloff/index.js';
 import type { CoarseTransmission } from '../falloff/index.js';
 import type { FalloffProfile } from '../falloff/index.js';
@@ -79,14 +79,7 @@ export function lensFieldOf(corners: Corners, imageWidth: number, imageHeight: n
   const size = [1 / widthMm, 0, 0, 0, 1 / heightMm, 0, 0, 0, 1];
   // the 35 mm frame's half-diagonal, 21.63 mm, over the equivalent focal length
   const tan = focal35mm ? Math.hypot(36, 24) / 2 / focal35mm : null;
-  return { panelMmToImage: times3(times3(centring, panelToCamera(corners)), size), tan };
-}
-
-/** Product of two row-major 3 x 3 matrices. */
-function times3(a: readonly number[], b: readonly number[]): number[] {
-  const out = new Array<number>(9).fill(0);
-  for (let i = 0; i < 3; i++) for (let j = 0; j < 3; j++) for (let k = 0; k < 3; k++) out[3 * i + j] += a[3 * i + k] * b[3 * k + j];
-  return out;
+  return { panelMmToImage: multiply3(multiply3(centring, panelToCamera(corners)), size), tan };
 }
 
 function withoutBorder(valid: Uint8Array, w: number, h: number, border: number): Uint8Array {

@@ -16,7 +16,7 @@
 
 import { Matrix, solve } from 'ml-matrix';
 import { EvenfieldError, type ErrorCode } from '../errors.js';
-import { cornerAngles, isConvexClockwise, panelToCamera, rectifyPlane, signedArea } from '../geometry/index.js';
+import { cornerAngles, isConvexClockwise, panelToCamera, quadraticFit, rectifyPlane, signedArea } from '../geometry/index.js';
 import { srgbDecode, srgbEncode } from '../photometry/index.js';
 import type { Corners, Pattern, Plane, Point, RgbImage } from '../types.js';
 
@@ -364,20 +364,17 @@ export function edgeWidthPx(lum: Plane, a: Point, b: Point): number | null {
         t50.push(c);
       }
     }
-    const shiftAt = quadraticThrough(at, t50);
+    const shift = at.length >= 6 ? quadraticFit(at, t50) : null;
     const prof = new Float64Array(nb);
     const cnt = new Float64Array(nb);
-    for (let k = 0; k < places; k++) sample(k, shiftAt ? shiftAt((k + 0.5) / places - 0.5) : 0, prof, cnt);
+    for (let k = 0; k < places; k++) {
+      const x = (k + 0.5) / places - 0.5;
+      sample(k, shift ? shift[0] + shift[1] * x + shift[2] * x * x : 0, prof, cnt);
+    }
     for (let i = 0; i < nb; i++) prof[i] = cnt[i] > 0 ? prof[i] / cnt[i] : Number.NaN;
-    const outer: number[] = [];
-    const inner: number[] = [];
-    const q = Math.floor(nb / 4);
-    for (let i = 0; i < q; i++) if (Number.isFinite(prof[i])) outer.push(prof[i]);
-    for (let i = nb - q; i < nb; i++) if (Number.isFinite(prof[i])) inner.push(prof[i]);
-    if (outer.length < q / 2 || inner.length < q / 2) return null;
-    const lo = medianOf(outer);
-    const hi = medianOf(inner);
-    if (!(hi > 1.5 * lo && hi > 0)) return null;
+    const levels = stepLevels(prof);
+    if (!levels) return null;
+    const { lo, hi } = levels;
     const l10 = lo + 0.1 * (hi - lo);
     const l90 = lo + 0.9 * (hi - lo);
     const mid = Math.round(R / step);
@@ -419,9 +416,9 @@ function crossing(prof: Float64Array, i: number, dir: number, level: number, ste
   return t(i) + dir * step * Math.max(0, Math.min(1, f));
 }
 
-/** Position (px from the profile's middle) of the 50 % crossing nearest the middle, levels from the
- *  outer quarters; null when the step is weak or not crossed. */
-function halfCrossing(prof: Float64Array, step: number, R: number): number | null {
+/** An edge profile's outside and inside levels: the medians of its outer quarters; null when either
+ *  quarter is mostly off the image or the step is weak (inside under 1.5 times outside). */
+function stepLevels(prof: Float64Array): { lo: number; hi: number } | null {
   const nb = prof.length;
   const q = Math.floor(nb / 4);
   const outer: number[] = [];
@@ -431,8 +428,16 @@ function halfCrossing(prof: Float64Array, step: number, R: number): number | nul
   if (outer.length < q / 2 || inner.length < q / 2) return null;
   const lo = medianOf(outer);
   const hi = medianOf(inner);
-  if (!(hi > 1.5 * lo && hi > 0)) return null;
-  const l50 = 0.5 * (lo + hi);
+  return hi > 1.5 * lo && hi > 0 ? { lo, hi } : null;
+}
+
+/** Position (px from the profile's middle) of the 50 % crossing nearest the middle, levels from the
+ *  outer quarters; null when the step is weak or not crossed. */
+function halfCrossing(prof: Float64Array, step: number, R: number): number | null {
+  const nb = prof.length;
+  const levels = stepLevels(prof);
+  if (!levels) return null;
+  const l50 = 0.5 * (levels.lo + levels.hi);
   let best: number | null = null;
   for (let i = 0; i + 1 < nb; i++) {
     const p0 = prof[i];
@@ -442,30 +447,6 @@ function halfCrossing(prof: Float64Array, step: number, R: number): number | nul
     if (best === null || Math.abs(t) < Math.abs(best)) best = t;
   }
   return best;
-}
-
-/** Least-squares quadratic y(x) through the points (at least 6), or null. */
-function quadraticThrough(x: number[], y: number[]): ((x: number) => number) | null {
-  if (x.length < 6) return null;
-  const A = [0, 0, 0, 0, 0, 0, 0, 0, 0];
-  const r = [0, 0, 0];
-  for (let k = 0; k < x.length; k++) {
-    const row = [1, x[k], x[k] * x[k]];
-    for (let i = 0; i < 3; i++) {
-      r[i] += row[i] * y[k];
-      for (let j = 0; j < 3; j++) A[3 * i + j] += row[i] * row[j];
-    }
-  }
-  const det = (m: number[]) => m[0] * (m[4] * m[8] - m[5] * m[7]) - m[1] * (m[3] * m[8] - m[5] * m[6]) + m[2] * (m[3] * m[7] - m[4] * m[6]);
-  const D = det(A);
-  if (!(Math.abs(D) > 1e-300)) return null;
-  const c: number[] = [];
-  for (let col = 0; col < 3; col++) {
-    const M = A.slice();
-    for (let i = 0; i < 3; i++) M[3 * i + col] = r[i];
-    c.push(det(M) / D);
-  }
-  return (t) => c[0] + c[1] * t + c[2] * t * t;
 }
 
 function medianOf(v: number[]): number {

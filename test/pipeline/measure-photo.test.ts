@@ -6,11 +6,21 @@ import { join } from 'node:path';
 import sharp from 'sharp';
 import { describe, expect, it } from 'vitest';
 import { randomScene, renderPhoto } from '../../fixtures/generator/index.js';
-import { DEFAULT_MEASURE_OPTIONS, measurePhoto, orientCorners } from '../../lib/pipeline/index.js';
+import { DEFAULT_MEASURE_OPTIONS, measurePhoto, orientCorners, type MeasureOptions } from '../../lib/pipeline/index.js';
 import { quarterTurn } from '../../lib/pipeline/measure-photo.js';
 import type { Corners } from '../../lib/types.js';
 
 const dir = mkdtempSync(join(tmpdir(), 'ef-pipe-'));
+
+/** A demo photo's white field: the demo panel's size, a 9-point grid, no report images. */
+const DEMO_WHITE: MeasureOptions = {
+  ...DEFAULT_MEASURE_OPTIONS,
+  pattern: 'white',
+  patternLevel: null,
+  panelSizeMm: { width: 597.9, height: 336.3 },
+  grid: { layout: 9, placement: 'cells', insetFraction: 0.1, spotRadiusPct: 2 },
+  artifacts: false,
+};
 
 async function photo(seed: number, output: 'png16' | 'jpeg') {
   const spec = randomScene(seed, { width: 1200, height: 900, features: [0, 0], k1: [0, 0], focal35: [50, 50] });
@@ -59,14 +69,7 @@ describe('measurePhoto', () => {
     // The generator planted nothing on this panel (fixtures/demo/truth/planted.md); with the edge border
     // one block wider on JPEG input nothing is found within 2 % of an edge (without it: a 12 mm "line" of
     // SEMU 1.0 along the bottom edge).
-    const m = await measurePhoto(join(__dirname, '..', '..', 'fixtures', 'demo', 'HX27-3101_white.jpg'), {
-      ...DEFAULT_MEASURE_OPTIONS,
-      pattern: 'white',
-      patternLevel: null,
-      panelSizeMm: { width: 597.9, height: 336.3 },
-      grid: { layout: 9, placement: 'cells', insetFraction: 0.1, spotRadiusPct: 2 },
-      artifacts: false,
-    });
+    const m = await measurePhoto(join(__dirname, '..', '..', 'fixtures', 'demo', 'HX27-3101_white.jpg'), DEMO_WHITE);
     expect(m.result.status).toBe('ok');
     expect(m.result.decode?.jpegSamples).toBe('float');
     const nearEdge = m.result.blobs!.filter((b) => Math.min(b.u, 1 - b.u, b.v, 1 - b.v) < 0.02);
@@ -78,14 +81,7 @@ describe('measurePhoto', () => {
     // 9 mm dark "line" of SEMU 3.2 along the bottom edge)
     const tif = join(dir, 'HX27-3101_white.tif');
     await sharp(join(__dirname, '..', '..', 'fixtures', 'demo', 'HX27-3101_white.jpg')).tiff({ compression: 'jpeg', quality: 80 }).toFile(tif);
-    const m = await measurePhoto(tif, {
-      ...DEFAULT_MEASURE_OPTIONS,
-      pattern: 'white',
-      patternLevel: null,
-      panelSizeMm: { width: 597.9, height: 336.3 },
-      grid: { layout: 9, placement: 'cells', insetFraction: 0.1, spotRadiusPct: 2 },
-      artifacts: false,
-    });
+    const m = await measurePhoto(tif, DEMO_WHITE);
     expect(m.result.status).toBe('ok');
     expect(m.result.decode?.format).toBe('tiff');
     expect(m.result.decode?.jpegCoded).toBe(true);
@@ -104,16 +100,8 @@ describe('measurePhoto', () => {
     const half = join(dir, 'Q2_white.jpg');
     await sharp(src).rotate(90).jpeg({ quality: 95 }).toFile(quarter);
     await sharp(src).rotate(180).jpeg({ quality: 95 }).toFile(half);
-    const opts = {
-      ...DEFAULT_MEASURE_OPTIONS,
-      pattern: 'white' as const,
-      patternLevel: null,
-      panelSizeMm: { width: 597.9, height: 336.3 },
-      grid: { layout: 9 as const, placement: 'cells' as const, insetFraction: 0.1, spotRadiusPct: 2 },
-      artifacts: false,
-    };
-    const q = (await measurePhoto(quarter, opts)).result;
-    const h = (await measurePhoto(half, opts)).result;
+    const q = (await measurePhoto(quarter, DEMO_WHITE)).result;
+    const h = (await measurePhoto(half, DEMO_WHITE)).result;
     expect(q.warnings.some((w) => w.includes('the photo is turned a quarter against the panel'))).toBe(true);
     expect(h.warnings.some((w) => w.includes('turned a quarter'))).toBe(false);
     const cq = q.blobs!.find((b) => b.kind === 'cloud')!;
