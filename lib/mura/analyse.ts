@@ -214,18 +214,18 @@ const LENS_TANS = [0.3, 0.45, 0.6, 0.75, 0.9, 1.05, 1.2];
 const LENS_POWER_RANGE: [number, number] = [0, 3];
 
 /**
- * A field photographed without a lens falloff correction still holds the lens's falloff, radial
- * about the image centre: seen on the panel, deepest towards the corners farthest from the image
- * centre, and of a profile no low-order surface in panel coordinates follows (the cos⁴ law of a 26 mm
- * lens is 1 / (1 + x)² with x up to about 0.5 on the panel, a slowly converging series). Left to the
- * rounds it read as faint clouds and corner spots on clean generated fields, and as edge glows on black
- * ones (whose surface is of order 2). Here it is estimated from
- * the field itself and divided out: the logarithm of the level (where the falloff is a factor, so a term
- * of its own) is fitted robustly by an order-2 surface in panel coordinates plus the cos⁴ law's logarithm
- * at each point's place in the photo, with a free power (fitBackground's lens term: what the camera
- * corrected of it, or what the lens barrel adds). The profile's width comes from the photo's focal
- * length, or without one is chosen among LENS_TANS by the fit's error. The field is divided by the lens term's part only: the
- * polynomial's part stays for the rounds to fit again with the features masked.
+ * A field photographed without a lens falloff correction still holds the lens's falloff, radial about
+ * the image centre: seen on the panel, deepest towards the corners farthest from the image centre, and
+ * of a profile no low-order surface in panel coordinates follows (the cos⁴ law of a 26 mm lens is
+ * 1 / (1 + x)² with x up to about 0.5 on the panel, a slowly converging series). Left to the rounds it
+ * read as faint clouds and corner spots on clean generated fields, and as edge glows on black ones
+ * (whose surface is of order 2). Here it is estimated from the field itself and divided out: the
+ * logarithm of the level (where the falloff is a factor, so a term of its own) is fitted robustly by an
+ * order-2 surface in panel coordinates plus the cos⁴ law's logarithm at each point's place in the photo,
+ * with a free power (fitBackground's lens term: what the camera corrected of it, or what the lens
+ * barrel adds). The profile's width comes from the photo's focal length, or without one is chosen among
+ * LENS_TANS by the fit's error. The field is divided by the lens term's part only: the polynomial's part
+ * stays for the rounds to fit again with the features masked.
  * Returns the divided raster and the range of the factor divided out over the panel (% of the level at
  * the image centre), or null when no panel pixel has data or no fit's power is in LENS_POWER_RANGE.
  */

@@ -217,7 +217,7 @@ function gatherCells(work: WorkRaster, mask: Uint8Array | null, cellPx: number, 
 
 /**
  * The fit's terms: Legendre products of order `order`, tile offsets (tile 0 the reference), bumps,
- * radial terms and lens terms, in that order. Kept in one object of fixed shape and used by module-level functions
+ * radial terms and the lens term, in that order. Kept in one object of fixed shape and used by module-level functions
  * (closures made anew on every fit would each be compiled anew by V8).
  */
 interface Terms {
@@ -540,7 +540,7 @@ export function fitBackground(
   let lensPart: Float32Array | null = null;
   if (T.lens !== null) {
     lensPart = new Float32Array(w * h);
-    addLensTerms(T, coef, lensPart);
+    writeLensPart(T, coef, lensPart);
     for (let i = 0; i < B.length; i++) B[i] += lensPart[i];
   }
 
@@ -578,7 +578,7 @@ export function fitBackground(
   };
 }
 
-/** The fitted surface (polynomial and radial terms; tile offsets, bumps and lens terms left out) at working resolution. */
+/** The fitted surface (polynomial and radial terms; tile offsets, bumps and the lens term left out) at working resolution. */
 function evaluateSurface(T: Terms, coef: Float64Array): Float32Array {
   const { w, h, order, px, py, ti, tj } = T;
   const B = new Float32Array(w * h);
@@ -615,7 +615,7 @@ function evaluateSurface(T: Terms, coef: Float64Array): Float32Array {
 }
 
 /** The lens term's part of the surface, written into out. */
-function addLensTerms(T: Terms, coef: Float64Array, out: Float32Array): void {
+function writeLensPart(T: Terms, coef: Float64Array, out: Float32Array): void {
   const L = T.lens!;
   const a = coef[T.nBase + T.bumpList.length + T.nRadial];
   for (let y = 0; y < T.h; y++) for (let x = 0; x < T.w; x++) out[y * T.w + x] = a * lensColumn(L, T.mmPerPx, x, y);

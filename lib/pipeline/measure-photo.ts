@@ -67,7 +67,7 @@ function transmissionOnPanel(t: CoarseTransmission, corners: Corners, nodes: num
 }
 
 /**
- * Panel mm to image coordinates about the image centre in half-diagonals (the lens terms of the mura
+ * Panel mm to image coordinates about the image centre in half-diagonals (the lens term of the mura
  * background): the outline's homography (unit square to image pixels) with the panel's size before it
  * and the centring after it.
  */
