@@ -94,6 +94,10 @@ export interface FlatOptions {
   channelOrder?: number;
   /** 'auto' stores channel models when any channel's shading differs from luminance by more than this, % (default 0.3) */
   channelThresholdPct?: number;
+  /** the frames are refused when the fit leaves more than this rms residual, % (default 2: flat frames of
+   *  a diffuser or a light box leave well under 1 %, the demo's 0.04-0.07 %; a photo of a panel with
+   *  its bezel among them left 14 %; common practice) */
+  maxResidualRmsPct?: number;
 }
 
 export interface FlatCalibration {
@@ -140,6 +144,63 @@ function centralLevel(img: RgbImage): number {
     }
   }
   return s / n;
+}
+
+/**
+ * Frames of an orientation group of three or more whose coarse luminance pattern (32 x 24 block means,
+ * each frame over its own median) departs from the group's block-by-block median by more than 3 % rms
+ * and three times the group's median departure: the frames that are not like the others.
+ */
+function framesUnlikeTheOthers(frames: RgbImage[], orientations: readonly (0 | 180)[], clipLevel: number): number[] {
+  const out: number[] = [];
+  for (const o of new Set(orientations)) {
+    const idx = frames.map((_, k) => k).filter((k) => orientations[k] === o);
+    if (idx.length < 3) continue;
+    const maps = idx.map((k) => coarseLogLuminance(frames[k], 32, 24, clipLevel));
+    const n = maps[0].length;
+    const mid = new Float64Array(n);
+    for (let i = 0; i < n; i++) mid[i] = median(maps.map((m) => m[i]).filter(Number.isFinite));
+    const dev = maps.map((m) => {
+      let ss = 0;
+      let c = 0;
+      for (let i = 0; i < n; i++) {
+        if (!Number.isFinite(m[i]) || !Number.isFinite(mid[i])) continue;
+        ss += (m[i] - mid[i]) ** 2;
+        c++;
+      }
+      return c > 0 ? Math.sqrt(ss / c) : 0;
+    });
+    const typical = median(dev);
+    dev.forEach((d, j) => {
+      if (d > 0.03 && d > 3 * typical) out.push(idx[j]);
+    });
+  }
+  return out.sort((a, b) => a - b);
+}
+
+/** ln(block mean Y / frame median) on a cols x rows grid of blocks; NaN for blocks with clipped pixels. */
+function coarseLogLuminance(img: RgbImage, cols: number, rows: number, clipLevel: number): Float64Array {
+  const { width: w, height: h, data } = img;
+  const sum = new Float64Array(cols * rows);
+  const cnt = new Float64Array(cols * rows);
+  const bad = new Uint8Array(cols * rows);
+  const step = Math.max(1, Math.floor(Math.min(w / cols, h / rows) / 8));
+  for (let y = 0; y < h; y += step) {
+    const by = Math.min(rows - 1, Math.floor((y * rows) / h));
+    for (let x = 0; x < w; x += step) {
+      const bx = Math.min(cols - 1, Math.floor((x * cols) / w));
+      const i = (y * w + x) * 3;
+      const j = by * cols + bx;
+      if (data[i] >= clipLevel || data[i + 1] >= clipLevel || data[i + 2] >= clipLevel) bad[j] = 1;
+      sum[j] += WR * data[i] + WG * data[i + 1] + WB * data[i + 2];
+      cnt[j]++;
+    }
+  }
+  const out = new Float64Array(cols * rows);
+  for (let j = 0; j < out.length; j++) out[j] = !bad[j] && cnt[j] > 0 && sum[j] > 0 ? Math.log(sum[j] / cnt[j]) : Number.NaN;
+  const m = median(Array.from(out).filter(Number.isFinite));
+  for (let j = 0; j < out.length; j++) out[j] -= m;
+  return out;
 }
 
 /** Robust frame-to-frame relative sigma of one pixel value, from pairs of frames (strided sample). */
@@ -710,6 +771,25 @@ export function calibrateFromFlats(frames: RgbImage[], meta: FlatMeta = {}, opts
     used++;
   }
 
+  const residualRmsPct = 100 * Math.sqrt(ss / Math.max(1, used));
+  const maxRms = opts.maxResidualRmsPct ?? 2;
+  const named = framesUnlikeTheOthers(frames, orientations, clipLevel).map((k) => frameName(meta, k));
+  if (residualRmsPct > maxRms) {
+    throw new EvenfieldError(
+      'falloff',
+      `the flat frames do not fit one smooth lens falloff: the fit leaves ${residualRmsPct.toFixed(1)} % rms (largest ${(100 * mx).toFixed(0)} %, limit ${maxRms} %)` +
+        (named.length ? `; unlike the other frames: ${named.join(', ')}` : '') +
+        ': a frame that is not an even flat field (a photo of a panel with its bezel, a shadow, a reflection)? Look at each frame, or calibrate them one at a time',
+      named.length === 1 ? named[0] : null,
+    );
+  }
+
+  if (named.length) {
+    warnings.push(
+      `unlike the other flat frames: ${named.join(', ')} (not an even flat field?); the pixels where it differs were left out as outliers, but check it`,
+    );
+  }
+
   const storedTerms = opts.storedRadialTerms ?? Math.max(5, radialTerms);
   const conv = logRadialToPolynomial(fit.g, storedTerms);
 
@@ -772,7 +852,7 @@ export function calibrateFromFlats(frames: RgbImage[], meta: FlatMeta = {}, opts
       frames: frames.length,
       samples: used,
       rejectedSamples: bl.n - used,
-      residualRmsPct: 100 * Math.sqrt(ss / Math.max(1, used)),
+      residualRmsPct,
       residualMaxPct: 100 * mx,
       removedTiltPct: fit.tilt ? { x: 100 * Math.expm1(2 * fit.tilt[0]), y: 100 * Math.expm1(2 * fit.tilt[1]) } : null,
       radialConversionErrorPct: conv.maxErrorPct,

@@ -134,6 +134,33 @@ describe('calibration from flat frames', () => {
     expect((err as Error).message).toMatch(/f3\.jpg is 30×40 but f1\.jpg is 40×30/);
   });
 
+  it('refuses frames that do not fit one smooth falloff, and names a frame unlike the others', () => {
+    // a photo of a panel among flat frames: a lit rectangle on a dark surround (10 % of the level)
+    const lens: LensSpec = { focal35: 26 };
+    const panelPhoto = (): RgbImage => {
+      const f = frames(lens, [0, 0], 1, 0.01)[0];
+      for (let y = 0; y < H; y++) {
+        for (let x = 0; x < W; x++) {
+          if (x < 60 || x > 300 || y < 50 || y > 220) for (let c = 0; c < 3; c++) f.data[(y * W + x) * 3 + c] *= 0.1;
+        }
+      }
+      return f;
+    };
+    // one flat and the panel photo: a lens falloff cannot explain the step (flat frames leave well under
+    // 1 % rms, common practice), and with two frames none can be told as the odd one
+    const two = [frames(lens, [0, 0], 1)[0], panelPhoto()];
+    expect(() => calibrateFromFlats(two, { names: ['flat.jpg', 'panel.jpg'] })).toThrow(/do not fit one smooth lens falloff: the fit leaves [0-9.]+ % rms/);
+    // three flats and the panel photo: the per-pixel rejection across frames keeps the profile right
+    // (within the 0.3 % of the tests above), and the odd frame is named
+    const four = [...frames(lens, [0, 0], 3), panelPhoto()];
+    const cal = calibrateFromFlats(four, { names: ['f1.jpg', 'f2.jpg', 'f3.jpg', 'panel.jpg'] });
+    expect(cal.warnings.join('\n')).toMatch(/unlike the other flat frames: panel\.jpg \(/);
+    const T = transmissionFromProfile(cal.profile, W, H, 1);
+    expect(maxRelativeError(T, (x, y) => trueT(lens, W, H, x, y))).toBeLessThan(0.003);
+    // good frames only: nothing named
+    expect(calibrateFromFlats(frames(lens, [0, 0], 3)).warnings.join('\n')).not.toMatch(/unlike the other/);
+  });
+
   it('refuses black, clipped or inconsistent input', () => {
     const black = { width: 64, height: 48, data: new Float32Array(64 * 48 * 3) };
     expect(() => calibrateFromFlats([black])).toThrow(/black/);
