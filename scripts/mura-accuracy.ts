@@ -38,6 +38,13 @@ const seedOffset = seedArg ? Number(seedArg.slice('--seeds='.length)) : 0;
 if (!Number.isInteger(seedOffset) || seedOffset < 0 || seedOffset > 900) throw new Error('--seeds=N needs an integer 0..900');
 // --no-falloff: leave the lens falloff in the photo (no correction), as a run without a profile does
 const noFalloff = process.argv.includes('--no-falloff');
+// --distortion=K: photos drawn through a lens with radial distortion K (the generator's
+// CameraSpec.distortion; 0.03 bowed a study panel's edges by 4.8 px in a 2400 x 1600 photo), the panel
+// found by the tool; --found-corners: the panel found by the tool instead of given by the truth's corners
+const distArg = process.argv.find((a) => a.startsWith('--distortion='));
+const distortion = distArg ? Number(distArg.slice('--distortion='.length)) : 0;
+if (!Number.isFinite(distortion) || Math.abs(distortion) > 0.2) throw new Error('--distortion=K needs a number from -0.2 to 0.2');
+const foundCorners = process.argv.includes('--found-corners');
 const cloudSizes = process.argv.includes('--nominal') ? 'nominal' : 'half-peak';
 // --panel=WxH: another panel size in mm (default the generator's 597.9 x 336.3, a 27-inch 16:9 monitor)
 const panelArg = process.argv.find((a) => a.startsWith('--panel='));
@@ -45,7 +52,9 @@ const panelMm = panelArg ? (([w, h]) => ({ width: w, height: h }))(panelArg.slic
 if (panelMm && !(panelMm.width > 0 && panelMm.height > 0)) throw new Error('--panel=WxH needs two sizes in mm, e.g. --panel=708.5x398.5');
 const dir = join(
   '.cache',
-  (process.argv.includes('--nominal') ? 'mura-accuracy-nominal' : 'mura-accuracy') + (panelMm ? `-panel-${panelMm.width}x${panelMm.height}-${width}x${height}` : ''),
+  (process.argv.includes('--nominal') ? 'mura-accuracy-nominal' : 'mura-accuracy') +
+    (panelMm ? `-panel-${panelMm.width}x${panelMm.height}-${width}x${height}` : '') +
+    (distortion ? `-distortion-${distortion}` : ''),
 );
 mkdirSync(dir, { recursive: true });
 
@@ -58,6 +67,7 @@ interface Measured {
 }
 
 async function measure(name: string, spec: PhotoSpec): Promise<Measured> {
+  if (distortion) spec.camera.distortion = distortion;
   // rendered photos are kept (with their truth) and reused: the scenes are deterministic from the seed
   const cached = join(dir, `${name}.jpg`);
   const cachedTruth = join(dir, `${name}.truth.json`);
@@ -84,7 +94,7 @@ async function measure(name: string, spec: PhotoSpec): Promise<Measured> {
     patternLevel: spec.panel.pattern === 'gray' ? 50 : null,
     panelSizeMm: { width: spec.panel.widthMm, height: spec.panel.heightMm },
     grid: { layout: 9, placement: 'cells', insetFraction: 0.1, spotRadiusPct: 2 },
-    corners: truth.corners,
+    corners: distortion || foundCorners ? null : truth.corners,
     falloff: noFalloff ? { kind: 'none' } : { kind: 'cos4', focal35mm: spec.camera.focal35 },
     // the generator renders no angular emission unless asked; the viewing-angle gate is about that
     quality: { ...DEFAULT_QUALITY_LIMITS, maxViewAngleDeg: 90, warnViewAngleDeg: 90 },

@@ -138,6 +138,41 @@ describe('renderPhoto', () => {
   });
 });
 
+describe('radial lens distortion', () => {
+  it('moves the truth corners by the model and draws the panel where they say (Brown radial model, first term)', () => {
+    // k > 0: the pixel at radius r shows the pinhole point at r (1 + k r²); a corner's pinhole radius
+    // ru and its distorted radius rd satisfy rd (1 + k rd²) = ru, rd < ru (barrel: pulled inwards)
+    const k = 0.1;
+    const plain = renderPhotoPixels(small({ noise: null }));
+    const bent = renderPhotoPixels(small({ noise: null, camera: { ...small().camera, distortion: k } }));
+    const half = Math.hypot(320, 240) / 2;
+    const r = ([x, y]: [number, number]) => Math.hypot(x - 159.5, y - 119.5) / half;
+    for (let i = 0; i < 4; i++) {
+      const ru = r(plain.truth.corners[i]);
+      const rd = r(bent.truth.corners[i]);
+      expect(rd * (1 + k * rd * rd)).toBeCloseTo(ru, 9);
+      expect(rd).toBeLessThan(ru);
+    }
+    // the rendered panel: the pixel at each distorted corner is only partly covered by the panel (the
+    // corner of an outline covers about a quarter of it), while pixels 6 px inside are lit; had the image
+    // not been resampled, the pinhole corner would lie 4 px or more beyond the moved one
+    const c = bent.truth.corners;
+    const mx = c.reduce((s, p) => s + p[0], 0) / 4;
+    const my = c.reduce((s, p) => s + p[1], 0) / 4;
+    const lum = (x: number, y: number) => bent.image.data[(Math.round(y) * 320 + Math.round(x)) * 3 + 1];
+    for (let i = 0; i < 4; i++) {
+      const [x, y] = c[i];
+      const [px, py] = plain.truth.corners[i];
+      expect(Math.hypot(px - x, py - y)).toBeGreaterThan(4);
+      const ux = (mx - x) / Math.hypot(mx - x, my - y);
+      const uy = (my - y) / Math.hypot(mx - x, my - y);
+      const inside = lum(x + 6 * ux, y + 6 * uy);
+      expect(lum(x, y)).toBeLessThan(0.6 * inside);
+      expect(lum(x - 3 * ux, y - 3 * uy)).toBeLessThan(0.3 * inside);
+    }
+  });
+});
+
 describe('flat frames and shifted sets', () => {
   it('noise-free flat frame: pixel ratio at a 30 degree field angle = cos^4 30 = 0.5625 (field notes §4)', async () => {
     const camera = { width: 400, height: 300, focal35: 24 };
