@@ -202,6 +202,11 @@ function quadAspect(c: Corners): number {
   return w / h;
 }
 
+/** A panel size whose aspect differs from the pose's by more than this share gets a warning. Generated
+ *  photos with an exact focal length give the aspect to 0.1 %; a real camera's 35 mm-equivalent focal
+ *  length in EXIF can be a few percent off (common practice; from memory), which 5 % leaves room for. */
+const ASPECT_MISMATCH = 0.05;
+
 /** Outline and size of opposite orientation, each at least QUARTER_TURN_ASPECT from square (a 16:9 or
  *  4:3 panel seen with a quarter turn reads 0.56 or 0.75 against 1.78 or 1.33; perspective changes an
  *  outline's aspect by far less than that ratio), or null. */
@@ -598,6 +603,15 @@ async function measureCamera(
   if (opts.panelSizeMm) {
     widthMm = opts.panelSizeMm.width;
     heightMm = opts.panelSizeMm.height;
+    // the outline seen through the EXIF focal length gives the panel's own aspect: a size given for
+    // another panel (16:9 for a 16:10 one is 11 % off) would put every area and SEMU on the wrong scale
+    const given = widthMm / heightMm;
+    if (poseAspect !== null && Math.abs(poseAspect / given - 1) > ASPECT_MISMATCH) {
+      result.warnings.push(
+        `the outline seen through the EXIF focal length has an aspect of ${poseAspect.toFixed(3)}, the panel size given ${given.toFixed(3)} ` +
+          `(${widthMm}x${heightMm} mm): check --panel-size, on which every area and SEMU rests`,
+      );
+    }
   } else {
     const aspect = poseAspect ?? quadAspect(cornersWork);
     widthMm = 1000;

@@ -114,6 +114,18 @@ describe('measurePhoto', () => {
     expect(Math.abs(q.uniformity!.minOverMaxPct - h.uniformity!.minOverMaxPct)).toBeLessThan(1);
   });
 
+  it('warns when the panel size given does not have the aspect the outline shows through the EXIF focal length', async () => {
+    // the demo panel is 597.9 x 336.3 mm (16:9, fixtures/demo/truth/planted.md); given as 16:10 (597.9 x
+    // 373.7, 10 % off) the areas and SEMU would rest on the wrong scale. A rectangle seen through a known
+    // focal length gives its own aspect (the pose of a plane from its homography and the focal length,
+    // common practice)
+    const src = join(__dirname, '..', '..', 'fixtures', 'demo', 'HX27-3101_white.jpg');
+    const right = (await measurePhoto(src, { ...DEMO_WHITE, mura: false })).result;
+    const wrong = (await measurePhoto(src, { ...DEMO_WHITE, mura: false, panelSizeMm: { width: 597.9, height: 373.7 } })).result;
+    expect(right.warnings.filter((w) => w.includes('check --panel-size'))).toEqual([]);
+    expect(wrong.warnings.some((w) => /has an aspect of 1\.7[0-9]+, the panel size given 1\.600/.test(w))).toBe(true);
+  });
+
   it('tells a quarter turn only from outlines clearly of the other orientation', () => {
     expect(quarterTurn(0.57, 1.78)).not.toBeNull();
     expect(quarterTurn(1.7, 0.6)).not.toBeNull();
