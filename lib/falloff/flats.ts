@@ -777,7 +777,7 @@ export function calibrateFromFlats(frames: RgbImage[], meta: FlatMeta = {}, opts
   if (residualRmsPct > maxRms) {
     throw new EvenfieldError(
       'falloff',
-      `the flat frames do not fit one smooth lens falloff: the fit leaves ${residualRmsPct.toFixed(1)} % rms (largest ${(100 * mx).toFixed(0)} %, limit ${maxRms} %)` +
+      `the flat frames do not fit one smooth lens falloff: the fit leaves ${residualRmsPct.toFixed(1)} % rms (largest ${(100 * mx).toFixed(0)} %), over the limit of ${maxRms} % rms` +
         (named.length ? `; unlike the other frames: ${named.join(', ')}` : '') +
         ': a frame that is not an even flat field (a photo of a panel with its bezel, a shadow, a reflection)? Look at each frame, or calibrate them one at a time',
       named.length === 1 ? named[0] : null,
@@ -786,7 +786,7 @@ export function calibrateFromFlats(frames: RgbImage[], meta: FlatMeta = {}, opts
 
   if (named.length) {
     warnings.push(
-      `unlike the other flat frames: ${named.join(', ')} (not an even flat field?); the pixels where it differs were left out as outliers, but check it`,
+      `unlike the other flat frames: ${named.join(', ')} (not an even flat field?); the pixels where ${named.length > 1 ? 'they differ' : 'it differs'} were left out as outliers, but check ${named.length > 1 ? 'them' : 'it'}`,
     );
   }
 
