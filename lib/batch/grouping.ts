@@ -5,6 +5,7 @@ import { readdirSync, readFileSync, statSync } from 'node:fs';
 import { basename, dirname, extname, isAbsolute, join, relative, resolve, sep } from 'node:path';
 import { parse } from 'csv-parse/sync';
 import { EvenfieldError } from '../errors.js';
+import { CAMERA_RAW_EXTENSIONS } from '../io/index.js';
 import type { Corners, Pattern } from '../types.js';
 
 export const IMAGE_EXTENSIONS = new Set(['.jpg', '.jpeg', '.png', '.tif', '.tiff', '.webp']);
@@ -55,10 +56,14 @@ export function parseFileName(file: string): { panel: string; pattern: Pattern; 
   return { panel: stem.slice(0, i), ...p };
 }
 
-/** Walk files and folders (recursively) and return image files in a stable order. */
-export function collectImages(inputs: string[]): { files: string[]; missing: string[] } {
+/**
+ * Walk files and folders (recursively) and return image files in a stable order. Camera raw files in
+ * folders are counted, not listed (raw + JPEG pairs are common; the JPEGs are measured).
+ */
+export function collectImages(inputs: string[]): { files: string[]; missing: string[]; rawSkipped: number } {
   const files: string[] = [];
   const missing: string[] = [];
+  let rawSkipped = 0;
   const walk = (p: string) => {
     let st;
     try {
@@ -83,11 +88,12 @@ export function collectImages(inputs: string[]): { files: string[]; missing: str
           if (n === 'flats' || n === 'truth') continue;
           walk(full);
         } else if (IMAGE_EXTENSIONS.has(extname(n).toLowerCase())) files.push(full);
+        else if (CAMERA_RAW_EXTENSIONS.has(extname(n).toLowerCase())) rawSkipped++;
       }
     } else files.push(p);
   };
   for (const i of inputs) walk(i);
-  return { files: [...new Set(files)], missing };
+  return { files: [...new Set(files)], missing, rawSkipped };
 }
 
 const PATTERN_ORDER: Record<Pattern, number> = { white: 0, gray: 1, red: 2, green: 3, blue: 4, black: 5 };

@@ -6,6 +6,7 @@ import yargs from 'yargs';
 import { hideBin } from 'yargs/helpers';
 import { EvenfieldError, EXIT, isEvenfieldError } from '../errors.js';
 import { collectImages, groupByManifest, groupByName, parseCornersText } from '../batch/grouping.js';
+import { CAMERA_RAW_ADVICE } from '../io/index.js';
 import type { GroupingResult } from '../batch/grouping.js';
 import { defaultJobs, packageRoot, runBatch } from '../batch/run.js';
 import type { RunContext } from '../batch/panel-task.js';
@@ -101,9 +102,12 @@ async function inspect(a: InspectArgs): Promise<number> {
     grouping = groupByManifest(a.manifest);
   } else {
     if (a.paths.length === 0) throw new EvenfieldError('usage', 'give photos or folders to inspect (or --manifest FILE)');
-    const { files, missing } = collectImages(a.paths);
+    const { files, missing, rawSkipped } = collectImages(a.paths);
     if (missing.length > 0) throw new EvenfieldError('not-found', 'no such file or folder', missing[0]);
-    if (files.length === 0) throw new EvenfieldError('usage', `no photos (.jpg, .png, .tif, .webp) found in ${a.paths.join(', ')}`);
+    if (files.length === 0) {
+      const raws = rawSkipped > 0 ? ` (only ${rawSkipped} camera raw file${rawSkipped > 1 ? 's' : ''}: ${CAMERA_RAW_ADVICE})` : '';
+      throw new EvenfieldError('usage', `no photos (.jpg, .png, .tif, .webp) found in ${a.paths.join(', ')}${raws}`);
+    }
     grouping = groupByName(files);
   }
   if (corners) for (const g of grouping.panels) for (const p of g.photos) p.corners ??= corners;

@@ -34,7 +34,7 @@ import { EvenfieldError } from '../errors.js';
 import { SRGB_TO_XYZ, decodeLut } from '../photometry/index.js';
 import { readExif } from './exif.js';
 import { readInputFile, sha256OfBuffer } from './files.js';
-import { describeDecodeFailure, describeStart, formatName, sniffFormat } from './sniff.js';
+import { CAMERA_RAW_ADVICE, cameraRawKind, describeDecodeFailure, describeStart, formatName, sniffFormat } from './sniff.js';
 import { quantiles } from './stats.js';
 import { JpegDataError, decodeJpegFloat, lumaDcQuant } from './jpeg-float.js';
 import { readIccSummary, readPngColourChunks, type IccSummary } from './tags.js';
@@ -155,6 +155,8 @@ interface Plan {
 }
 
 async function readHeader(buf: Buffer, name: string, maxPixels: number): Promise<Plan> {
+  const raw = cameraRawKind(buf, name);
+  if (raw !== null) throw new EvenfieldError('unreadable', `camera raw file (${raw}): ${CAMERA_RAW_ADVICE}`, name);
   const sniffed = sniffFormat(buf);
   if (sniffed === null) throw new EvenfieldError('unreadable', `not an image file (starts with ${describeStart(buf)})`, name);
   if (sniffed.startsWith('other:')) {

@@ -35,6 +35,75 @@ export function sniffFormat(buf: Uint8Array): SniffedFormat | null {
   return null;
 }
 
+/** File name extensions of camera raw formats (any case). */
+export const CAMERA_RAW_EXTENSIONS = new Set([
+  '.dng', '.cr2', '.cr3', '.crw', '.nef', '.nrw', '.arw', '.srf', '.sr2', '.orf', '.rw2', '.raf', '.pef', '.srw',
+  '.x3f', '.3fr', '.iiq', '.erf', '.kdc', '.mrw', '.rwl', '.raw',
+]);
+
+// TIFF tags that mark raw sensor data (TIFF 6.0; TIFF/EP; DNG 1.4)
+const TAG_NEW_SUBFILE_TYPE = 254;
+const TAG_PHOTOMETRIC = 262;
+const TAG_SUB_IFDS = 330;
+const TAG_DNG_VERSION = 50706;
+const PHOTOMETRIC_CFA = 32803;
+const PHOTOMETRIC_LINEAR_RAW = 34892;
+
+/** Tag numbers and short values of a classic TIFF's first directory, or null when it cannot be read. */
+function firstDirectory(b: Uint8Array): Map<number, number> | null {
+  if (b.length < 8) return null;
+  const le = b[0] === 0x49;
+  const view = new DataView(b.buffer, b.byteOffset, b.byteLength);
+  if (view.getUint16(2, le) !== 42) return null;
+  const at = view.getUint32(4, le);
+  if (at + 2 > b.length) return null;
+  const n = view.getUint16(at, le);
+  const tags = new Map<number, number>();
+  for (let i = 0; i < n && at + 2 + i * 12 + 12 <= b.length; i++) {
+    const p = at + 2 + i * 12;
+    const type = view.getUint16(p + 2, le);
+    // the first value when it is stored in the entry itself (SHORT or LONG), else 0
+    const value = type === 3 ? view.getUint16(p + 8, le) : type === 4 ? view.getUint32(p + 8, le) : 0;
+    tags.set(view.getUint16(p, le), value);
+  }
+  return tags;
+}
+
+/**
+ * The kind of camera raw file, from its signature, its first TIFF directory or its name; null for
+ * anything else. A raw file's first image is a small preview the camera rendered (or, for some, the raw
+ * sensor mosaic itself), never linear light an image decoder can give.
+ */
+export function cameraRawKind(buf: Uint8Array, name = ''): string | null {
+  const b = buf;
+  const head = ascii(b, 0, 16);
+  if (head.startsWith('FUJIFILMCCD-RAW')) return 'Fujifilm RAF';
+  if (head.startsWith('FOVb')) return 'Sigma X3F';
+  if (/^(IIRO|IIRS|MMOR)/.test(head)) return 'Olympus ORF';
+  if (head.startsWith('IIU\0')) return 'Panasonic RW2';
+  if (ascii(b, 4, 8) === 'ftyp' && ascii(b, 8, 12) === 'crx ') return 'Canon CR3';
+  if (/^(II\*\0|MM\0\*)/.test(head)) {
+    if (ascii(b, 8, 10) === 'CR') return 'Canon CR2';
+    const tags = firstDirectory(b);
+    if (tags?.has(TAG_DNG_VERSION)) return 'DNG';
+    const photometric = tags?.get(TAG_PHOTOMETRIC);
+    if (photometric === PHOTOMETRIC_CFA || photometric === PHOTOMETRIC_LINEAR_RAW) return 'raw sensor data in TIFF';
+    // a reduced-resolution first image with sub-images: the layout of NEF, ARW, PEF and their kin
+    if (tags && ((tags.get(TAG_NEW_SUBFILE_TYPE) ?? 0) & 1) === 1 && tags.has(TAG_SUB_IFDS)) return 'TIFF-based raw';
+  }
+  // by name only when the bytes are no other image format (a JPEG named .raw is still a JPEG)
+  const sniffed = sniffFormat(b);
+  if (sniffed !== null && sniffed !== 'tiff') return null;
+  const dot = name.lastIndexOf('.');
+  const ext = dot >= 0 ? name.slice(dot).toLowerCase() : '';
+  if (CAMERA_RAW_EXTENSIONS.has(ext)) return ext.slice(1).toUpperCase();
+  return null;
+}
+
+/** What to do with a camera raw file, for the one-line refusal. */
+export const CAMERA_RAW_ADVICE =
+  'evenfield does not develop raw files (an image decoder reads only the small preview the camera rendered): convert them to 16-bit TIFF with linear values (for example "dcraw -4 -T", or a raw converter\'s linear export) and inspect those with --linear';
+
 /** A short printable view of the first bytes: quoted text when they are text, else hex. */
 export function describeStart(buf: Uint8Array, n = 12): string {
   const head = buf.subarray(0, n);
