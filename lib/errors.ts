@@ -16,6 +16,7 @@ export type ErrorCode =
   | 'moire' // strong moiré on the panel
   | 'too-oblique' // viewing angle too far from the panel normal
   | 'falloff' // falloff profile or calibration problem
+  | 'response' // camera response file or exposure bracket problem
   | 'manifest' // manifest problem
   | 'criteria' // criteria file problem
   | 'output' // output folder problem

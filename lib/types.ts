@@ -50,8 +50,10 @@ export interface DecodeInfo {
   height: number;
   bitDepth: 8 | 16;
   channels: number; // in the file
-  /** How code values were turned into linear light. */
-  transfer: 'srgb' | 'linear';
+  /** How code values were turned into linear light: the sRGB curve, none, or a measured camera response. */
+  transfer: 'srgb' | 'linear' | 'response';
+  /** with transfer 'response': the response table's fingerprint (ResponseCurve.id), else null */
+  responseId?: string | null;
   /** Decoded at 1/scale of full size (JPEG shrink-on-load or box average); 1 = full size. */
   scale: number;
   /**

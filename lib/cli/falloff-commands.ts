@@ -6,6 +6,7 @@ import type { FalloffProfile } from '../falloff/index.js';
 import { decodePhoto, writeFileAtomic } from '../io/index.js';
 import { EvenfieldError } from '../errors.js';
 import type { RgbImage } from '../types.js';
+import type { Transfer } from '../photometry/index.js';
 import { calibrateShiftedFiles } from './shifted.js';
 
 /** Long side of flat frames as decoded for the fit: the model is smooth, so a reduced copy suffices. */
@@ -45,7 +46,7 @@ export interface FlatReport {
   lines: string[];
 }
 
-export async function flatFramesToProfileWithReport(files: string[]): Promise<FlatReport> {
+export async function flatFramesToProfileWithReport(files: string[], transfer: 'auto' | Transfer = 'auto'): Promise<FlatReport> {
   if (files.length === 0) throw new EvenfieldError('usage', 'give at least one flat-field frame');
   const frames: RgbImage[] = [];
   let first: { width: number; height: number; file: string } | null = null;
@@ -54,13 +55,13 @@ export async function flatFramesToProfileWithReport(files: string[]): Promise<Fl
   for (const f of files) {
     // the first frame fixes the size; the others must match it
     const probe = first ? scale : 1;
-    const d = await decodePhoto(f, { scale: probe });
+    const d = await decodePhoto(f, { scale: probe, transfer });
     if (!first) {
       first = { width: d.info.width, height: d.info.height, file: f };
       exposure = d.exposure;
       scale = scaleFor(d.info.width, d.info.height);
       if (scale !== 1) {
-        const again = await decodePhoto(f, { scale });
+        const again = await decodePhoto(f, { scale, transfer });
         frames.push(again.image);
       } else frames.push(d.image);
       continue;
@@ -101,13 +102,18 @@ export function describeProfile(p: FalloffProfile): string[] {
   return lines;
 }
 
-export async function flatFramesToProfile(files: string[]): Promise<FalloffProfile> {
-  return (await flatFramesToProfileWithReport(files)).profile;
+export async function flatFramesToProfile(files: string[], transfer: 'auto' | Transfer = 'auto'): Promise<FalloffProfile> {
+  return (await flatFramesToProfileWithReport(files, transfer)).profile;
 }
 
-export async function calibrateCommand(photos: string[], out: string, opts: { shifted: boolean; force: boolean }): Promise<number> {
+export async function calibrateCommand(
+  photos: string[],
+  out: string,
+  opts: { shifted: boolean; force: boolean; transfer?: 'auto' | Transfer },
+): Promise<number> {
   if (existsSync(out) && !opts.force) throw new EvenfieldError('output', 'already exists: add --force to replace it', out);
-  const rep = opts.shifted ? await calibrateShiftedFiles(photos) : await flatFramesToProfileWithReport(photos);
+  const transfer = opts.transfer ?? 'auto';
+  const rep = opts.shifted ? await calibrateShiftedFiles(photos, transfer) : await flatFramesToProfileWithReport(photos, transfer);
   await writeFileAtomic(out, profileToJson(rep.profile));
   for (const l of rep.lines) process.stderr.write(`${l}\n`);
   process.stderr.write(`profile written to ${out}\n`);

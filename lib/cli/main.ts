@@ -11,10 +11,11 @@ import type { GroupingResult } from '../batch/grouping.js';
 import { defaultJobs, packageRoot, runBatch } from '../batch/run.js';
 import type { RunContext } from '../batch/panel-task.js';
 import { DEFAULT_MEASURE_OPTIONS } from '../pipeline/index.js';
-import type { FalloffChoice } from '../pipeline/index.js';
+import type { FalloffChoice, MeasureOptions } from '../pipeline/index.js';
 import { DEFAULT_SPOT_RADIUS_PCT } from '../measure/index.js';
 import { criteriaSummary, effectiveCriteriaYaml, loadCriteria } from '../judge/index.js';
 import { calibrateCommand, loadFalloffProfile, flatFramesToProfile } from './falloff-commands.js';
+import { bracketCommand, loadResponse } from './response-commands.js';
 import type { GridLayout, GridPlacement } from '../types.js';
 
 function toolVersion(): string {
@@ -54,6 +55,7 @@ interface InspectArgs {
   'cos4-model'?: boolean;
   'focal-35mm'?: number;
   linear?: boolean;
+  response?: string;
   pdf: boolean;
   mura: boolean;
   resume: boolean;
@@ -87,12 +89,15 @@ async function inspect(a: InspectArgs): Promise<number> {
   const jobs = a.jobs ?? defaultJobs();
   if (!(Number.isInteger(jobs) && jobs >= 1 && jobs <= 64)) throw new EvenfieldError('usage', `--jobs must be a whole number from 1 to 64 (got ${Number.isNaN(a.jobs) ? 'something that is not a number' : a.jobs})`);
 
+  if (a.linear && a.response) throw new EvenfieldError('usage', 'choose one of --linear and --response');
+  const transfer: MeasureOptions['transfer'] = a.response ? loadResponse(a.response) : a.linear ? 'linear' : 'auto';
+
   let falloff: FalloffChoice = { kind: 'none' };
   const falloffChoices = [a.falloff, a.flat && a.flat.length > 0 ? 'flat' : undefined, a['cos4-model'] ? 'cos4' : undefined].filter(Boolean);
   if (falloffChoices.length > 1) throw new EvenfieldError('usage', 'choose one of --falloff, --flat and --cos4-model');
   if (a.falloff) falloff = { kind: 'profile', profile: loadFalloffProfile(a.falloff), source: a.falloff };
   else if (a.flat && a.flat.length > 0) {
-    const profile = await flatFramesToProfile(a.flat);
+    const profile = await flatFramesToProfile(a.flat, transfer);
     falloff = { kind: 'profile', profile, source: `flat frames: ${a.flat.join(', ')}` };
   } else if (a['cos4-model']) falloff = { kind: 'cos4', focal35mm: a['focal-35mm'] ?? null };
 
@@ -121,7 +126,7 @@ async function inspect(a: InspectArgs): Promise<number> {
     panelSizeMm,
     grid: { layout, placement, insetFraction: insetPct / 100, spotRadiusPct },
     falloff,
-    transfer: a.linear ? 'linear' : 'auto',
+    transfer,
     mura: a.mura,
     muraOptions: {
       ...(a['tile-grid'] ? { tileGrid: parseTileGrid(a['tile-grid']) } : c.mura?.tileGrid ? { tileGrid: c.mura.tileGrid } : {}),
@@ -152,7 +157,7 @@ async function inspect(a: InspectArgs): Promise<number> {
     grid: { layout, placement, insetPct: placement === 'inset' ? insetPct : null, spotRadiusPct },
     panelSizeMm,
     falloff: falloff.kind === 'profile' ? { kind: 'profile', source: falloff.source } : falloff,
-    transfer: measure.transfer,
+    transfer: typeof transfer === 'object' ? { kind: 'response', source: a.response, id: transfer.id } : transfer,
     mura: measure.mura,
     mapPxPerMm: measure.mapPxPerMm,
     workLongSide: measure.workLongSide,
@@ -215,6 +220,7 @@ export async function main(argv: string[]): Promise<number> {
           .option('cos4-model', { type: 'boolean', describe: 'correct falloff with the cos⁴ law (linear input only)' })
           .option('focal-35mm', { type: 'number', describe: '35 mm-equivalent focal length when EXIF lacks it' })
           .option('linear', { type: 'boolean', describe: 'the files hold linear values (no sRGB curve)' })
+          .option('response', { type: 'string', describe: 'camera response JSON made by "evenfield calibrate --bracket": read code values through it instead of the sRGB curve' })
           .option('pdf', { type: 'boolean', default: true, describe: 'write PDF reports (--no-pdf to skip)' })
           .option('mura', { type: 'boolean', default: true, describe: 'full-field mura analysis (--no-mura to skip)' })
           .option('resume', { type: 'boolean', default: false, describe: 'finish an interrupted run in the same output folder' })
@@ -238,15 +244,29 @@ export async function main(argv: string[]): Promise<number> {
     )
     .command(
       'calibrate <photos..>',
-      'make a lens falloff profile from flat-field frames (or shifted photos of one panel)',
+      "make a lens falloff profile from flat-field frames (or shifted photos of one panel), or the camera's response from an exposure bracket",
       (y) =>
         y
           .positional('photos', { type: 'string', array: true, demandOption: true })
           .option('out', { type: 'string', demandOption: true, describe: 'profile JSON to write' })
           .option('shifted', { type: 'boolean', default: false, describe: 'the photos show one panel with the camera shifted between shots' })
+          .option('bracket', { type: 'boolean', default: false, describe: "the photos show one still scene at different exposures: measure the camera's response" })
+          .option('times', { type: 'string', array: true, describe: 'with --bracket: exposure times in the order of the photos (e.g. 1/250 1/125), when EXIF lacks them' })
+          .option('response', { type: 'string', describe: 'camera response JSON to read the flat frames or shifted photos through' })
+          .option('linear', { type: 'boolean', describe: 'the flat frames or shifted photos hold linear values' })
           .option('force', { type: 'boolean', default: false, describe: 'replace an existing profile' }),
       async (a) => {
-        status = await calibrateCommand(a.photos as string[], a.out, { shifted: a.shifted, force: a.force });
+        const photos = a.photos as string[];
+        if (a.bracket) {
+          if (a.shifted) throw new EvenfieldError('usage', 'choose one of --bracket and --shifted');
+          if (a.response || a.linear) throw new EvenfieldError('usage', '--bracket measures the response: --response and --linear do not apply');
+          status = await bracketCommand(photos, a.out, { force: a.force, times: a.times ?? null, madeBy: `evenfield ${toolVersion()}`, createdAt: new Date().toISOString() });
+          return;
+        }
+        if (a.times) throw new EvenfieldError('usage', '--times goes with --bracket');
+        if (a.linear && a.response) throw new EvenfieldError('usage', 'choose one of --linear and --response');
+        const transfer = a.response ? loadResponse(a.response) : a.linear ? 'linear' : 'auto';
+        status = await calibrateCommand(photos, a.out, { shifted: a.shifted, force: a.force, transfer });
       },
     )
     .command(

@@ -31,7 +31,7 @@ import sharp from 'sharp';
 import type { Metadata, OutputInfo, Sharp } from 'sharp';
 import type { DecodeInfo, ExposureRecord, ExposureStats, Plane, RgbImage } from '../types.js';
 import { EvenfieldError } from '../errors.js';
-import { SRGB_TO_XYZ, decodeLut } from '../photometry/index.js';
+import { SRGB_TO_XYZ, decodeLut, transferName, type Transfer } from '../photometry/index.js';
 import { readExif } from './exif.js';
 import { readInputFile, sha256OfBuffer } from './files.js';
 import { CAMERA_RAW_ADVICE, cameraRawKind, describeDecodeFailure, describeStart, formatName, sniffFormat } from './sniff.js';
@@ -54,8 +54,9 @@ import { readIccSummary, readPngColourChunks, type IccSummary } from './tags.js'
 export type ScaleMethod = 'linear-box' | 'jpeg-shrink';
 
 export interface DecodeOptions {
-  /** 'auto' (default): sRGB unless a 16-bit file is tagged linear; 'srgb' or 'linear' force it. */
-  transfer?: 'auto' | 'srgb' | 'linear';
+  /** 'auto' (default): sRGB unless a 16-bit file is tagged linear; 'srgb' or 'linear' force it; a
+   *  measured camera response (ResponseCurve) replaces the sRGB curve for every file. */
+  transfer?: 'auto' | Transfer;
   /** Largest accepted width × height (default 100 megapixels), checked from the header first. */
   maxPixels?: number;
   /** Decode at 1/scale of full size (1, 2, 4 or 8; default 1). */
@@ -204,7 +205,7 @@ async function readHeader(buf: Buffer, name: string, maxPixels: number): Promise
   };
 }
 
-function chooseTransfer(buf: Buffer, plan: Plan, requested: 'auto' | 'srgb' | 'linear', warnings: string[]): 'srgb' | 'linear' {
+function chooseTransfer(buf: Buffer, plan: Plan, requested: 'auto' | Transfer, warnings: string[]): Transfer {
   if (requested !== 'auto') return requested;
   let taggedLinear = false;
   let why = '';
@@ -224,7 +225,7 @@ function chooseTransfer(buf: Buffer, plan: Plan, requested: 'auto' | 'srgb' | 'l
   return 'srgb';
 }
 
-function profileWarnings(plan: Plan, transfer: 'srgb' | 'linear', warnings: string[]): void {
+function profileWarnings(plan: Plan, transfer: Transfer, warnings: string[]): void {
   const icc = plan.icc;
   if (plan.isCmyk) {
     warnings.push(`CMYK file converted to sRGB through ${icc ? 'its embedded profile' : "the decoder's generic CMYK profile"}; colour is approximate`);
@@ -706,7 +707,7 @@ export async function decodePhotoBuffer(buf: Buffer, name: string, opts: DecodeO
 function finish(
   reduced: Reduced,
   plan: Plan,
-  transfer: 'srgb' | 'linear',
+  transfer: Transfer,
   scale: number,
   jpegSamples: 'float' | '8bit' | null,
   levelStepCodes: number | null,
@@ -731,7 +732,8 @@ function finish(
     height: plan.height,
     bitDepth: plan.bitDepth,
     channels: plan.channels,
-    transfer,
+    transfer: transferName(transfer),
+    responseId: typeof transfer === 'object' ? transfer.id : null,
     scale,
     jpegSamples,
     levelStepCodes,

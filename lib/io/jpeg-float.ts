@@ -19,7 +19,7 @@
 // as soon as it is decoded (progressive files: once all scans are read into the coefficient arrays), so
 // no full-size sample buffer exists.
 
-import { srgbDecode } from '../photometry/index.js';
+import { transferDecode, type Transfer } from '../photometry/index.js';
 import type { Reduced } from './decode.js';
 
 export class JpegDataError extends Error {}
@@ -164,7 +164,7 @@ class BitReader {
 export interface FloatDecodeOptions {
   /** output at 1/scale of full size: each output pixel is the linear-light mean of a scale×scale block */
   scale: 1 | 2 | 4 | 8;
-  transfer: 'srgb' | 'linear';
+  transfer: Transfer;
   /** a full-size pixel counts as clipped when its largest channel, rounded, is at or above this code */
   clipCode: number;
   /** ... and as dark when its largest channel, rounded, is below this code */
@@ -202,20 +202,21 @@ interface Comp {
  *  as pairs (value at the step, difference to the next step), so that a lookup reads one place. */
 const STEPS = 16;
 const linearTables = new Map<string, Float64Array>();
-function linearTable(transfer: 'srgb' | 'linear'): Float64Array {
-  let pairs = linearTables.get(transfer);
+function linearTable(transfer: Transfer): Float64Array {
+  const key = typeof transfer === 'string' ? transfer : `response ${transfer.id}`;
+  let pairs = linearTables.get(key);
   if (!pairs) {
     const t = new Float64Array(255 * STEPS + 2);
     for (let i = 0; i < t.length; i++) {
       const v = Math.min(1, i / (255 * STEPS));
-      t[i] = transfer === 'srgb' ? srgbDecode(v) : v;
+      t[i] = transferDecode(transfer, v);
     }
     pairs = new Float64Array(2 * (t.length - 1));
     for (let i = 0; i + 1 < t.length; i++) {
       pairs[2 * i] = t[i]!;
       pairs[2 * i + 1] = t[i + 1]! - t[i]!;
     }
-    linearTables.set(transfer, pairs);
+    linearTables.set(key, pairs);
   }
   return pairs;
 }

@@ -1,7 +1,7 @@
 // State shared by the detectors of one analysis round, and the measurement of a found region.
 
 import type { MuraOptions } from './options.js';
-import { srgbCodeStepPct } from '../photometry/index.js';
+import { transferCodeStepPct } from '../photometry/index.js';
 
 export interface Ctx {
   w: number;
@@ -293,7 +293,7 @@ export function localCodeStepPct(ctx: Ctx, x: number, y: number): number | null 
   if (!(bc > 0) || !(bp > 0)) return null;
   let level = (cl.centreY * bp) / bc;
   if (cl.gain) level *= bilinearNode(cl.gain, (x + 0.5) / w, (y + 0.5) / h);
-  return level > 0 && level <= 1 ? srgbCodeStepPct(level) * (cl.stepCodes ?? 1) : null;
+  return level > 0 && level <= 1 ? transferCodeStepPct(cl.response ?? 'srgb', level) * (cl.stepCodes ?? 1) : null;
 }
 
 /** Bilinear value of a grid of nodes spanning u, v = 0..1. */

@@ -2,6 +2,7 @@
 
 import { EvenfieldError } from '../errors.js';
 import type { Pattern } from '../types.js';
+import type { ResponseCurve } from '../photometry/index.js';
 import { DEFAULT_SEMU_CONSTANTS, type SemuConstants } from './semu.js';
 
 export interface BackgroundOptions {
@@ -165,6 +166,8 @@ export interface CodeLevel {
   /** the level step in code values (DecodeInfo.levelStepCodes: 1 for whole codes; the JPEG DC
    *  quantiser over 8 for a JPEG decoded in float) */
   stepCodes?: number;
+  /** a measured camera response the photo was read through (null or absent: the sRGB curve) */
+  response?: ResponseCurve | null;
 }
 
 export type MuraOptionsInput = Partial<Omit<MuraOptions, 'background' | 'semuConstants'>> & {

@@ -5,6 +5,25 @@
 // D65 white; XYZ is relative (Y = 1 for the encoding's white). Chromaticity is CIE 1976 u'v'.
 
 import type { ExposureRecord, Plane, RgbImage } from '../types.js';
+import { transferTable, type Transfer } from './response.js';
+
+export {
+  bracketPoints,
+  framePatches,
+  responseId,
+  solveResponse,
+  transferCodeStepPct,
+  transferDecode,
+  transferEncode,
+  transferName,
+  transferTable,
+  type BracketFrame,
+  type BracketSampling,
+  type ResponseCurve,
+  type ResponseSolution,
+  type ResponseSolveOptions,
+  type Transfer,
+} from './response.js';
 
 // ---------------------------------------------------------------------------------------------
 // sRGB transfer function (IEC 61966-2-1)
@@ -55,10 +74,21 @@ export const LINEAR_LUT_8: Float32Array = buildLut(256, (v) => v);
 /** Code value / white for 16-bit files whose code values are already linear. */
 export const LINEAR_LUT_16: Float32Array = buildLut(65536, (v) => v);
 
+const responseLuts = new Map<string, Float32Array>();
+
 /** The lookup table that turns code values of the given depth and transfer into linear light. */
-export function decodeLut(bitDepth: 8 | 16, transfer: 'srgb' | 'linear'): Float32Array {
-  if (bitDepth === 8) return transfer === 'srgb' ? SRGB_LUT_8 : LINEAR_LUT_8;
-  return transfer === 'srgb' ? SRGB_LUT_16 : LINEAR_LUT_16;
+export function decodeLut(bitDepth: 8 | 16, transfer: Transfer): Float32Array {
+  if (transfer === 'srgb' || transfer === 'linear') {
+    if (bitDepth === 8) return transfer === 'srgb' ? SRGB_LUT_8 : LINEAR_LUT_8;
+    return transfer === 'srgb' ? SRGB_LUT_16 : LINEAR_LUT_16;
+  }
+  const key = `${bitDepth}:${transfer.id}`;
+  let lut = responseLuts.get(key);
+  if (!lut) {
+    lut = transferTable(transfer, bitDepth === 8 ? 256 : 65536);
+    responseLuts.set(key, lut);
+  }
+  return lut;
 }
 
 // ---------------------------------------------------------------------------------------------

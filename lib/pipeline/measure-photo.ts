@@ -3,7 +3,7 @@
 
 import { decodePhotoBuffer, readInputFile } from '../io/index.js';
 import type { DecodedPhoto } from '../io/index.js';
-import { SRGB_TO_XYZ, srgbCodeStepPct, srgbEncode } from '../photometry/index.js';
+import { SRGB_TO_XYZ, srgbEncode, transferCodeStepPct, transferDecode, type ResponseCurve, type Transfer } from '../photometry/index.js';
 import { applyHomography, findPanel, multiply3, panelToCamera, rectifyRgb, estimatePose } from '../geometry/index.js';
 import { applyCoarseTransmissionWithLuminance, channelTransmissionFromProfile, coarseCornerTransmission, coarseTransmission, coarseTransmissionAt, cos4Transmission, profileMismatch } from '../falloff/index.js';
 import type { CoarseTransmission } from '../falloff/index.js';
@@ -45,12 +45,24 @@ const EDGE_BOW_WARN_PX = 2;
  * fraction of one for a JPEG decoded in float: DecodeInfo.levelStepCodes) at the level of the panel's
  * centre point, or null for other input.
  */
-function codeStepAt(result: PhotoResult, points: GridPoint[]): number | null {
+function codeStepAt(result: PhotoResult, points: GridPoint[], response: ResponseCurve | null): number | null {
   const d = result.decode;
-  if (!d || d.bitDepth !== 8 || d.transfer !== 'srgb') return null;
+  if (!d || d.bitDepth !== 8 || d.transfer === 'linear') return null;
   const centre = points.find((p) => p.u === 0.5 && p.v === 0.5) ?? points[0];
   const y = centre?.Y;
-  return y !== undefined && y > 0 && y <= 1 ? srgbCodeStepPct(y) * (d.levelStepCodes ?? 1) : null;
+  return y !== undefined && y > 0 && y <= 1 ? transferCodeStepPct(response ?? 'srgb', y) * (d.levelStepCodes ?? 1) : null;
+}
+
+/** The measured response in the options, or null (the sRGB curve or linear input). */
+function responseOf(opts: MeasureOptions): ResponseCurve | null {
+  return typeof opts.transfer === 'object' ? opts.transfer : null;
+}
+
+/** The clip level of the quality limits (a linear value of the sRGB curve) read through a measured
+ *  response: the same code value's linear light. */
+function clipLinearOf(opts: MeasureOptions): number {
+  const r = responseOf(opts);
+  return r ? transferDecode(r, srgbEncode(opts.quality.clipLinear)) : opts.quality.clipLinear;
 }
 
 /** The lens transmission (luminance-weighted for per-channel profiles) at a grid of panel points. */
@@ -120,7 +132,8 @@ export interface MeasureOptions {
   /** corners found on a brighter photo of the same panel */
   shared: SharedGeometry | null;
   falloff: FalloffChoice;
-  transfer: 'auto' | 'srgb' | 'linear';
+  /** 'auto' (sRGB unless a 16-bit file is tagged linear), 'srgb', 'linear', or a measured camera response */
+  transfer: 'auto' | Transfer;
   /** decode so that the long side is at least this many pixels (power-of-two reduction) */
   workLongSide: number;
   /** JPEG decoding precision (DecodeOptions.jpegSamples) */
@@ -372,11 +385,13 @@ async function measureInner(
     const jpegBlockMm = isJpeg && camPerMap ? 8 / (camPerMap * map.pxPerMm) : null;
     // 8-bit sRGB input: the contrast of one level step (a code value, or the JPEG's DC step) at the
     // panel's level in the photo
-    const codeStepPct = codeStepAt(result, points);
+    const codeStepPct = codeStepAt(result, points, responseOf(opts));
     // ...and where the code values lie across the panel, for the step where each finding is
     const centreY = points.find((p) => p.u === 0.5 && p.v === 0.5)?.Y ?? points[0]?.Y;
     const codeLevel =
-      codeStepPct !== null && centreY !== undefined && centreY > 0 ? { centreY, gain: gainGrid, stepCodes: result.decode?.levelStepCodes ?? 1 } : null;
+      codeStepPct !== null && centreY !== undefined && centreY > 0
+        ? { centreY, gain: gainGrid, stepCodes: result.decode?.levelStepCodes ?? 1, response: responseOf(opts) }
+        : null;
     const mura = analyseMura(
       { ...map, valid: withoutBorder(map.valid, map.width, map.height, border) },
       { jpegBlockMm, codeStepPct, codeLevel, edgeBorderMm: border / map.pxPerMm, lens, ...opts.muraOptions, pattern: opts.pattern },
@@ -447,7 +462,7 @@ async function measureCamera(
     maxPixels: opts.maxPixels,
     targetLongSide: opts.workLongSide,
     jpegSamples: opts.jpegSamples,
-    clipMaskLinear: opts.quality.clipLinear,
+    clipMaskLinear: clipLinearOf(opts),
   });
   const scale = decoded.info.scale;
   result.sha256 = decoded.sha256;
@@ -463,7 +478,7 @@ async function measureCamera(
   // camera levels before any correction, for the exposure gates (made by the decoder in its pass)
   const rawLum = decoded.luminance;
   // (the decoder makes it in its pass; nearWhiteMask's rule)
-  const clipMask = decoded.clipMask ?? nearWhiteMask(img, opts.quality.clipLinear);
+  const clipMask = decoded.clipMask ?? nearWhiteMask(img, clipLinearOf(opts));
   // the photo as taken (before any correction) for the report, kept for unmeasurable photos too
   if (opts.artifacts) partial.thumbnail = thumbnailOf(img, scale, 900);
 
@@ -639,6 +654,7 @@ async function measureCamera(
       minFeatureMm: opts.muraOptions.minFeatureMm ?? DEFAULT_MIN_FEATURE_MM,
       mapFootprintPx: quadWidthPx(cornersWork) / mapW,
       viewAngleMaxDeg,
+      response: responseOf(opts),
     },
     opts.quality,
   );

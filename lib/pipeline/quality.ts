@@ -17,7 +17,7 @@
 import { Matrix, solve } from 'ml-matrix';
 import { EvenfieldError, type ErrorCode } from '../errors.js';
 import { cornerAngles, isConvexClockwise, panelToCamera, quadraticFit, rectifyPlane, signedArea } from '../geometry/index.js';
-import { srgbDecode, srgbEncode } from '../photometry/index.js';
+import { srgbDecode, srgbEncode, transferEncode, type ResponseCurve } from '../photometry/index.js';
 import type { Corners, Pattern, Plane, Point, RgbImage } from '../types.js';
 
 export interface QualityLimits {
@@ -237,6 +237,9 @@ export interface QualityInput {
   /** largest angle between the panel normal and the line of sight to the active area, degrees; null
    *  when it cannot be estimated (no focal length) */
   viewAngleMaxDeg: number | null;
+  /** a measured camera response the photo was decoded with (code values are then read through it);
+   *  absent or null: the sRGB curve */
+  response?: ResponseCurve | null;
 }
 
 export interface EdgeWidth {
@@ -993,7 +996,7 @@ export function assessPanelQuality(q: QualityInput, limits: QualityLimits): Qual
     };
   }
   const median = selectKth(sample.subarray(0, n), Math.floor(n / 2));
-  const medianCode = srgbEncode(Math.max(0, median));
+  const medianCode = q.response ? transferEncode(q.response, Math.max(0, median)) : srgbEncode(Math.max(0, median));
   const clippedFraction = clipped / n;
   const dark = medianCode < limits.minPanelCode;
 
