@@ -96,5 +96,5 @@ for (const [ci, c] of curves.entries()) {
       m.result.grid!.points.forEach((p, k) => errs[name]!.push((100 * (p.relative - tg.points[k]!.relative)) / tg.points[k]!.relative));
     }
   }
-  console.log(`  grid points, ${count} photos: read as sRGB: ${stats(errs.srgb!)}; through the measured response: ${stats(errs.response!)}`);
+  if (count > 0) console.log(`  grid points, ${count} photos: read as sRGB: ${stats(errs.srgb!)}; through the measured response: ${stats(errs.response!)}`);
 }

@@ -161,7 +161,7 @@ export async function bracketToResponse(files: string[], times: number[] | null,
   const points = bracketPoints(patches);
   let sol;
   try {
-    sol = solveResponse(points, lnX);
+    sol = solveResponse(points, lnX, process.env.EF_RESPONSE_SMOOTHNESS ? { smoothness: Number(process.env.EF_RESPONSE_SMOOTHNESS) } : {});
   } catch (e) {
     throw new EvenfieldError('response', `no usable points: ${(e as Error).message} (is the scene smooth somewhere, and not clipped in every photo?)`, files[0]);
   }

@@ -93,7 +93,7 @@ export function responseId(linear: readonly number[]): string {
 // ---------------------------------------------------------------------------------------------
 
 export interface ResponseSolveOptions {
-  /** weight of the smoothness term (second derivative of g in ln z); default 0.03, chosen on generated brackets (sRGB and power curves recovered within 0.5 % of linear light over codes 5–250 with 0.3-code noise) */
+  /** weight of the smoothness term (second derivative of g in ln z); default 0.1, chosen on generated samples (0.01–0.03 let noise through, 1 bends the toe; see test/photometry/response.test.ts and scripts/response-accuracy.ts) */
   smoothness?: number;
   /** codes at or above this are clipped and not used (default 254) */
   clipCode?: number;
@@ -122,13 +122,16 @@ export interface ResponseSolution {
  * `codes[i]` holds point i's code in every photo (NaN where unusable); `lnExposure[j]` is ln X_j.
  * Weights: a hat over the code range (Debevec & Malik), kept at a floor so that dark codes still count.
  */
-const WEIGHT = (z: number) => Math.max(0.05, Math.sqrt(z / 255)) * Math.min(1, (255 - z) / 10);
+/** codes above this (or above the last measured codes less 5) follow the power law fitted below it */
+const TOP_FIT_END = 240;
+
+const WEIGHT = (z: number) => Math.max(0.05, Math.sqrt(z / 255)) * Math.min(1, (255 - z) / 3);
 
 export function solveResponse(codes: Float64Array[], lnExposure: number[], opts: ResponseSolveOptions = {}): ResponseSolution {
   const P = lnExposure.length;
   const clip = opts.clipCode ?? 254;
   const floor = opts.floorCode ?? 3;
-  const lambda = opts.smoothness ?? 0.03;
+  const lambda = opts.smoothness ?? 0.1;
   const n = 256;
   const AtA = new Float64Array(n * n);
   const Atb = new Float64Array(n);
@@ -190,19 +193,19 @@ export function solveResponse(codes: Float64Array[], lnExposure: number[], opts:
     }
   }
   if (points === 0) throw new RangeError('no point of the bracket is usable in two photos or more');
-  // smoothness: the second derivative of g with respect to ln z, which is zero for a power law (and
-  // so both for the linear toe of a camera curve and for its gamma-like upper part), integrated over
-  // ln z; scaled with the data's weight
+  // smoothness: the change of the slope d g / d ln z from one code value to the next. The slope is
+  // constant for a power law (and so both for the linear toe of a camera curve and for its gamma-like
+  // upper part); a penalty per code value (not per unit of ln z, which would crowd the upper codes and
+  // flatten a shoulder) lets the data lead where they are dense. Scaled with the data's weight.
   const s = lambda * Math.sqrt(observations / n);
   for (let z = 2; z < n - 1; z++) {
     const h1 = Math.log(z) - Math.log(z - 1);
     const h2 = Math.log(z + 1) - Math.log(z);
-    const k = (s * Math.sqrt((h1 + h2) / 2) * 2) / (h1 + h2);
     addRow(
       new Map([
-        [z - 1, k / h1],
-        [z, -k / h1 - k / h2],
-        [z + 1, k / h2],
+        [z - 1, s / h1],
+        [z, -s / h1 - s / h2],
+        [z + 1, s / h2],
       ]),
       0,
     );
@@ -253,12 +256,38 @@ export function solveResponse(codes: Float64Array[], lnExposure: number[], opts:
   let monotonic = true;
   for (let z = lo; z < hi; z++) if (!(g[z + 1]! > g[z]!)) monotonic = false;
 
-  // the table: exp(g) over the measured range and above it (the smooth extension), straight to zero
-  // below it (camera curves are linear near black); then code 255 -> 1
+  // The table: exp(g) over the measured range; straight to zero below it (camera curves are linear near
+  // black); above TOP_FIT_END (or the last measured codes) the power law fitted to g over the 50 codes
+  // before, since the last few codes under the clip level are the least certain (a patch near white is
+  // kept only when none of its pixels clipped, which favours low readings). Then code 255 -> 1.
   const linear = new Array<number>(n);
   for (let z = lo; z < n; z++) linear[z] = Math.exp(g[z]!);
   for (let z = 0; z < lo; z++) linear[z] = lo > 0 ? (linear[lo]! * z) / lo : 0;
-  for (let z = hi + 1; z < n; z++) if (!(linear[z]! > linear[z - 1]!)) monotonic = false;
+  const end = Math.min(TOP_FIT_END, hi - 5);
+  const start = Math.max(lo + 1, end - 50);
+  if (end - start >= 10) {
+    // least squares g = a + b ln z over start..end
+    let sx = 0;
+    let sy = 0;
+    let sxx = 0;
+    let sxy = 0;
+    let m = 0;
+    for (let z = start; z <= end; z++) {
+      const x = Math.log(z);
+      sx += x;
+      sy += g[z]!;
+      sxx += x * x;
+      sxy += x * g[z]!;
+      m++;
+    }
+    const b = (m * sxy - sx * sy) / (m * sxx - sx * sx);
+    const a = (sy - b * sx) / m;
+    // continuous at `end`: the extension starts from the table's own value there
+    const shift = g[end]! - (a + b * Math.log(end));
+    for (let z = end + 1; z < n; z++) linear[z] = Math.exp(a + shift + b * Math.log(z));
+    if (!(b > 0)) monotonic = false;
+  }
+  for (let z = 1; z < n; z++) if (!(linear[z]! > linear[z - 1]!)) monotonic = false;
   const top = linear[255]!;
   for (let z = 0; z < n; z++) linear[z] = linear[z]! / top;
   return {

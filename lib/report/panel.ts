@@ -964,7 +964,13 @@ function photoMethodPairs(p: PreparedPhoto): Array<[string, string | Cell]> {
           : d.jpegSamples === '8bit'
             ? 'decoded to whole code values; '
             : '') +
-        `${d.transfer === 'srgb' ? 'sRGB transfer function undone to linear light' : 'linear data'}; ` +
+        `${
+          d.transfer === 'srgb'
+            ? 'sRGB transfer function undone to linear light'
+            : d.transfer === 'response'
+              ? `camera response measured from an exposure bracket undone to linear light (table ${d.responseId ?? '?'})`
+              : 'linear data'
+        }; ` +
         `${d.scale === 1 ? 'measured at full size' : `measured at 1/${trim(d.scale, 2)} size (area average)`}`
       : 'not decoded',
   ]);
