@@ -107,6 +107,34 @@ export function parseExposureTime(s: string): number | null {
   return v > 0 && Number.isFinite(v) ? v : null;
 }
 
+// Shutter speeds as cameras label them: the times are set in exact thirds (or halves) of a stop, 2^(k/3)
+// or 2^(k/2) seconds, and labelled with round numbers (1/60 for 1/64 s, 1/125 for 1/128 s), which is what
+// EXIF ExposureTime usually holds (common practice). One stop of a bracket labelled 1/125 -> 1/60 is then
+// a factor of 2.08 in the file but 2 in the camera: a bend of 4 % in the measured response.
+const THIRD_STOP_LABELS = [
+  1 / 8000, 1 / 6400, 1 / 5000, 1 / 4000, 1 / 3200, 1 / 2500, 1 / 2000, 1 / 1600, 1 / 1250, 1 / 1000, 1 / 800, 1 / 640, 1 / 500, 1 / 400,
+  1 / 320, 1 / 250, 1 / 200, 1 / 160, 1 / 125, 1 / 100, 1 / 80, 1 / 60, 1 / 50, 1 / 40, 1 / 30, 1 / 25, 1 / 20, 1 / 15, 1 / 13, 1 / 10,
+  1 / 8, 1 / 6, 1 / 5, 1 / 4, 0.3, 0.4, 0.5, 0.6, 0.8, 1, 1.3, 1.6, 2, 2.5, 3.2, 4, 5, 6, 8, 10, 13, 15, 20, 25, 30,
+];
+/** labels found only on the half-stop scale */
+const HALF_STOP_ONLY_LABELS = [1 / 6000, 1 / 3000, 1 / 1500, 1 / 750, 1 / 350, 1 / 180, 1 / 90, 1 / 45, 0.7, 1.5, 3, 12];
+
+function isLabel(t: number, labels: number[]): boolean {
+  return labels.some((l) => Math.abs(t / l - 1) < 0.005);
+}
+
+/**
+ * The exact times behind a bracket's shutter-speed labels: when every time is a camera label, each
+ * becomes 2^(k/3) s (2^(k/2) s when any label is one of the half-stop scale only), k the nearest step;
+ * otherwise null (the times are taken as written: a generator's or a camera's exact values).
+ */
+export function exactShutterTimes(times: number[]): number[] | null {
+  const half = times.some((t) => isLabel(t, HALF_STOP_ONLY_LABELS));
+  if (!times.every((t) => isLabel(t, THIRD_STOP_LABELS) || isLabel(t, HALF_STOP_ONLY_LABELS))) return null;
+  const steps = half ? 2 : 3;
+  return times.map((t) => 2 ** (Math.round(steps * Math.log2(t)) / steps));
+}
+
 export interface BracketReport {
   file: ResponseFile;
   lines: string[];
@@ -129,6 +157,7 @@ export async function bracketToResponse(files: string[], times: number[] | null,
   const photos: ResponseFile['photos'] = [];
   let camera: ResponseFile['camera'] = { make: null, model: null, lens: null };
   const warnings: string[] = [];
+  const notes: string[] = [];
   for (const [j, f] of files.entries()) {
     const buf = await readInputFile(f);
     // the header checks and the refusals of inspect (raw files, damaged data, pixel limit)
@@ -147,10 +176,16 @@ export async function bracketToResponse(files: string[], times: number[] | null,
     if (t === null) {
       throw new EvenfieldError('response', 'no exposure time in EXIF: give the times in the order of the photos with --times (e.g. --times 1/250 1/125 1/60)', f);
     }
-    // ISO and aperture scale the exposure when EXIF gives them (time alone otherwise)
-    const relativeExposure = (t * (e.iso ?? 100)) / (e.fNumber ?? 1) ** 2;
-    photos.push({ file: basename(f), sha256: sha256OfBuffer(buf), exposureTimeS: t, fNumber: e.fNumber, iso: e.iso, relativeExposure });
+    photos.push({ file: basename(f), sha256: sha256OfBuffer(buf), exposureTimeS: t, fNumber: e.fNumber, iso: e.iso, relativeExposure: 1 });
   }
+  // EXIF holds the shutter's label (1/60), the camera exposed 2^-6 s: use the exact steps (not for --times)
+  const exact = times ? null : exactShutterTimes(photos.map((p) => p.exposureTimeS!));
+  if (exact) {
+    photos.forEach((p, j) => (p.exposureTimeS = exact[j]!));
+    notes.push('exposure times read as the camera\'s shutter-speed labels and taken as exact steps of a third (or half) stop (1/60 as 1/64 s); give --times to use other values');
+  }
+  // ISO and aperture scale the exposure when EXIF gives them (time alone otherwise)
+  for (const p of photos) p.relativeExposure = (p.exposureTimeS! * (p.iso ?? 100)) / (p.fNumber ?? 1) ** 2;
   const fs = new Set(photos.map((p) => p.fNumber));
   if (fs.size > 1) warnings.push(`the f-number changes within the bracket (${[...fs].join(', ')}): vignetting changes with it, so vary the exposure time instead`);
   const lnX = photos.map((p) => Math.log(p.relativeExposure));
@@ -161,7 +196,7 @@ export async function bracketToResponse(files: string[], times: number[] | null,
   const points = bracketPoints(patches);
   let sol;
   try {
-    sol = solveResponse(points, lnX, process.env.EF_RESPONSE_SMOOTHNESS ? { smoothness: Number(process.env.EF_RESPONSE_SMOOTHNESS) } : {});
+    sol = solveResponse(points, lnX);
   } catch (e) {
     throw new EvenfieldError('response', `no usable points: ${(e as Error).message} (is the scene smooth somewhere, and not clipped in every photo?)`, files[0]);
   }
@@ -207,6 +242,7 @@ export async function bracketToResponse(files: string[], times: number[] | null,
     `photos: ${files.length} (${size!.width}×${size!.height}), exposures spanning ${spanStops.toFixed(1)} stops`,
     `response measured between codes ${lo.toFixed(0)} and ${hi.toFixed(0)} from ${sol.points} points; fit ${sol.fitRmsPct.toFixed(2)} % rms`,
     `largest difference from the sRGB curve there: ${worst >= 0 ? '+' : ''}${worst.toFixed(1)} % of linear light at code ${worstCode}`,
+    ...notes.map((w) => `note: ${w}`),
     ...warnings.map((w) => `warning: ${w}`),
   ];
   return { file, lines };

@@ -19,7 +19,7 @@ import {
   transferEncode,
   type ResponseCurve,
 } from '../../lib/photometry/index.js';
-import { BRACKET_LIMITS } from '../../lib/cli/response-commands.js';
+import { BRACKET_LIMITS, exactShutterTimes, parseExposureTime } from '../../lib/cli/response-commands.js';
 
 /** colorjs.io's sRGB decode of one channel value v (0..1) */
 function colorjsLinear(v: number): number {
@@ -152,5 +152,31 @@ describe('bracket sampling', () => {
     const pts = bracketPoints([p, p]);
     expect(pts).toHaveLength(4 * 3 * 3);
     expect(Array.from(pts[0]!)).toEqual([100, 100]);
+  });
+});
+
+describe('shutter-speed labels', () => {
+  // APEX: time value Tv = log2(1/t), whole Tv = whole stops (ASA PH2.5-1960, via Kerr's APEX notes);
+  // cameras label 2^-6 s as 1/60 and set times in thirds or halves of a stop (common practice)
+  it('turns a bracket of labels into exact steps, and leaves other times as written', () => {
+    const whole = exactShutterTimes([1 / 1000, 1 / 500, 1 / 250, 1 / 125, 1 / 60, 1 / 30, 1 / 15])!;
+    expect(whole.map((t) => -Math.log2(t))).toEqual([10, 9, 8, 7, 6, 5, 4]);
+    const thirds = exactShutterTimes([1 / 100, 1 / 80, 0.3])!;
+    expect(thirds[0]).toBeCloseTo(2 ** (-20 / 3), 12);
+    expect(thirds[2]).toBeCloseTo(2 ** (-5 / 3), 12);
+    // a half-stop label puts the whole bracket on the half-stop scale: 1/6 is then 2^-2.5 s
+    const halves = exactShutterTimes([1 / 90, 1 / 45, 1 / 6])!;
+    expect(halves.map((t) => -Math.log2(t))).toEqual([6.5, 5.5, 2.5]);
+    // exact times (a generator's, or a camera that writes them) are not labels
+    expect(exactShutterTimes([0.000889224, 0.001778448, 0.003556896])).toBeNull();
+    expect(exactShutterTimes([1 / 64, 1 / 32, 1 / 16])).toBeNull();
+  });
+
+  it('parses times given on the command line', () => {
+    expect(parseExposureTime('1/60')).toBeCloseTo(1 / 60, 12);
+    expect(parseExposureTime('0.5')).toBe(0.5);
+    expect(parseExposureTime('2s')).toBe(2);
+    expect(parseExposureTime('fast')).toBeNull();
+    expect(parseExposureTime('1/0')).toBeNull();
   });
 });
