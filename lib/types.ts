@@ -52,8 +52,8 @@ export interface DecodeInfo {
   channels: number; // in the file
   /** How code values were turned into linear light: the sRGB curve, none, or a measured camera response. */
   transfer: 'srgb' | 'linear' | 'response';
-  /** with transfer 'response': the response table's fingerprint (ResponseCurve.id), else null */
-  responseId?: string | null;
+  /** with transfer 'response': the response table's fingerprint (ResponseCurve.id); absent otherwise */
+  responseId?: string;
   /** Decoded at 1/scale of full size (JPEG shrink-on-load or box average); 1 = full size. */
   scale: number;
   /**

@@ -733,7 +733,7 @@ function finish(
     bitDepth: plan.bitDepth,
     channels: plan.channels,
     transfer: transferName(transfer),
-    responseId: typeof transfer === 'object' ? transfer.id : null,
+    ...(typeof transfer === 'object' ? { responseId: transfer.id } : {}),
     scale,
     jpegSamples,
     levelStepCodes,
