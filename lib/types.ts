@@ -83,6 +83,9 @@ export interface ExposureStats {
   p999: number;
   /** median of linear Y. */
   median: number;
+  /** single-pixel spikes on the panel (hot or dead camera pixels, or anything smaller than one working
+   *  pixel) replaced by their neighbours' mean before measuring (set by the measurement, not the decoder) */
+  spikesRemoved?: number;
 }
 
 /** A rectified panel map: linear CIE XYZ (relative units) on a square-pixel grid in panel mm. */

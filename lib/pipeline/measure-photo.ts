@@ -26,7 +26,8 @@ import type {
   RgbImage,
 } from '../types.js';
 import type { PhotoArtifacts as ReportArtifacts, ReportThumbnail } from '../report/types.js';
-import { checkPanelQuality, nearWhiteMask, type QualityLimits, DEFAULT_QUALITY_LIMITS } from './quality.js';
+import { checkPanelQuality, insideQuad, nearWhiteMask, type QualityLimits, DEFAULT_QUALITY_LIMITS } from './quality.js';
+import { removeImpulses } from './impulses.js';
 
 /** default smallest mura feature, mm (the mura analysis's own default; see lib/mura/options.ts) */
 const DEFAULT_MIN_FEATURE_MM = 3;
@@ -477,6 +478,8 @@ async function measureCamera(
   const img = decoded.image;
   // camera levels before any correction, for the exposure gates (made by the decoder in its pass)
   const rawLum = decoded.luminance;
+  // the camera's hot pixels (and anything no larger than one working pixel) would be measured as spots
+  const spikes = removeImpulses(img, rawLum);
   // (the decoder makes it in its pass; nearWhiteMask's rule)
   const clipMask = decoded.clipMask ?? nearWhiteMask(img, clipLinearOf(opts));
   // the photo as taken (before any correction) for the report, kept for unmeasurable photos too
@@ -639,6 +642,15 @@ async function measureCamera(
   const pxPerMm = Math.min(opts.mapPxPerMm, camPxPerMm);
   const mapW = Math.max(8, Math.round(widthMm * pxPerMm));
   const mapH = Math.max(8, Math.round(heightMm * pxPerMm));
+
+  // single-pixel spikes on the panel: counted and said (those in the surroundings do not matter)
+  const spikesOnPanel = spikes.filter((i) => insideQuad(cornersWork, i % img.width, Math.floor(i / img.width))).length;
+  if (result.exposureStats) result.exposureStats = { ...result.exposureStats, spikesRemoved: spikesOnPanel };
+  if (spikesOnPanel > 0) {
+    result.warnings.push(
+      `${spikesOnPanel} single-pixel spike${spikesOnPanel > 1 ? 's' : ''} on the panel replaced by the neighbours' mean before measuring: the camera's hot or dead pixels, or panel dots smaller than one pixel of the photo as measured, which a photo cannot tell apart (look for pixel defects on the panel by eye)`,
+    );
+  }
 
   // 5. quality gates that need the outline, the pose and the map's resolution
   const quality = checkPanelQuality(

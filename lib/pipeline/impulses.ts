@@ -1,0 +1,104 @@
+// Single-pixel spikes: the camera's hot (or dead) pixels, and anything else no larger than one pixel of
+// the working image. A hot pixel of a long black-field exposure stands tens of times above the lit black
+// and would come out of the mura analysis as a spot of SEMU 20–70; a panel dot smaller than one camera
+// pixel looks the same, and a photo cannot tell the two apart (pixel defects of a panel are counted by
+// other means: by eye, with a magnifier). Such pixels are replaced by the mean of their eight neighbours
+// before anything is measured, and counted.
+//
+// A pixel is a spike when its luminance stands above the highest of its eight neighbours (or below the
+// lowest) by more than twice the neighbours' own spread, by more than half its own excess over their mean
+// (so it stands alone: the peak of any feature the optics blurred over two pixels or more has neighbours
+// at more than half its excess), by more than `minExcess` of their mean, and by more than `minCodes`
+// 8-bit code values at their level (sRGB steps; dark JPEG areas come in whole steps of 10–30 %).
+
+import type { Plane, RgbImage } from '../types.js';
+import { srgbDecode, srgbEncode } from '../photometry/index.js';
+
+export interface ImpulseOptions {
+  /** the spike must exceed its neighbours' spread (max − min) this many times (default 2) */
+  spreadFactor: number;
+  /** ... and its neighbours' mean by this share of that mean (default 0.1) */
+  minExcess: number;
+  /** ... and by this many 8-bit sRGB code steps at the neighbours' level (default 3) */
+  minCodes: number;
+}
+
+export const DEFAULT_IMPULSE_OPTIONS: ImpulseOptions = { spreadFactor: 2, minExcess: 0.1, minCodes: 3 };
+
+/** linear light of `codes` sRGB code steps at level l (the step at code 1 below that level) */
+function codeSteps(l: number, codes: number): number {
+  const v = Math.max(1 / 255, srgbEncode(Math.max(0, l)));
+  return srgbDecode(Math.min(1, v + codes / 255)) - srgbDecode(v);
+}
+
+/**
+ * Replace single-pixel spikes of `lum` (and the same pixels of `img`, interleaved RGB of the same size) by
+ * their eight neighbours' mean, in place. Returns the indices of the pixels replaced. Border pixels are
+ * left.
+ */
+export function removeImpulses(img: RgbImage, lum: Plane, opts: ImpulseOptions = DEFAULT_IMPULSE_OPTIONS): number[] {
+  const W = lum.width;
+  const H = lum.height;
+  const L = lum.data;
+  const d = img.data;
+  const k = opts.spreadFactor;
+  const rel = opts.minExcess;
+  const spikes: number[] = [];
+  for (let y = 1; y < H - 1; y++) {
+    const row = y * W;
+    for (let x = 1; x < W - 1; x++) {
+      const i = row + x;
+      const v = L[i]!;
+      const a = L[i - W - 1]!;
+      const b = L[i - W]!;
+      const c = L[i - W + 1]!;
+      const e = L[i - 1]!;
+      const f = L[i + 1]!;
+      const g = L[i + W - 1]!;
+      const h = L[i + W]!;
+      const j = L[i + W + 1]!;
+      let mx = a;
+      let mn = a;
+      if (b > mx) mx = b;
+      else if (b < mn) mn = b;
+      if (c > mx) mx = c;
+      else if (c < mn) mn = c;
+      if (e > mx) mx = e;
+      else if (e < mn) mn = e;
+      if (f > mx) mx = f;
+      else if (f < mn) mn = f;
+      if (g > mx) mx = g;
+      else if (g < mn) mn = g;
+      if (h > mx) mx = h;
+      else if (h < mn) mn = h;
+      if (j > mx) mx = j;
+      else if (j < mn) mn = j;
+      // quick exit: inside the neighbours' range, the usual case
+      if (v <= mx && v >= mn) continue;
+      const mean = (a + b + c + e + f + g + h + j) / 8;
+      const spread = mx - mn;
+      const step = v > mx ? v - mx : mn - v;
+      if (step <= k * spread || step <= 0.5 * Math.abs(v - mean) || step <= rel * Math.abs(mean)) continue;
+      if (step > codeSteps(mean, opts.minCodes)) spikes.push(i);
+    }
+  }
+  // replace after finding them all, so that a neighbour's replacement does not change another's test
+  for (const i of spikes) {
+    let r = 0;
+    let g = 0;
+    let b = 0;
+    let l = 0;
+    for (const o of [-W - 1, -W, -W + 1, -1, 1, W - 1, W, W + 1]) {
+      const n = i + o;
+      r += d[3 * n]!;
+      g += d[3 * n + 1]!;
+      b += d[3 * n + 2]!;
+      l += L[n]!;
+    }
+    d[3 * i] = r / 8;
+    d[3 * i + 1] = g / 8;
+    d[3 * i + 2] = b / 8;
+    L[i] = l / 8;
+  }
+  return spikes;
+}
