@@ -251,6 +251,9 @@ export interface PhotoResult {
   mura: MuraResult | null;
   blobs: Blob[];
   warnings: string[];
+  /** black fields with a display-off frame: the frame, its exposure relative to the photo's (the factor
+   *  its light was scaled by), and the share (%) of the photo's level on the panel that was its light */
+  offFrame?: { file: string; sha256: string; exposureRatio: number; sharePct: number };
 }
 
 export type Verdict = 'pass' | 'fail' | 'error';

@@ -22,6 +22,10 @@ export interface PhotoEntry {
 export interface PanelGroup {
   panel: string;
   photos: PhotoEntry[];
+  /** a photo of the switched-off panel (same camera position and exposure as the black field), whose
+   *  light, room light reflected by the screen and the camera's own offset, is taken from the black
+   *  field's photo; null when none was given */
+  offFrame?: string | null;
   /** problems found while grouping (duplicate pattern, unknown pattern ...): the panel becomes 'error' */
   problems: string[];
 }
@@ -46,14 +50,27 @@ export function parsePatternToken(token: string): { pattern: Pattern; level: num
   return null;
 }
 
-/** Split a file name by the naming rule. */
-export function parseFileName(file: string): { panel: string; pattern: Pattern; level: number | null } | null {
+/** The token of a photo of the switched-off panel (the display-off frame of its black field). */
+export function isOffToken(token: string): boolean {
+  return token.trim().toLowerCase() === 'off';
+}
+
+/** Split a file name by the naming rule (pattern 'off': the panel's display-off frame). */
+export function parseFileName(file: string): { panel: string; pattern: Pattern | 'off'; level: number | null } | null {
   const stem = basename(file, extname(file));
   const i = stem.lastIndexOf('_');
   if (i <= 0 || i === stem.length - 1) return null;
-  const p = parsePatternToken(stem.slice(i + 1));
+  const token = stem.slice(i + 1);
+  if (isOffToken(token)) return { panel: stem.slice(0, i), pattern: 'off', level: null };
+  const p = parsePatternToken(token);
   if (!p) return null;
   return { panel: stem.slice(0, i), ...p };
+}
+
+/** Attach a display-off frame to its panel's group; a second one is a grouping problem. */
+function addOffFrame(g: PanelGroup, file: string): void {
+  if (g.offFrame) g.problems.push(`two display-off frames for panel ${g.panel}: ${g.offFrame} and ${file}`);
+  else g.offFrame = file;
 }
 
 /**
@@ -98,7 +115,15 @@ export function collectImages(inputs: string[]): { files: string[]; missing: str
 
 const PATTERN_ORDER: Record<Pattern, number> = { white: 0, gray: 1, red: 2, green: 3, blue: 4, black: 5 };
 
-function finishGroups(map: Map<string, PanelGroup>): PanelGroup[] {
+function finishGroups(map: Map<string, PanelGroup>, unassigned: GroupingResult['unassigned']): PanelGroup[] {
+  for (const [id, g] of map) {
+    // a display-off frame serves the black field of its panel only
+    if (g.offFrame && !g.photos.some((p) => p.pattern === 'black')) {
+      unassigned.push({ file: g.offFrame, reason: `display-off frame without a black-field photo of panel ${g.panel} to take it from` });
+      g.offFrame = null;
+    }
+    if (g.photos.length === 0) map.delete(id);
+  }
   const panels = [...map.values()].sort((a, b) => (a.panel < b.panel ? -1 : a.panel > b.panel ? 1 : 0));
   for (const g of panels) {
     // brighter photos first: their outlines serve the darker photos of the same panel
@@ -121,14 +146,15 @@ export function groupByName(files: string[]): GroupingResult {
   for (const f of files) {
     const p = parseFileName(f);
     if (!p) {
-      unassigned.push({ file: f, reason: 'file name does not follow <panel>_<pattern>.<ext> (pattern: white, black, red, green, blue, gray or grayNN)' });
+      unassigned.push({ file: f, reason: 'file name does not follow <panel>_<pattern>.<ext> (pattern: white, black, red, green, blue, gray, grayNN, or off for the switched-off panel)' });
       continue;
     }
     let g = map.get(p.panel);
-    if (!g) map.set(p.panel, (g = { panel: p.panel, photos: [], problems: [] }));
-    g.photos.push({ file: f, pattern: p.pattern, level: p.level, corners: null, note: null });
+    if (!g) map.set(p.panel, (g = { panel: p.panel, photos: [], problems: [], offFrame: null }));
+    if (p.pattern === 'off') addOffFrame(g, f);
+    else g.photos.push({ file: f, pattern: p.pattern, level: p.level, corners: null, note: null });
   }
-  return { panels: finishGroups(map), unassigned, manifest: null };
+  return { panels: finishGroups(map, unassigned), unassigned, manifest: null };
 }
 
 /** Corners written as "x,y x,y x,y x,y" or "x y; x y; ..." (TL TR BR BL, full-size pixels). */
@@ -197,8 +223,9 @@ export function groupByManifest(manifestPath: string): GroupingResult {
     if (!/^[A-Za-z0-9][A-Za-z0-9._-]{0,79}$/.test(panel)) {
       throw new EvenfieldError('manifest', `line ${line}: panel id "${panel}" may contain only letters, digits, '.', '_' and '-' (at most 80)`, manifestPath);
     }
-    const pat = parsePatternToken(get('pattern'));
-    if (!pat) throw new EvenfieldError('manifest', `line ${line}: unknown pattern "${get('pattern')}" (white, black, red, green, blue, gray or grayNN)`, manifestPath);
+    const off = isOffToken(get('pattern'));
+    const pat = off ? null : parsePatternToken(get('pattern'));
+    if (!pat && !off) throw new EvenfieldError('manifest', `line ${line}: unknown pattern "${get('pattern')}" (white, black, red, green, blue, gray, grayNN or off)`, manifestPath);
     let corners: Corners | null = null;
     const ct = get('corners');
     if (ct) {
@@ -206,9 +233,10 @@ export function groupByManifest(manifestPath: string): GroupingResult {
       if (!corners) throw new EvenfieldError('manifest', `line ${line}: corners must be 8 numbers "x,y x,y x,y x,y" (top-left, top-right, bottom-right, bottom-left)`, manifestPath);
     }
     let g = map.get(panel);
-    if (!g) map.set(panel, (g = { panel, photos: [], problems: [] }));
+    if (!g) map.set(panel, (g = { panel, photos: [], problems: [], offFrame: null }));
     const shown = relative(process.cwd(), full) || full;
-    g.photos.push({ file: shown, pattern: pat.pattern, level: pat.level, corners, note: get('note') || null });
+    if (!pat) addOffFrame(g, shown);
+    else g.photos.push({ file: shown, pattern: pat.pattern, level: pat.level, corners, note: get('note') || null });
   }
-  return { panels: finishGroups(map), unassigned, manifest: manifestPath };
+  return { panels: finishGroups(map, unassigned), unassigned, manifest: manifestPath };
 }

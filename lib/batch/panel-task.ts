@@ -14,7 +14,7 @@ import type { PanelGroup } from './grouping.js';
 
 export interface RunContext {
   /** measurement options shared by every photo; pattern, corners and shared geometry are per photo */
-  measure: Omit<MeasureOptions, 'pattern' | 'patternLevel' | 'corners' | 'shared'>;
+  measure: Omit<MeasureOptions, 'pattern' | 'patternLevel' | 'corners' | 'shared' | 'offFrame'>;
   criteria: Criteria;
   criteriaHash: string;
   criteriaSource: string;
@@ -64,6 +64,7 @@ export async function runPanel(task: PanelTask): Promise<PanelOutcome> {
       patternLevel: entry.level,
       corners: entry.corners,
       shared: entry.pattern === 'black' ? shared : null,
+      offFrame: entry.pattern === 'black' ? (group.offFrame ?? null) : null,
     });
     photos.push(m.result);
     artifacts.push(m.artifacts);

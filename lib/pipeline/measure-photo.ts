@@ -3,7 +3,7 @@
 
 import { decodePhotoBuffer, readInputFile } from '../io/index.js';
 import type { DecodedPhoto } from '../io/index.js';
-import { SRGB_TO_XYZ, srgbEncode, transferCodeStepPct, transferDecode, type ResponseCurve, type Transfer } from '../photometry/index.js';
+import { SRGB_TO_XYZ, exposureFactor, srgbEncode, transferCodeStepPct, transferDecode, type ResponseCurve, type Transfer } from '../photometry/index.js';
 import { applyHomography, findPanel, multiply3, panelToCamera, rectifyRgb, estimatePose } from '../geometry/index.js';
 import { applyCoarseTransmissionWithLuminance, channelTransmissionFromProfile, coarseCornerTransmission, coarseTransmission, coarseTransmissionAt, cos4Transmission, profileMismatch } from '../falloff/index.js';
 import type { CoarseTransmission } from '../falloff/index.js';
@@ -132,6 +132,10 @@ export interface MeasureOptions {
   corners: Corners | null;
   /** corners found on a brighter photo of the same panel */
   shared: SharedGeometry | null;
+  /** a photo of the switched-off panel from the same camera position (black fields): its light (room
+   *  light reflected by the screen, the camera's offset) is taken from the photo, scaled by the two
+   *  photos' exposures, before anything is measured. Optional (null: none) */
+  offFrame?: string | null;
   falloff: FalloffChoice;
   /** 'auto' (sRGB unless a 16-bit file is tagged linear), 'srgb', 'linear', or a measured camera response */
   transfer: 'auto' | Transfer;
@@ -448,6 +452,60 @@ interface CameraStage {
   lens: LensField | null;
 }
 
+/**
+ * Decode the display-off frame as the photo was decoded and take its light (scaled by the two photos'
+ * exposures, t·S/N² from EXIF) from the photo's linear RGB and luminance, in place. Returns the frame's
+ * scaled luminance for the share on the panel.
+ */
+async function subtractOffFrame(
+  offFile: string,
+  decoded: DecodedPhoto,
+  opts: MeasureOptions,
+  file: string,
+): Promise<{ lum: Float32Array; ratio: number; sha256: string; warnings: string[] }> {
+  const warnings: string[] = [];
+  let off: DecodedPhoto;
+  try {
+    off = await decodePhotoBuffer(await readInputFile(offFile), offFile, {
+      transfer: opts.transfer,
+      maxPixels: opts.maxPixels,
+      scale: decoded.info.scale as 1 | 2 | 4 | 8,
+      jpegSamples: opts.jpegSamples,
+    });
+  } catch (e) {
+    const why = e instanceof Error ? e.message : String(e);
+    throw new EvenfieldError('unreadable', `display-off frame unusable: ${why}`, file);
+  }
+  if (off.info.width !== decoded.info.width || off.info.height !== decoded.info.height) {
+    throw new EvenfieldError(
+      'usage',
+      `display-off frame ${offFile} is ${off.info.width}×${off.info.height}, the photo ${decoded.info.width}×${decoded.info.height}: take both from one camera position and setting`,
+      file,
+    );
+  }
+  const fb = exposureFactor(decoded.exposure);
+  const fo = exposureFactor(off.exposure);
+  let ratio = 1;
+  if (fb !== null && fo !== null) ratio = fo / fb;
+  else warnings.push('the display-off frame and the photo do not both give their exposure (EXIF): taken as equal');
+  const d = decoded.image.data;
+  const o = off.image.data;
+  const L = decoded.luminance.data;
+  const lum = new Float32Array(L.length);
+  const [, , , yr, yg, yb] = SRGB_TO_XYZ as number[];
+  for (let i = 0, k = 0; i < L.length; i++, k += 3) {
+    const r = ratio * o[k]!;
+    const g = ratio * o[k + 1]!;
+    const b = ratio * o[k + 2]!;
+    d[k] = d[k]! - r;
+    d[k + 1] = d[k + 1]! - g;
+    d[k + 2] = d[k + 2]! - b;
+    lum[i] = yr! * r + yg! * g + yb! * b;
+    L[i] = yr! * d[k]! + yg! * d[k + 1]! + yb! * d[k + 2]!;
+  }
+  return { lum, ratio, sha256: off.sha256, warnings };
+}
+
 /** Steps 1-7: decode, falloff, outline, pose, quality gates, rectification, grid; fills `result`. */
 async function measureCamera(
   file: string,
@@ -478,6 +536,9 @@ async function measureCamera(
   const img = decoded.image;
   // camera levels before any correction, for the exposure gates (made by the decoder in its pass)
   const rawLum = decoded.luminance;
+  // the display-off frame's light (room light on the screen, the camera's offset) out of a black field
+  const off = opts.offFrame ? await subtractOffFrame(opts.offFrame, decoded, opts, file) : null;
+  if (off) result.warnings.push(...off.warnings);
   // the camera's hot pixels (and anything no larger than one working pixel) would be measured as spots
   const spikes = removeImpulses(img, rawLum);
   // (the decoder makes it in its pass; nearWhiteMask's rule)
@@ -643,7 +704,27 @@ async function measureCamera(
   const mapW = Math.max(8, Math.round(widthMm * pxPerMm));
   const mapH = Math.max(8, Math.round(heightMm * pxPerMm));
 
-  // single-pixel spikes on the panel: counted and said (those in the surroundings do not matter)
+  // how much of the black photo's level on the panel was the display-off frame's light
+  if (off) {
+    const W = img.width;
+    let sumOff = 0;
+    let sumAfter = 0;
+    for (let y = 0; y < img.height; y += 2) {
+      for (let x = 0; x < W; x += 2) {
+        if (!insideQuad(cornersWork, x, y)) continue;
+        sumOff += off.lum[y * W + x]!;
+        sumAfter += rawLum.data[y * W + x]!;
+      }
+    }
+    const sharePct = sumOff + sumAfter > 0 ? (100 * sumOff) / (sumOff + sumAfter) : 0;
+    result.offFrame = { file: opts.offFrame!, sha256: off.sha256, exposureRatio: off.ratio, sharePct };
+    if (sharePct > 50) {
+      result.warnings.push(
+        `the display-off frame's light made up ${sharePct.toFixed(0)} % of the black photo's level on the panel: darken the room or remove what the screen reflects, or the black figures rest mostly on the subtraction`,
+      );
+    }
+  }
+    // single-pixel spikes on the panel: counted and said (those in the surroundings do not matter)
   const spikesOnPanel = spikes.filter((i) => insideQuad(cornersWork, i % img.width, Math.floor(i / img.width))).length;
   if (result.exposureStats) result.exposureStats = { ...result.exposureStats, spikesRemoved: spikesOnPanel };
   if (spikesOnPanel > 0) {
