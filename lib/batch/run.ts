@@ -74,7 +74,7 @@ function sha(text: string): string {
 
 /** What a panel's stored result depends on: its photos (size and time), its grouping and the run settings. */
 function panelSignature(group: PanelGroup, ctx: RunContext): string {
-  const files = group.photos.map((p) => {
+  const files = [...group.photos, ...(group.offFrame ? [{ file: group.offFrame, pattern: 'off' }] : [])].map((p) => {
     let st: { size: number; mtimeMs: number } | null = null;
     try {
       const s = statSync(p.file);

@@ -982,6 +982,17 @@ function photoMethodPairs(p: PreparedPhoto): Array<[string, string | Cell]> {
         `${fmtPct(s.darkFraction * 100, 2)} % in the noise floor; median Y ${fmtNum(s.median)}, 99.9th percentile ${fmtNum(s.p999)} (linear, 1 = white)`
       : 'not recorded',
   ]);
+  if (ph.offFrame) {
+    const o = ph.offFrame;
+    pairs.push([
+      'Display-off frame',
+      `${o.file} (SHA-256 ${shortHash(o.sha256, 16)}…), its light scaled by ${trim(o.exposureRatio, 3)} for the exposures and taken from this photo before measuring: ` +
+        `room light reflected by the screen and the camera's offset, ${fmtPct(o.sharePct)} % of this photo's level on the panel`,
+    ]);
+  }
+  if (s && (s.spikesRemoved ?? 0) > 0) {
+    pairs.push(['Single-pixel spikes', `${s.spikesRemoved} on the panel replaced by their neighbours' mean (hot or dead camera pixels, or panel dots smaller than one pixel as measured)`]);
+  }
   const f = ph.falloff;
   pairs.push([
     'Lens falloff correction',
@@ -1048,7 +1059,10 @@ function drawMethod(ctx: Ctx): void {
       { header: 'File', width: 155 },
       { header: 'SHA-256 of the file as read', width: PAGE.contentWidth - 225, font: 'Mono' },
     ],
-    ctx.prepared.map((p) => [`${p.number}. ${patternName(p.photo.pattern, p.photo.patternLevel)}`, p.photo.file, p.photo.sha256]),
+    ctx.prepared.flatMap((p) => [
+      [`${p.number}. ${patternName(p.photo.pattern, p.photo.patternLevel)}`, p.photo.file, p.photo.sha256],
+      ...(p.photo.offFrame ? [[`${p.number}. display off`, p.photo.offFrame.file, p.photo.offFrame.sha256]] : []),
+    ]),
     { size: 7 },
   );
 
