@@ -93,7 +93,8 @@ export function loadResponse(path: string): ResponseCurve {
     throw new EvenfieldError('response', `not a valid camera response: ${why}`, path);
   }
   try {
-    return curveFromTable(parsed.data.linear, 'table');
+    const curve = curveFromTable(parsed.data.linear, 'table');
+    return { ...curve, camera: { make: parsed.data.camera.make, model: parsed.data.camera.model } };
   } catch (e) {
     throw new EvenfieldError('response', `not a valid camera response: ${(e as Error).message}`, path);
   }

@@ -19,6 +19,8 @@ export interface ResponseCurve {
   id: string;
   /** 256 values, linear[255] = 1, strictly increasing */
   linear: number[];
+  /** the camera it was measured on (EXIF make and model), when known */
+  camera?: { make: string | null; model: string | null };
 }
 
 /** How code values become linear light. */

@@ -529,6 +529,15 @@ async function measureCamera(
   result.exposure = decoded.exposure;
   result.exposureStats = decoded.stats;
   result.warnings.push(...decoded.warnings);
+  // a response belongs to one camera (and picture style): say when the photo comes from another
+  const response = responseOf(opts);
+  const rc = response?.camera;
+  const pe = decoded.exposure;
+  if (rc && rc.model && pe.model && (rc.model !== pe.model || (rc.make && pe.make && rc.make !== pe.make))) {
+    result.warnings.push(
+      `the camera response was measured on ${[rc.make, rc.model].filter(Boolean).join(' ')}, this photo is from ${[pe.make, pe.model].filter(Boolean).join(' ')}: its tone curve may differ`,
+    );
+  }
   const orientation = decoded.orientation ?? 1;
   if (orientation === 2 || orientation === 4 || orientation === 5 || orientation === 7) {
     result.warnings.push(`EXIF orientation ${orientation} is a mirrored view: corners are ordered as the stored pixels show the panel`);

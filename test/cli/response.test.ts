@@ -6,7 +6,7 @@
 // the tone curve is an invented one (sRGB bent into an S, 35 % steeper at mid-scale), as camera JPEG
 // engines apply (common practice).
 import { spawnSync } from 'node:child_process';
-import { mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
+import { mkdirSync, mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { beforeAll, describe, expect, it } from 'vitest';
@@ -28,6 +28,7 @@ let base: PhotoSpec;
 
 beforeAll(async () => {
   dir = mkdtempSync(join(tmpdir(), 'ef-response-'));
+  mkdirSync(join(dir, 'other'));
   // five photos of one white panel in a dim room, one stop apart, strong lens falloff for a spread of levels
   base = randomScene(501, { width: 1200, height: 800, features: [0, 0], yawDeg: [0, 0], pitchDeg: [0, 0] });
   base.camera.k1 = -0.35;
@@ -82,6 +83,18 @@ describe('calibrate --bracket and inspect --response', () => {
     const res = JSON.parse(readFileSync(join(dir, 'measured', 'results.json'), 'utf8'));
     expect(res.panels[0].photos[0].decode.transfer).toBe('response');
     expect(res.options.transfer).toMatchObject({ kind: 'response', source: profile });
+    expect(res.panels[0].photos[0].warnings.join(' ')).not.toMatch(/response was measured on/);
+  });
+
+  it('says when a photo comes from another camera than the response', async () => {
+    const spec = randomScene(2025, { width: 1200, height: 800, features: [0, 0], k1: [0, 0] });
+    spec.camera.model = 'FG-9 (synthetic)';
+    spec.output = { toneCurve: CURVE };
+    writeFileSync(join(dir, 'other', 'R1_white.jpg'), (await renderPhoto(spec)).buffer);
+    const r = run(['inspect', join(dir, 'other'), '--out', join(dir, 'other-out'), '--response', join(dir, 'response.json'), '--no-pdf', '--no-mura', '--jobs', '1', '--quiet']);
+    expect(r.stderr).toBe('');
+    const ph = JSON.parse(readFileSync(join(dir, 'other-out', 'results.json'), 'utf8')).panels[0].photos[0];
+    expect(ph.warnings.join(' ')).toMatch(/camera response was measured on Fieldglass FG-1 \(synthetic\), this photo is from Fieldglass FG-9 \(synthetic\)/);
   });
 
   it('refuses a bracket that cannot give a response, in one line each', () => {
