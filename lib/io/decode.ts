@@ -206,6 +206,12 @@ async function readHeader(buf: Buffer, name: string, maxPixels: number): Promise
 }
 
 function chooseTransfer(buf: Buffer, plan: Plan, requested: 'auto' | Transfer, warnings: string[]): Transfer {
+  // a measured response is of a camera's 8-bit code values (its JPEG engine); a 16-bit file came from
+  // other software (a raw converter), whose curve the file itself declares
+  if (typeof requested === 'object' && plan.bitDepth === 16) {
+    warnings.push("16-bit file: the camera response (measured on 8-bit photos) is not applied; the file's own transfer is used");
+    requested = 'auto';
+  }
   if (requested !== 'auto') return requested;
   let taggedLinear = false;
   let why = '';

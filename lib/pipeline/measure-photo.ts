@@ -478,7 +478,7 @@ async function subtractOffFrame(
   }
   if (off.info.width !== decoded.info.width || off.info.height !== decoded.info.height) {
     throw new EvenfieldError(
-      'usage',
+      'unreadable',
       `display-off frame ${offFile} is ${off.info.width}×${off.info.height}, the photo ${decoded.info.width}×${decoded.info.height}: take both from one camera position and setting`,
       file,
     );

@@ -20,6 +20,8 @@ import {
   type ResponseCurve,
 } from '../../lib/photometry/index.js';
 import { BRACKET_LIMITS, exactShutterTimes, parseExposureTime } from '../../lib/cli/response-commands.js';
+import { decodePhotoBuffer } from '../../lib/io/decode.js';
+import sharp from 'sharp';
 
 /** colorjs.io's sRGB decode of one channel value v (0..1) */
 function colorjsLinear(v: number): number {
@@ -134,6 +136,27 @@ describe('a measured response as a transfer', () => {
     const z = 200;
     expect(transferCodeStepPct(curve, linear[z]! * 1.0000001)).toBeCloseTo((100 * (linear[z + 1]! - linear[z]!)) / linear[z]!, 3);
     expect(transferCodeStepPct(curve, linear[z]!)).toBeCloseTo((100 * 2.2) / z, 0);
+  });
+});
+
+describe('decoding through a measured response', () => {
+  const linear = Array.from({ length: 256 }, (_, z) => Math.pow(z / 255, 2.2));
+  const curve: ResponseCurve = { id: responseId(linear), linear };
+
+  it('reads 8-bit codes through the table, and leaves 16-bit files to their own transfer, saying so', async () => {
+    const codes = Buffer.from([0, 64, 128, 200, 255, 17]);
+    const png8 = await sharp(codes, { raw: { width: 2, height: 1, channels: 3 } }).png().toBuffer();
+    const d8 = await decodePhotoBuffer(png8, 'eight.png', { transfer: curve });
+    expect(d8.info.transfer).toBe('response');
+    expect(d8.info.responseId).toBe(curve.id);
+    for (let i = 0; i < 6; i++) expect(d8.image.data[i]).toBeCloseTo(linear[codes[i]!]!, 6);
+    const png16 = await sharp(Buffer.from(new Uint16Array([0, 16384, 32768, 51400, 65535, 4369]).buffer), { raw: { width: 2, height: 1, channels: 3 } })
+      .toColourspace('rgb16')
+      .png()
+      .toBuffer();
+    const d16 = await decodePhotoBuffer(png16, 'sixteen.png', { transfer: curve });
+    expect(d16.info.transfer).toBe('srgb');
+    expect(d16.warnings.join(' ')).toMatch(/16-bit file: the camera response .* is not applied/);
   });
 });
 

@@ -8,7 +8,7 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { beforeAll, describe, expect, it } from 'vitest';
 import { randomScene, renderPhoto } from '../../fixtures/generator/index.js';
-import { groupByName } from '../../lib/batch/grouping.js';
+import { groupByManifest, groupByName } from '../../lib/batch/grouping.js';
 
 const BIN = join(__dirname, '..', '..', 'bin', 'evenfield.js');
 let dir: string;
@@ -48,6 +48,15 @@ describe('display-off frame', () => {
     expect(g.panels[0]!.offFrame).toBe(join(dir, 'G1_off.jpg'));
     expect(g.panels[0]!.photos.map((p) => p.pattern)).toEqual(['white', 'black']);
     expect(g.unassigned).toEqual([{ file: '/x/H2_off.jpg', reason: 'display-off frame without a black-field photo of panel H2 to take it from' }]);
+  });
+
+  it('is listed in a manifest as pattern off; a second one for a panel is a grouping problem', () => {
+    const m = join(dir, 'manifest.csv');
+    writeFileSync(m, 'file,panel,pattern\nG1_black.jpg,G1,black\nG1_off.jpg,G1,OFF\nG1_white.jpg,G1,white\nG1_white.jpg2,G1,off\n');
+    writeFileSync(join(dir, 'G1_white.jpg2'), '');
+    const g = groupByManifest(m);
+    expect(g.panels[0]!.offFrame).toMatch(/G1_off\.jpg$/);
+    expect(g.panels[0]!.problems).toEqual([expect.stringMatching(/two display-off frames for panel G1: .*G1_off\.jpg and .*G1_white\.jpg2/)]);
   });
 
   it("takes the screen's reflection out of the black field: the glow as drawn", () => {
