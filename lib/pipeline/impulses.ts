@@ -67,22 +67,8 @@ export function removeImpulses(img: RgbImage, lum: Plane, opts: ImpulseOptions =
       const c = L[i - W + 1]!;
       const g = L[i + W - 1]!;
       const j = L[i + W + 1]!;
-      let mx = a;
-      let mn = a;
-      if (b > mx) mx = b;
-      else if (b < mn) mn = b;
-      if (c > mx) mx = c;
-      else if (c < mn) mn = c;
-      if (e > mx) mx = e;
-      else if (e < mn) mn = e;
-      if (f > mx) mx = f;
-      else if (f < mn) mn = f;
-      if (g > mx) mx = g;
-      else if (g < mn) mn = g;
-      if (h > mx) mx = h;
-      else if (h < mn) mn = h;
-      if (j > mx) mx = j;
-      else if (j < mn) mn = j;
+      const mx = Math.max(m4, Math.max(Math.max(a, c), Math.max(g, j)));
+      const mn = Math.min(n4, Math.min(Math.min(a, c), Math.min(g, j)));
       // quick exit: inside the neighbours' range, the usual case
       if (v <= mx && v >= mn) continue;
       const mean = (a + b + c + e + f + g + h + j) / 8;
