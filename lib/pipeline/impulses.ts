@@ -6,24 +6,27 @@
 // before anything is measured, and counted.
 //
 // A pixel is a spike when its luminance stands above the highest of its eight neighbours (or below the
-// lowest) by more than twice the neighbours' own spread, by more than half its own excess over their mean
-// (so it stands alone: the peak of any feature the optics blurred over two pixels or more has neighbours
-// at more than half its excess), by more than `minExcess` of their mean, and by more than `minCodes`
-// 8-bit code values at their level (sRGB steps; dark JPEG areas come in whole steps of 10–30 %).
+// lowest) by more than three times the neighbours' own spread, by more than half its own excess over
+// their mean (so it stands alone: the peak of any feature the optics blurred over two pixels or more has
+// neighbours at more than half its excess), by more than half their mean (`minExcess`), and by more than
+// three 8-bit code values at their level (`minCodes`; sRGB steps: dark JPEG areas come in whole steps
+// of 10–30 %). Hot pixels of dark exposures stand many times above the field; a hot pixel a fraction
+// above a lit field is left (it reads as a spot of a few SEMU at most).
 
 import type { Plane, RgbImage } from '../types.js';
 import { srgbDecode, srgbEncode } from '../photometry/index.js';
 
 export interface ImpulseOptions {
-  /** the spike must exceed its neighbours' spread (max − min) this many times (default 2) */
+  /** the spike must exceed its neighbours' spread (max − min) this many times (default 3) */
   spreadFactor: number;
-  /** ... and its neighbours' mean by this share of that mean (default 0.1) */
+  /** ... and its neighbours' mean by this share of that mean (default 0.5: camera JPEGs leave single
+   *  pixels 10–25 % off their neighbours in noise and ringing, as the demo's photos show) */
   minExcess: number;
   /** ... and by this many 8-bit sRGB code steps at the neighbours' level (default 3) */
   minCodes: number;
 }
 
-export const DEFAULT_IMPULSE_OPTIONS: ImpulseOptions = { spreadFactor: 2, minExcess: 0.1, minCodes: 3 };
+export const DEFAULT_IMPULSE_OPTIONS: ImpulseOptions = { spreadFactor: 3, minExcess: 0.5, minCodes: 3 };
 
 /** linear light of `codes` sRGB code steps at level l (the step at code 1 below that level) */
 function codeSteps(l: number, codes: number): number {
@@ -49,7 +52,7 @@ export function removeImpulses(img: RgbImage, lum: Plane, opts: ImpulseOptions =
     for (let x = 1; x < W - 1; x++) {
       const i = row + x;
       const v = L[i]!;
-      // quick exits (a spike beats all eight by twice their spread, so any pair of them by twice the
+      // quick exits (a spike beats all eight by k times their spread, so any pair of them by k times the
       // pair's spread): the left and right pair, then the four nearest; nearly every pixel leaves here
       const e = L[i - 1]!;
       const f = L[i + 1]!;
