@@ -1332,7 +1332,21 @@ function findBands(ctx: Ctx, lv: Level, floor: number): BandProfile[] {
         peaks.push(c);
       }
       peaks.sort((p, q) => sign * S[q] - sign * S[p]);
-      for (const pk of peaks.slice(0, 10)) extrema.push([pk, sign]);
+      // the ten strongest, one to a feature: the profile through a broad feature (a large cloud pulls the
+      // medians of the rows through it) wiggles into many local extrema, which would crowd out a band
+      // elsewhere; a peak inside a stronger one's half-peak span is that one again
+      const kept: [number, number][] = [];
+      for (const pk of peaks) {
+        if (kept.length >= 10) break;
+        if (kept.some(([a, b]) => pk >= a && pk <= b)) continue;
+        const level = 0.5 * sign * S[pk];
+        let a = pk;
+        let b = pk;
+        while (a > 0 && sign * S[a - 1] >= level) a--;
+        while (b < across - 1 && sign * S[b + 1] >= level) b++;
+        kept.push([a, b]);
+        extrema.push([pk, sign]);
+      }
     }
     extrema.sort((a, b) => Math.abs(S[b[0]]) - Math.abs(S[a[0]]));
     // each extremum's own half-peak span (against the background): a strip beside one band that falls on
