@@ -248,13 +248,13 @@ export async function main(argv: string[]): Promise<number> {
       (y) =>
         y
           .positional('photos', { type: 'string', array: true, demandOption: true })
-          .option('out', { type: 'string', demandOption: true, describe: 'profile JSON to write' })
+          .option('out', { type: 'string', demandOption: true, describe: 'falloff profile (or, with --bracket, camera response) JSON to write' })
           .option('shifted', { type: 'boolean', default: false, describe: 'the photos show one panel with the camera shifted between shots' })
           .option('bracket', { type: 'boolean', default: false, describe: "the photos show one still scene at different exposures: measure the camera's response" })
           .option('times', { type: 'string', array: true, describe: 'with --bracket: exposure times in the order of the photos (e.g. 1/250 1/125), when EXIF lacks them' })
           .option('response', { type: 'string', describe: 'camera response JSON to read the flat frames or shifted photos through' })
           .option('linear', { type: 'boolean', describe: 'the flat frames or shifted photos hold linear values' })
-          .option('force', { type: 'boolean', default: false, describe: 'replace an existing profile' }),
+          .option('force', { type: 'boolean', default: false, describe: 'replace an existing file at --out' }),
       async (a) => {
         const photos = a.photos as string[];
         if (a.bracket) {
