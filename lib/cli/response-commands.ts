@@ -94,7 +94,11 @@ export function loadResponse(path: string): ResponseCurve {
   }
   try {
     const curve = curveFromTable(parsed.data.linear, 'table');
-    return { ...curve, camera: { make: parsed.data.camera.make, model: parsed.data.camera.model } };
+    return {
+      ...curve,
+      camera: { make: parsed.data.camera.make, model: parsed.data.camera.model },
+      measuredCodes: parsed.data.measuredCodes,
+    };
   } catch (e) {
     throw new EvenfieldError('response', `not a valid camera response: ${(e as Error).message}`, path);
   }

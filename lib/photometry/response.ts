@@ -21,6 +21,8 @@ export interface ResponseCurve {
   linear: number[];
   /** the camera it was measured on (EXIF make and model), when known */
   camera?: { make: string | null; model: string | null };
+  /** the code values it was measured between (outside them the table is extended), when known */
+  measuredCodes?: [number, number];
 }
 
 /** How code values become linear light. */

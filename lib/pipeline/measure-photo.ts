@@ -761,6 +761,14 @@ async function measureCamera(
     opts.quality,
   );
   result.warnings.push(...quality.warnings);
+  // a measured response is known between the codes its bracket reached; beyond them it is extended
+  const span = responseOf(opts)?.measuredCodes;
+  const median = 255 * quality.medianCode;
+  if (span && (median < span[0] || median > span[1])) {
+    result.warnings.push(
+      `the panel's median code value (${median.toFixed(0)}) lies outside the codes the camera response was measured between (${span[0].toFixed(0)}–${span[1].toFixed(0)}): the response there is an extension; widen the bracket`,
+    );
+  }
 
   // 6. rectify
   const rect = rectifyRgb(img, cornersWork, mapW, mapH);

@@ -97,6 +97,19 @@ describe('calibrate --bracket and inspect --response', () => {
     expect(ph.warnings.join(' ')).toMatch(/camera response was measured on Fieldglass FG-1 \(synthetic\), this photo is from Fieldglass FG-9 \(synthetic\)/);
   });
 
+  it('says when the panel lies outside the codes the response was measured between', () => {
+    // the same table, said to be measured between codes 3 and 100 only: the white panel sits higher
+    const file = JSON.parse(readFileSync(join(dir, 'response.json'), 'utf8'));
+    const narrow = join(dir, 'narrow.json');
+    writeFileSync(narrow, JSON.stringify({ ...file, measuredCodes: [3, 100] }));
+    const args = [join(dir, 'Q1_white.jpg'), '--panel-size', '597.9x336.3', '--no-pdf', '--no-mura', '--jobs', '1', '--quiet', '--force'];
+    run(['inspect', ...args, '--out', join(dir, 'narrow-out'), '--response', narrow]);
+    run(['inspect', ...args, '--out', join(dir, 'full-out'), '--response', join(dir, 'response.json')]);
+    const warn = (out: string) => JSON.parse(readFileSync(join(dir, out, 'results.json'), 'utf8')).panels[0].photos[0].warnings.join(' ');
+    expect(warn('narrow-out')).toMatch(/median code value \(\d+\) lies outside the codes the camera response was measured between \(3–100\)/);
+    expect(warn('full-out')).not.toMatch(/lies outside the codes/);
+  });
+
   it('refuses a bracket that cannot give a response, in one line each', () => {
     const out = join(dir, 'r.json');
     const one = (args: string[]) => {
