@@ -14,6 +14,7 @@ export type ErrorCode =
   | 'blurred' // panel edges out of focus or motion-blurred
   | 'glare' // specular reflection on the panel
   | 'moire' // strong moiré on the panel
+  | 'flicker' // bands from the display's pulsed light caught by a rolling shutter
   | 'too-oblique' // viewing angle too far from the panel normal
   | 'falloff' // falloff profile or calibration problem
   | 'response' // camera response file or exposure bracket problem

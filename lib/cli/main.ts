@@ -70,6 +70,7 @@ interface InspectArgs {
   'jpeg-samples'?: 'float' | '8bit';
   quiet?: boolean;
   'max-view-angle'?: number;
+  'max-flicker'?: number;
 }
 
 async function inspect(a: InspectArgs): Promise<number> {
@@ -136,10 +137,17 @@ async function inspect(a: InspectArgs): Promise<number> {
     workLongSide: a['work-size'] ?? DEFAULT_MEASURE_OPTIONS.workLongSide,
     jpegSamples: a['jpeg-samples'] ?? DEFAULT_MEASURE_OPTIONS.jpegSamples,
     artifacts: a.pdf,
-    quality: { ...DEFAULT_MEASURE_OPTIONS.quality, ...(a['max-view-angle'] !== undefined ? { maxViewAngleDeg: a['max-view-angle'] } : {}) },
+    quality: {
+      ...DEFAULT_MEASURE_OPTIONS.quality,
+      ...(a['max-view-angle'] !== undefined ? { maxViewAngleDeg: a['max-view-angle'] } : {}),
+      ...(a['max-flicker'] !== undefined ? { maxFlickerPct: a['max-flicker'] } : {}),
+    },
   };
   if (a['max-view-angle'] !== undefined && !(a['max-view-angle'] > 0 && a['max-view-angle'] < 90)) {
     throw new EvenfieldError('usage', `--max-view-angle must be between 0 and 90 degrees (got ${a['max-view-angle']})`);
+  }
+  if (a['max-flicker'] !== undefined && !(a['max-flicker'] >= 0 && Number.isFinite(a['max-flicker']))) {
+    throw new EvenfieldError('usage', `--max-flicker must be a percentage, 0 or more (got ${a['max-flicker']})`);
   }
   const ctx: RunContext = {
     measure,
@@ -237,6 +245,11 @@ export async function main(argv: string[]): Promise<number> {
             describe: 'JPEG decoding: float keeps the fraction of a code value an 8-bit decoder rounds away (default float; see README)',
           })
           .option('max-view-angle', { type: 'number', describe: 'refuse photos that see part of the panel more than this many degrees off its normal (default 60)' })
+          .option('max-flicker', {
+            type: 'number',
+            describe:
+              "refuse photos with periodic bands along the camera's rows (a pulsed display caught by a rolling shutter) above this peak-to-peak percent (default 1; 0 turns the check off)",
+          })
           .option('quiet', { type: 'boolean', describe: 'no progress output' }),
       async (a) => {
         status = await inspect(a as unknown as InspectArgs);

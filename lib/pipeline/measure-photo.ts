@@ -757,6 +757,8 @@ async function measureCamera(
       mapFootprintPx: quadWidthPx(cornersWork) / mapW,
       viewAngleMaxDeg,
       response: responseOf(opts),
+      tileGrid: opts.muraOptions.tileGrid ?? null,
+      exposureTimeS: decoded.exposure.exposureTimeS,
     },
     opts.quality,
   );

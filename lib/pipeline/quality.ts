@@ -6,6 +6,7 @@
 //   clipped      highlights clipped on the panel
 //   too-dark     panel signal down in the quantisation / noise floor
 //   blurred      panel edges out of focus or motion-blurred, judged against the smallest mura sought
+//   flicker      bands along the camera's rows from the display's pulsed light (rolling shutter; flicker.ts)
 //   moire        a periodic coloured ripple strong enough to survive into the panel map
 //   too-oblique  a part of the panel seen too far off its normal for its luminance to hold
 // The photo is refused with the first failing gate's code; the message names every failing gate.
@@ -19,6 +20,7 @@ import { EvenfieldError, type ErrorCode } from '../errors.js';
 import { cornerAngles, isConvexClockwise, panelToCamera, quadraticFit, rectifyPlane, signedArea } from '../geometry/index.js';
 import { srgbDecode, srgbEncode, transferEncode, type ResponseCurve } from '../photometry/index.js';
 import type { Corners, Pattern, Plane, Point, RgbImage } from '../types.js';
+import { findFlicker, type FlickerFinding } from './flicker.js';
 
 export interface QualityLimits {
   /** linear value at or above which a channel counts as clipped (sRGB code 0.98 ≈ linear 0.955) */
@@ -86,6 +88,19 @@ export interface QualityLimits {
    */
   moireColourTestPeriodPx: number;
   /**
+   * Flicker bands (flicker.ts): largest peak-to-peak ripple (percent of the level) of a periodic pattern
+   * along the camera's rows, the same across the panel's width and with no counterpart along them, for
+   * the photo to be measured. Default 1 %. Why: a ripple of 1 % peak to peak is measured as bands of
+   * about ±0.3 % mean contrast over their half-peak regions [computed: a sinusoid's mean over the part
+   * above half its peak is 0.83 of its amplitude, less what the background fit takes], SEMU about 0.4 on
+   * a 600 mm wide panel with 20 mm bands — below any usual limit; twice that reaches the contrasts mura
+   * limits are set at. 0 turns the check off (a panel whose own stripes lie exactly along the camera's
+   * rows, when turning the camera cannot be done).
+   */
+  maxFlickerPct: number;
+  /** above this peak-to-peak ripple (percent) the photo is measured with a warning. Default 0.4 %. */
+  warnFlickerPct: number;
+  /**
    * Too oblique: largest angle between the panel normal and the line of sight to any point of the
    * active area, degrees, beyond which the photo is refused. Default 60. Why 60: past it the panel is
    * foreshortened more than 2:1 (cos 60° = 0.5), so a map pixel rests on half the camera pixels, and
@@ -118,6 +133,8 @@ export const DEFAULT_QUALITY_LIMITS: QualityLimits = {
   maxMoireAmplitude: 0.01,
   moireMaxPeriodPx: 32,
   moireColourTestPeriodPx: 8,
+  maxFlickerPct: 1,
+  warnFlickerPct: 0.4,
   maxViewAngleDeg: 60,
   warnViewAngleDeg: 15,
 };
@@ -240,6 +257,10 @@ export interface QualityInput {
   /** a measured camera response the photo was decoded with (code values are then read through it);
    *  absent or null: the sRGB curve */
   response?: ResponseCurve | null;
+  /** the display's tile grid (columns, rows), when it is tiled: ripples at its seams' pitch are its own */
+  tileGrid?: [number, number] | null;
+  /** the photo's exposure time in seconds (EXIF), for the flicker message; null when unknown */
+  exposureTimeS?: number | null;
 }
 
 export interface EdgeWidth {
@@ -282,6 +303,7 @@ export interface QualityFigures {
   edges: EdgeWidth[];
   glare: GlareFinding | null;
   moire: MoireFinding | null;
+  flicker: FlickerFinding | null;
   viewAngleMaxDeg: number | null;
 }
 
@@ -955,7 +977,7 @@ export function assessPanelQuality(q: QualityInput, limits: QualityLimits): Qual
     cornerAngles(corners).every((a) => a >= 5 && a <= 175);
   if (!proper) {
     return {
-      figures: { pixels: 0, clippedFraction: 0, medianCode: 0, edges: [], glare: null, moire: null, viewAngleMaxDeg: q.viewAngleMaxDeg },
+      figures: { pixels: 0, clippedFraction: 0, medianCode: 0, edges: [], glare: null, moire: null, flicker: null, viewAngleMaxDeg: q.viewAngleMaxDeg },
       problems: [
         {
           code: 'no-panel',
@@ -990,7 +1012,7 @@ export function assessPanelQuality(q: QualityInput, limits: QualityLimits): Qual
   }
   if (n === 0) {
     return {
-      figures: { pixels: 0, clippedFraction: 0, medianCode: 0, edges: [], glare: null, moire: null, viewAngleMaxDeg: q.viewAngleMaxDeg },
+      figures: { pixels: 0, clippedFraction: 0, medianCode: 0, edges: [], glare: null, moire: null, flicker: null, viewAngleMaxDeg: q.viewAngleMaxDeg },
       problems: [{ code: 'no-panel', message: 'the panel outline encloses no pixels' }],
       warnings,
     };
@@ -1044,6 +1066,25 @@ export function assessPanelQuality(q: QualityInput, limits: QualityLimits): Qual
     warnings.push('the sharpness of the panel outline could not be checked (edges too faint to trace)');
   }
 
+  // flicker bands along the camera's rows
+  const flicker = dark || !(limits.maxFlickerPct > 0) ? null : findFlicker(rawLum, corners, { scale: q.scale, tileGrid: q.tileGrid ?? null });
+  if (flicker && 100 * flicker.peakToPeak > Math.min(limits.warnFlickerPct, limits.maxFlickerPct)) {
+    const t = q.exposureTimeS;
+    const what =
+      `bands along the camera's rows, ${(100 * flicker.peakToPeak).toFixed(1)} % peak to peak every ${flicker.periodSensorRows.toFixed(0)} rows of the photo ` +
+      `(${flicker.cycles.toFixed(1)} cycles, the same across the panel)` +
+      (t ? ` at an exposure of ${t >= 1 ? `${t} s` : `1/${Math.round(1 / t)} s`}` : '') +
+      ": the display's pulsed dimming (PWM) caught by the camera's rolling shutter?";
+    const how =
+      'retake with a longer exposure (1/30 s or longer; lower the ISO or stop down to keep the level), or at full display brightness, where many backlights do not pulse; ' +
+      "if the panel itself is striped along the camera's rows, turn the camera 10–20° about its axis (flicker bands stay along the camera's rows)";
+    if (100 * flicker.peakToPeak > limits.maxFlickerPct) {
+      problems.push({ code: 'flicker', message: `${what} (limit ${limits.maxFlickerPct} %): ${how}, or raise --max-flicker` });
+    } else {
+      warnings.push(`${what} (warned from ${limits.warnFlickerPct} %, refused from ${limits.maxFlickerPct} %): mura bands along them may be this ripple; ${how}`);
+    }
+  }
+
   // moiré
   const moire = dark ? null : findMoire(q, limits);
   if (moire && moire.amplitude > limits.maxMoireAmplitude) {
@@ -1072,7 +1113,7 @@ export function assessPanelQuality(q: QualityInput, limits: QualityLimits): Qual
   }
 
   return {
-    figures: { pixels: n, clippedFraction, medianCode, edges, glare, moire, viewAngleMaxDeg: va },
+    figures: { pixels: n, clippedFraction, medianCode, edges, glare, moire, flicker, viewAngleMaxDeg: va },
     problems,
     warnings,
   };
