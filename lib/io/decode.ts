@@ -34,7 +34,7 @@ import { EvenfieldError } from '../errors.js';
 import { SRGB_TO_XYZ, decodeLut, transferName, type Transfer } from '../photometry/index.js';
 import { readExif } from './exif.js';
 import { readInputFile, sha256OfBuffer } from './files.js';
-import { CAMERA_RAW_ADVICE, cameraRawKind, describeDecodeFailure, describeStart, formatName, sniffFormat } from './sniff.js';
+import { CAMERA_RAW_ADVICE, cameraRawKind, describeDecodeFailure, describeStart, formatName, missingCodec, sniffFormat } from './sniff.js';
 import { quantiles } from './stats.js';
 import { JpegDataError, decodeJpegFloat, lumaDcQuant } from './jpeg-float.js';
 import { readIccSummary, readPngColourChunks, type IccSummary } from './tags.js';
@@ -168,6 +168,7 @@ async function readHeader(buf: Buffer, name: string, maxPixels: number): Promise
     meta = await sharp(buf, { limitInputPixels: false }).metadata();
   } catch (e) {
     const msg = (e as Error).message;
+    if (missingCodec(msg) !== null) throw new EvenfieldError('unreadable', describeDecodeFailure(sniffed, msg), name);
     if (/unsupported|not built|no decoder|compression format|not (been )?enabled/i.test(msg)) {
       const first = (msg.split('\n')[0] ?? '').trim();
       throw new EvenfieldError('unreadable', `${formatName(sniffed)} variant not supported by the decoder (${first})`, name);

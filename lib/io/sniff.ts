@@ -130,9 +130,27 @@ export function formatName(f: string): string {
   return names[f] ?? f.toUpperCase();
 }
 
+/** How to get photos a HEIF decoder without HEVC can read (phones save HEVC-coded HEIC by default). */
+export const HEVC_ADVICE =
+  'take JPEGs instead (on an iPhone: Settings > Camera > Formats > Most Compatible), or convert these to JPEG at quality 95 or more keeping their EXIF (for example "heif-convert -q 95 IMG.heic IMG.jpg")';
+
+/** The codec a decoder failure says it lacks ("... has not been built in: HEVC ..."), or null. */
+export function missingCodec(message: string): string | null {
+  const line = message.split('\n').find((l) => /not been built in|no decoder|unsupported codec|decoder plugin/i.test(l));
+  if (!line) return null;
+  const m = /built in:\s*([A-Za-z0-9.+-]+)/.exec(line) ?? /codec:?\s*([A-Za-z0-9.+-]+)/i.exec(line);
+  return m ? m[1] : 'unknown';
+}
+
 /** One-line cause of a decoder failure, in plain words. */
 export function describeDecodeFailure(format: string, message: string): string {
   const name = formatName(format);
+  // a file this build cannot decode is not a damaged one (libvips lists its failed seeks first)
+  const codec = missingCodec(message);
+  if (codec !== null) {
+    const what = codec === 'unknown' ? `a ${name} coding` : codec;
+    return `${name} photo coded with ${what}, which this build's image decoder cannot read: ${codec === 'HEVC' ? HEVC_ADVICE : 'save or convert the photos as JPEG, PNG or TIFF'}`;
+  }
   const first = (message.split('\n')[0] ?? '').replace(/^Input (buffer|file) (has corrupt header|contains)\s*:?\s*/i, '').trim();
   if (/^Warning treated as error/i.test(first)) {
     return `truncated or damaged ${name} data (the decoder warned while reading it)`;
