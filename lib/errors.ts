@@ -6,6 +6,7 @@ export type ErrorCode =
   | 'usage' // bad command-line option or combination
   | 'not-found' // file or folder does not exist
   | 'unreadable' // not an image, truncated, zero bytes, unsupported format
+  | 'lossy-format' // a lossy coding other than JPEG's (lossy WebP, HEIF, AVIF): its artefacts read as mura
   | 'too-large' // pixel count above the decompression limit
   | 'no-panel' // no panel outline found in the photo
   | 'partly-outside' // panel not wholly inside the frame

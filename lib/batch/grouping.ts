@@ -8,7 +8,9 @@ import { EvenfieldError } from '../errors.js';
 import { CAMERA_RAW_EXTENSIONS } from '../io/index.js';
 import type { Corners, Pattern } from '../types.js';
 
-export const IMAGE_EXTENSIONS = new Set(['.jpg', '.jpeg', '.png', '.tif', '.tiff', '.webp']);
+// HEIF files (.heic from phones, .avif) are listed too: AVIF-coded ones decode, and HEVC-coded ones are
+// refused one by one with how to get JPEGs (io/sniff.ts), instead of the folder looking empty
+export const IMAGE_EXTENSIONS = new Set(['.jpg', '.jpeg', '.png', '.tif', '.tiff', '.webp', '.heic', '.heif', '.avif']);
 
 export interface PhotoEntry {
   file: string; // path as the user will read it

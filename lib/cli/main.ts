@@ -112,7 +112,7 @@ async function inspect(a: InspectArgs): Promise<number> {
     if (missing.length > 0) throw new EvenfieldError('not-found', 'no such file or folder', missing[0]);
     if (files.length === 0) {
       const raws = rawSkipped > 0 ? ` (only ${rawSkipped} camera raw file${rawSkipped > 1 ? 's' : ''}: ${CAMERA_RAW_ADVICE})` : '';
-      throw new EvenfieldError('usage', `no photos (.jpg, .png, .tif, .webp) found in ${a.paths.join(', ')}${raws}`);
+      throw new EvenfieldError('usage', `no photos (.jpg, .png, .tif, .webp, .heic, .avif) found in ${a.paths.join(', ')}${raws}`);
     }
     grouping = groupByName(files);
   }

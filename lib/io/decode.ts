@@ -34,7 +34,7 @@ import { EvenfieldError } from '../errors.js';
 import { SRGB_TO_XYZ, decodeLut, transferName, type Transfer } from '../photometry/index.js';
 import { readExif } from './exif.js';
 import { readInputFile, sha256OfBuffer } from './files.js';
-import { CAMERA_RAW_ADVICE, cameraRawKind, describeDecodeFailure, describeStart, formatName, missingCodec, sniffFormat } from './sniff.js';
+import { CAMERA_RAW_ADVICE, cameraRawKind, describeDecodeFailure, describeStart, formatName, lossyCodingAdvice, lossyNonJpegCoding, missingCodec, sniffFormat } from './sniff.js';
 import { quantiles } from './stats.js';
 import { JpegDataError, decodeJpegFloat, lumaDcQuant } from './jpeg-float.js';
 import { readIccSummary, readPngColourChunks, type IccSummary } from './tags.js';
@@ -163,6 +163,8 @@ async function readHeader(buf: Buffer, name: string, maxPixels: number): Promise
   if (sniffed.startsWith('other:')) {
     throw new EvenfieldError('unreadable', `not a supported image file (${sniffed.slice(6)})`, name);
   }
+  const lossy = lossyNonJpegCoding(buf);
+  if (lossy !== null) throw new EvenfieldError('lossy-format', lossyCodingAdvice(lossy), name);
   let meta: Metadata;
   try {
     meta = await sharp(buf, { limitInputPixels: false }).metadata();

@@ -131,8 +131,44 @@ export function formatName(f: string): string {
 }
 
 /** How to get photos a HEIF decoder without HEVC can read (phones save HEVC-coded HEIC by default). */
-export const HEVC_ADVICE =
-  'take JPEGs instead (on an iPhone: Settings > Camera > Formats > Most Compatible), or convert these to JPEG at quality 95 or more keeping their EXIF (for example "heif-convert -q 95 IMG.heic IMG.jpg")';
+export const HEVC_ADVICE = "take JPEGs at the camera's best quality instead (on an iPhone: Settings > Camera > Formats > Most Compatible)";
+
+/**
+ * A lossy coding other than JPEG's, from the file's bytes: 'lossy WebP', 'HEVC-coded HEIF', 'AVIF' or
+ * 'HEIF'; null for anything else (JPEG, PNG, TIFF, lossless WebP ...). Their artefacts on a smooth field
+ * are measured as mura (README, "Taking the photos"), and unlike JPEG's they are not modelled.
+ */
+export function lossyNonJpegCoding(buf: Uint8Array): string | null {
+  const f = sniffFormat(buf);
+  if (f === 'webp') {
+    // RIFF chunks after the 12-byte header: 'VP8 ' is the lossy coding, 'VP8L' the lossless one;
+    // 'VP8X' (extended) carries either further on
+    for (let o = 12; o + 8 <= buf.length; ) {
+      const id = ascii(buf, o, o + 4);
+      if (id === 'VP8 ') return 'lossy WebP';
+      if (id === 'VP8L') return null;
+      const size = (buf[o + 4]! | (buf[o + 5]! << 8) | (buf[o + 6]! << 16) | (buf[o + 7]! << 24)) >>> 0;
+      o += 8 + size + (size & 1);
+    }
+    return null;
+  }
+  if (f === 'heif') {
+    // the ftyp box: size, 'ftyp', major brand, minor version, compatible brands
+    const size = ((buf[0]! << 24) | (buf[1]! << 16) | (buf[2]! << 8) | buf[3]!) >>> 0;
+    const brands = [ascii(buf, 8, 12)];
+    for (let o = 16; o + 4 <= Math.min(size, buf.length, 256); o += 4) brands.push(ascii(buf, o, o + 4));
+    if (brands.some((b) => /^(heic|heix|hevc|hevx|heim|heis)$/.test(b))) return 'HEVC-coded HEIF';
+    if (brands.some((b) => /^(avif|avis)$/.test(b))) return 'AVIF';
+    return 'HEIF';
+  }
+  return null;
+}
+
+/** What to do with a photo in a lossy coding other than JPEG's, for the one-line refusal. */
+export function lossyCodingAdvice(coding: string): string {
+  const how = coding.includes('HEIF') ? HEVC_ADVICE : "take JPEGs at the camera's best quality, or PNG or TIFF";
+  return `${coding} photo: its lossy coding leaves artefacts on a smooth field that are measured as mura (unlike JPEG's, they are not modelled), so it is not measured; ${how} (a conversion keeps the artefacts)`;
+}
 
 /** The codec a decoder failure says it lacks ("... has not been built in: HEVC ..."), or null. */
 export function missingCodec(message: string): string | null {
