@@ -103,6 +103,9 @@ export interface DecodedPhoto {
   method: 'full' | ScaleMethod;
   /** embedded colour profile, if any */
   iccProfile: IccSummary | null;
+  /** linear RGB of `image` to CIE XYZ (D65), row-major 3 × 3: the embedded RGB profile's primaries when
+   *  they are not sRGB's (e.g. Display P3), else SRGB_TO_XYZ */
+  rgbToXyz: readonly number[];
   warnings: string[];
 }
 
@@ -242,8 +245,12 @@ function profileWarnings(plan: Plan, transfer: Transfer, warnings: string[]): vo
   }
   if (!icc) return;
   const name = icc.description ? `"${icc.description}"` : '(unnamed)';
-  if (icc.srgbPrimaries === false) {
-    warnings.push(`embedded colour profile ${name} has primaries other than sRGB's; code values are read as sRGB, so colour figures are approximate`);
+  if (icc.srgbPrimaries === false && !plan.isCmyk) {
+    warnings.push(
+      icc.rgbToXyzD65
+        ? `embedded colour profile ${name} has primaries other than sRGB's: colour and luminance are computed with its primaries`
+        : `embedded colour profile ${name} has primaries other than sRGB's and none could be read from it; code values are read as sRGB, so colour figures are approximate`,
+    );
   }
   if (icc.curve === 'other' && transfer === 'srgb') {
     warnings.push(`embedded colour profile ${name} has a tone curve other than sRGB's; code values are decoded with the sRGB curve`);
@@ -759,6 +766,15 @@ function finish(
     orientation: exif.orientation ?? plan.orientationFromHeader,
     method,
     iccProfile: plan.icc,
+    rgbToXyz: primariesOf(plan),
     warnings,
   };
+}
+
+/** The RGB to XYZ matrix the file's values are in (see DecodedPhoto.rgbToXyz). CMYK files are converted
+ *  to sRGB by the decoder; profiles without colorant tags are taken as sRGB. */
+function primariesOf(plan: Plan): readonly number[] {
+  const icc = plan.icc;
+  if (plan.isCmyk || !icc || icc.srgbPrimaries !== false || !icc.rgbToXyzD65) return SRGB_TO_XYZ;
+  return icc.rgbToXyzD65;
 }

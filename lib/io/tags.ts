@@ -49,6 +49,10 @@ export interface IccSummary {
   curve: CurveKind | null;
   /** RGB profiles: whether the colorants are the sRGB primaries (within 0.01 in xy after adaptation) */
   srgbPrimaries: boolean | null;
+  /** RGB profiles: linear RGB to CIE XYZ under D65 from the profile's colorants (rXYZ, gXYZ, bXYZ,
+   *  which ICC profiles store adapted to the D50 connection white), adapted back to D65 by Bradford and
+   *  scaled so that white has Y = 1; row-major 3 × 3. Null without the colorant tags. */
+  rgbToXyzD65: number[] | null;
 }
 
 function tag(buf: Uint8Array, view: DataView, sig: string): { off: number; size: number } | null {
@@ -188,6 +192,27 @@ export function srgbColorantsD50(): Array<[number, number]> {
   });
 }
 
+/**
+ * The RGB to XYZ (D65) matrix of three colorants given in the ICC connection space (D50): each column
+ * adapted from the D50 white to D65 (ours: SRGB_TO_XYZ's white) with the Bradford transform, then all
+ * scaled so that RGB white has Y = 1. Null when the colorants are degenerate.
+ */
+export function colorantsToD65(cols: [number, number, number][]): number[] | null {
+  const w65 = mul3(SRGB_TO_XYZ, [1, 1, 1]);
+  const src = mul3(BRADFORD, PCS_D50);
+  const dst = mul3(BRADFORD, w65);
+  const inv = invert3(BRADFORD);
+  const adapted = cols.map((c) => {
+    const cone = mul3(BRADFORD, c);
+    return mul3(inv, [(cone[0] * dst[0]) / src[0], (cone[1] * dst[1]) / src[1], (cone[2] * dst[2]) / src[2]]);
+  });
+  const whiteY = adapted[0]![1] + adapted[1]![1] + adapted[2]![1];
+  if (!(whiteY > 0) || adapted.some((c) => c.some((v) => !Number.isFinite(v)))) return null;
+  const m: number[] = [];
+  for (let r = 0; r < 3; r++) for (let k = 0; k < 3; k++) m.push(adapted[k]![r]! / whiteY);
+  return m;
+}
+
 /** Summarise an ICC profile; null when the bytes are not a profile. */
 export function readIccSummary(buf: Uint8Array): IccSummary | null {
   if (buf.length < 132) return null;
@@ -210,19 +235,24 @@ export function readIccSummary(buf: Uint8Array): IccSummary | null {
   }
 
   let srgbPrimaries: boolean | null = null;
+  let rgbToXyzD65: number[] | null = null;
   if (colourSpace === 'RGB') {
     const ref = srgbColorantsD50();
     const sigs = ['rXYZ', 'gXYZ', 'bXYZ'];
     srgbPrimaries = true;
+    const cols: [number, number, number][] = [];
     for (let k = 0; k < 3; k++) {
       const t = tag(buf, view, sigs[k]!);
       if (!t || typeSig(buf, t.off) !== 'XYZ ') {
         srgbPrimaries = null;
         break;
       }
-      const xy = xyzToXy(s15(view, t.off + 8), s15(view, t.off + 12), s15(view, t.off + 16));
+      const c: [number, number, number] = [s15(view, t.off + 8), s15(view, t.off + 12), s15(view, t.off + 16)];
+      cols.push(c);
+      const xy = xyzToXy(c[0], c[1], c[2]);
       if (Math.hypot(xy[0] - ref[k]![0], xy[1] - ref[k]![1]) > 0.01) srgbPrimaries = false;
     }
+    if (cols.length === 3) rgbToXyzD65 = colorantsToD65(cols);
   }
-  return { description, colourSpace, curve, srgbPrimaries };
+  return { description, colourSpace, curve, srgbPrimaries, rgbToXyzD65 };
 }

@@ -250,12 +250,20 @@ function focalPxOf(decoded: DecodedPhoto, scale: number, fallback35: number | nu
   return ((f35 / 43.267) * diag) / scale;
 }
 
-function rgbToXyzMap(rgb: RgbImage, valid: Uint8Array, widthMm: number, heightMm: number, pxPerMm: number, mmKnown: boolean): PanelMap {
+function rgbToXyzMap(
+  rgb: RgbImage,
+  valid: Uint8Array,
+  widthMm: number,
+  heightMm: number,
+  pxPerMm: number,
+  mmKnown: boolean,
+  rgbToXyz: readonly number[],
+): PanelMap {
   const n = rgb.width * rgb.height;
   const X = new Float32Array(n);
   const Y = new Float32Array(n);
   const Z = new Float32Array(n);
-  const [m0, m1, m2, m3, m4, m5, m6, m7, m8] = SRGB_TO_XYZ as [number, number, number, number, number, number, number, number, number];
+  const [m0, m1, m2, m3, m4, m5, m6, m7, m8] = rgbToXyz as [number, number, number, number, number, number, number, number, number];
   const d = rgb.data;
   for (let i = 0, k = 0; i < n; i++, k += 3) {
     const r = d[k];
@@ -774,7 +782,7 @@ async function measureCamera(
 
   // 6. rectify
   const rect = rectifyRgb(img, cornersWork, mapW, mapH);
-  const map = rgbToXyzMap(rect.rgb, rect.valid, widthMm, heightMm, mapW / widthMm, known);
+  const map = rgbToXyzMap(rect.rgb, rect.valid, widthMm, heightMm, mapW / widthMm, known, decoded.rgbToXyz);
   const geometry: GeometryRecord = {
     cornersSource: geometrySource,
     edgeResidualPx: edgeResidual,
