@@ -90,12 +90,12 @@ export interface QualityLimits {
   /**
    * Flicker bands (flicker.ts): largest peak-to-peak ripple (percent of the level) of a periodic pattern
    * along the camera's rows, the same across the panel's width and with no counterpart along them, for
-   * the photo to be measured. Default 1 %. Why: a ripple of 1 % peak to peak is measured as bands of
-   * about ±0.3 % mean contrast over their half-peak regions [computed: a sinusoid's mean over the part
-   * above half its peak is 0.83 of its amplitude, less what the background fit takes], SEMU about 0.4 on
-   * a 600 mm wide panel with 20 mm bands — below any usual limit; twice that reaches the contrasts mura
-   * limits are set at. 0 turns the check off (a panel whose own stripes lie exactly along the camera's
-   * rows, when turning the camera cannot be done).
+   * the photo to be measured. Default 1 %. Why: a ripple of 1 % peak to peak (amplitude 0.5 %) is
+   * measured as bands of about 0.41 % mean contrast over their half-peak regions [computed: a sinusoid's
+   * mean over the part above half its peak is sin 60° / (π/3) = 0.83 of its amplitude], SEMU about 0.5
+   * for bands 20 mm wide across a 600 mm wide panel (SEMI D31's formula) — below the usual limits;
+   * twice that reaches them. 0 turns the check off (a panel whose own stripes lie exactly along the
+   * camera's rows, when turning the camera cannot be done).
    */
   maxFlickerPct: number;
   /** above this peak-to-peak ripple (percent) the photo is measured with a warning. Default 0.4 %. */
