@@ -357,11 +357,17 @@ function strongestLine(sp: Spectrum): { k: number; amp: number; prominence: numb
   for (let k = Math.max(kmin, 1); k <= Math.min(kmax, (M >> 1) - 2); k++) {
     if (!(amp[k] >= amp[k - 1] && amp[k] >= amp[k + 1])) continue;
     if (best && amp[k] <= best.amp) continue;
-    // median power beside the line, below and above it (a falling trend's leakage is no line)
+    // median power beside the line, below and above it (a falling trend's leakage is no line); the
+    // line's own harmonics are left out (narrow pulses have them as strong as the fundamental, and with
+    // few cycles the second lies within three lobes)
+    const harmonic = (j: number): boolean => {
+      const m = Math.round(j / k);
+      return m >= 2 && Math.abs(j - m * k) < lobe;
+    };
     const below: number[] = [];
     const above: number[] = [];
     for (let j = Math.max(1, k - 3 * lobe); j <= k - lobe; j++) below.push(amp[j] * amp[j]);
-    for (let j = k + lobe; j <= Math.min((M >> 1) - 1, k + 3 * lobe); j++) above.push(amp[j] * amp[j]);
+    for (let j = k + lobe; j <= Math.min((M >> 1) - 1, k + 3 * lobe); j++) if (!harmonic(j)) above.push(amp[j] * amp[j]);
     if (below.length + above.length === 0) continue;
     const side = Math.max(median(below), median(above), 1e-30);
     best = { k, amp: amp[k], prominence: (amp[k] * amp[k]) / side };

@@ -6,7 +6,8 @@
 //   clipped      highlights clipped on the panel
 //   too-dark     panel signal down in the quantisation / noise floor
 //   blurred      panel edges out of focus or motion-blurred, judged against the smallest mura sought
-//   flicker      bands along the camera's rows from the display's pulsed light (rolling shutter; flicker.ts)
+//   flicker      bands along the camera's rows from the display's pulsed light (rolling shutter; flicker.ts);
+//                reported first when found, since deep bands also pass for glare or a blurred edge
 //   moire        a periodic coloured ripple strong enough to survive into the panel map
 //   too-oblique  a part of the panel seen too far off its normal for its luminance to hold
 // The photo is refused with the first failing gate's code; the message names every failing gate.
@@ -1112,6 +1113,10 @@ export function assessPanelQuality(q: QualityInput, limits: QualityLimits): Qual
     warnings.push(`part of the panel is seen ${va.toFixed(1)}° off its normal: the panel's own angular emission may bias the corner values by a few percent`);
   }
 
+  // deep flicker bands also pass for glare (a bright band) and for a blurred edge (one that falls in a
+  // dark band): named first, with its own code, since retaking at a longer exposure mends them all
+  const fi = problems.findIndex((p) => p.code === 'flicker');
+  if (fi > 0) problems.unshift(...problems.splice(fi, 1));
   return {
     figures: { pixels: n, clippedFraction, medianCode, edges, glare, moire, flicker, viewAngleMaxDeg: va },
     problems,

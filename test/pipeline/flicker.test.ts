@@ -64,6 +64,15 @@ describe('flicker bands along the camera rows', () => {
     expect(clean.warnings.filter((w) => /camera's rows/.test(w))).toEqual([]);
   }, 60_000);
 
+  it('names deep bands first, though they also pass for glare and a blurred edge', async () => {
+    // an exposure of 0.6 periods: rows between nearly dark and twice the mean
+    const spec = randomScene(31, { pattern: 'gray', level: 0.5, width: 1800, height: 1200 });
+    spec.camera.flicker = { periodRows: 150, duty: 0.5, exposurePeriods: 0.6 };
+    const r = await measure(spec, 'F5_gray50.jpg');
+    expect(r.errorCode).toBe('flicker');
+    expect(r.error).toMatch(/also glare/);
+  }, 60_000);
+
   it('warns about faint bands, with the depth the pulse train predicts, also on a panel turned in the frame', async () => {
     // E = 80.3 periods: 0.82 % peak to peak, between the warning (0.4 %) and the limit (1 %)
     const flicker = { periodRows: 120, duty: 0.5, exposurePeriods: 80.3 };
@@ -143,6 +152,22 @@ describe('flicker bands along the camera rows', () => {
     // the same stripes along the image rows are taken for flicker (the control)
     for (let y = 0; y < H; y++) for (let x = 0; x < W; x++) data[y * W + x] = 0.4 * (1 + 0.02 * Math.sin((2 * Math.PI * y) / 90));
     expect(findFlicker({ width: W, height: H, data }, turned, { scale: 1 })).not.toBeNull();
+
+    // one column of five LED tiles stacked, square to the camera: dark seams along the rows at the tiles'
+    // pitch look like flicker, unless the tile grid is given (the seams' own pitch and its harmonics)
+    const seams: Corners = [
+      [100, 100],
+      [800, 100],
+      [800, 600],
+      [100, 600],
+    ];
+    for (let y = 0; y < H; y++) {
+      const t = (((y - 100) % 100) + 100) % 100;
+      const dip = t < 3 || t > 97 ? 0.04 : 0;
+      for (let x = 0; x < W; x++) data[y * W + x] = 0.4 * (1 - dip);
+    }
+    expect(findFlicker({ width: W, height: H, data }, seams, { scale: 1 })).not.toBeNull();
+    expect(findFlicker({ width: W, height: H, data }, seams, { scale: 1, tileGrid: [1, 5] })).toBeNull();
 
     // a direct-lit backlight's hot spots, square to the camera: periodic both ways
     const spots = grayScene(21, 0);
