@@ -276,6 +276,29 @@ function rgbToXyzMap(
   return { width: rgb.width, height: rgb.height, pxPerMm, widthMm, heightMm, mmKnown, X, Y, Z, valid };
 }
 
+/** Exposures shorter than this (s) leave room for flicker bands a photo cannot tell from band mura
+ *  (the README's advice is 1/30 s or longer: eight or more periods of a 240 Hz pulse). */
+export const FLICKER_SAFE_EXPOSURE_S = 1 / 30;
+
+/** How many band and line findings run along the camera's rows (within 10°; pixels stay in sensor
+ *  orientation) in a photo exposed shorter than FLICKER_SAFE_EXPOSURE_S; 0 when the exposure is unknown. */
+function bandsAlongCameraRows(result: PhotoResult): number {
+  const t = result.exposure?.exposureTimeS ?? null;
+  const c = result.corners;
+  if (t === null || !(t > 0) || t >= FLICKER_SAFE_EXPOSURE_S * 0.97 || !c) return 0;
+  // the panel's horizontal in the image: its top edge
+  const along = Math.atan2(c[1][1] - c[0][1], c[1][0] - c[0][0]);
+  let n = 0;
+  for (const b of result.blobs) {
+    if (b.kind !== 'band' && b.kind !== 'line') continue;
+    const dir = along + (b.detail.axis === 'vertical' ? Math.PI / 2 : 0);
+    // angle of the band's direction from the image rows, 0..90°
+    const off = Math.abs(Math.atan(Math.tan(dir))) * (180 / Math.PI);
+    if (off <= 10) n++;
+  }
+  return n;
+}
+
 function thumbnailOf(img: RgbImage, scale: number, maxSide: number): ReportThumbnail {
   const f = Math.max(1, Math.ceil(Math.max(img.width, img.height) / maxSide));
   const w = Math.floor(img.width / f);
@@ -430,6 +453,15 @@ async function measureInner(
     }
     result.mura = rest;
     result.blobs = rest.blobs;
+    const rowBands = bandsAlongCameraRows(result);
+    if (rowBands > 0) {
+      const t = result.exposure!.exposureTimeS!;
+      result.warnings.push(
+        `${rowBands} band or line finding${rowBands > 1 ? 's lie' : ' lies'} along the camera's rows in a photo exposed 1/${Math.round(1 / t)} s: ` +
+          "a pulsed (PWM-dimmed) display caught by a rolling shutter draws such bands too, and with fewer than three across the panel they are not recognised as flicker; " +
+          "take a second photo: flicker bands move from shot to shot, the panel's own stay (or retake at 1/30 s or longer)",
+      );
+    }
     contrastMap = contrast;
     if (!known) result.warnings.push('mura areas and SEMU use the nominal panel size: give --panel-size for figures in mm² and true SEMU');
   }

@@ -23,7 +23,7 @@ function expectedPeakToPeak(duty: number, exposurePeriods: number): number {
 
 const dir = mkdtempSync(join(tmpdir(), 'ef-flicker-'));
 
-async function measure(spec: PhotoSpec, name: string, tileGrid?: [number, number]) {
+async function measure(spec: PhotoSpec, name: string, tileGrid?: [number, number], mura = false) {
   const { buffer, truth } = await renderPhoto(spec);
   const file = join(dir, name);
   writeFileSync(file, buffer);
@@ -35,7 +35,7 @@ async function measure(spec: PhotoSpec, name: string, tileGrid?: [number, number
     panelSizeMm: { width: spec.panel.widthMm, height: spec.panel.heightMm },
     grid: { layout: 9, placement: 'cells', insetFraction: 0.1, spotRadiusPct: 2 },
     quality: { ...DEFAULT_QUALITY_LIMITS, maxViewAngleDeg: 90, warnViewAngleDeg: 90 },
-    mura: false,
+    mura,
     muraOptions: tileGrid ? { tileGrid } : {},
     artifacts: false,
   });
@@ -88,6 +88,31 @@ describe('flicker bands along the camera rows', () => {
       const pp = Number(/([\d.]+) % peak to peak/.exec(w!)![1]) / 100;
       // the message rounds to 0.1 %; the finding itself is checked below on a synthetic field
       expect(Math.abs(pp - want)).toBeLessThanOrEqual(0.0006);
+    }
+  }, 90_000);
+
+  it('warns when a band mura lies along the camera rows of a short exposure, where flicker of fewer cycles hides', async () => {
+    const band = (axis: 'horizontal' | 'vertical', iso: number) => {
+      const spec = grayScene(43, 0.5);
+      spec.panel.features = [{ kind: 'band', axis, position: 0.45, widthMm: 40, contrastPct: -3 }];
+      spec.exposure = { iso };
+      return spec;
+    };
+    const texts = async (spec: PhotoSpec, name: string) => {
+      const r = await measure(spec, name, undefined, true);
+      return { t: r.exposure!.exposureTimeS!, r };
+    };
+    const short = await texts(band('horizontal', 1600), 'F6_gray50.jpg');
+    expect(short.t).toBeLessThan(1 / 30);
+    expect(short.r.blobs.some((b) => b.kind === 'band')).toBe(true);
+    expect(short.r.warnings.some((w) => /band or line finding lies along the camera's rows .* take a second photo/.test(w))).toBe(true);
+    // the same band at a long exposure, and a band across the rows at the short one: no such warning
+    const long = await texts(band('horizontal', 50), 'F7_gray50.jpg');
+    expect(long.t).toBeGreaterThanOrEqual(1 / 30);
+    const across = await texts(band('vertical', 1600), 'F8_gray50.jpg');
+    for (const x of [long, across]) {
+      expect(x.r.blobs.some((b) => b.kind === 'band')).toBe(true);
+      expect(x.r.warnings.some((w) => /along the camera's rows/.test(w))).toBe(false);
     }
   }, 90_000);
 
