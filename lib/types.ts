@@ -50,9 +50,10 @@ export interface DecodeInfo {
   height: number;
   bitDepth: 8 | 16;
   channels: number; // in the file
-  /** How code values were turned into linear light: the sRGB curve, none, or a measured camera response. */
-  transfer: 'srgb' | 'linear' | 'response';
-  /** with transfer 'response': the response table's fingerprint (ResponseCurve.id); absent otherwise */
+  /** How code values were turned into linear light: the sRGB curve, none, a measured camera response, or
+   *  the tone curve of the file's embedded colour profile (8-bit files whose profile has another curve). */
+  transfer: 'srgb' | 'linear' | 'response' | 'profile';
+  /** with transfer 'response' or 'profile': the table's fingerprint (ResponseCurve.id); absent otherwise */
   responseId?: string;
   /** Decoded at 1/scale of full size (JPEG shrink-on-load or box average); 1 = full size. */
   scale: number;

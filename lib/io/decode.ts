@@ -31,7 +31,7 @@ import sharp from 'sharp';
 import type { Metadata, OutputInfo, Sharp } from 'sharp';
 import type { DecodeInfo, ExposureRecord, ExposureStats, Plane, RgbImage } from '../types.js';
 import { EvenfieldError } from '../errors.js';
-import { SRGB_TO_XYZ, decodeLut, transferName, type Transfer } from '../photometry/index.js';
+import { SRGB_TO_XYZ, decodeLut, responseId, transferName, type Transfer } from '../photometry/index.js';
 import { readExif } from './exif.js';
 import { readInputFile, sha256OfBuffer } from './files.js';
 import { CAMERA_RAW_ADVICE, cameraRawKind, describeDecodeFailure, describeStart, formatName, lossyCodingAdvice, lossyNonJpegCoding, missingCodec, sniffFormat } from './sniff.js';
@@ -106,6 +106,8 @@ export interface DecodedPhoto {
   /** linear RGB of `image` to CIE XYZ (D65), row-major 3 × 3: the embedded RGB profile's primaries when
    *  they are not sRGB's (e.g. Display P3), else SRGB_TO_XYZ */
   rgbToXyz: readonly number[];
+  /** how the code values were turned into linear light (the transfer asked for, or the one chosen) */
+  transfer: Transfer;
   warnings: string[];
 }
 
@@ -231,7 +233,13 @@ function chooseTransfer(buf: Buffer, plan: Plan, requested: 'auto' | Transfer, w
       why = 'its gAMA chunk says gamma 1.0';
     }
   }
-  if (!taggedLinear) return 'srgb';
+  if (!taggedLinear) {
+    // an 8-bit file whose profile declares another tone curve (Adobe RGB's gamma 563/256, ...): decoded
+    // through that curve, as colour-managed software shows it (a 16-bit file keeps the sRGB curve and
+    // the warning: a 256-point table is too coarse for its toe)
+    const table = plan.icc?.curve === 'other' && plan.bitDepth === 8 ? plan.icc.curveTable : null;
+    return table ? { id: responseId(table), linear: table, source: 'profile' } : 'srgb';
+  }
   if (plan.bitDepth === 16) return 'linear';
   warnings.push(`8-bit file tagged linear (${why}); decoded as sRGB — declare the transfer to override`);
   return 'srgb';
@@ -254,6 +262,8 @@ function profileWarnings(plan: Plan, transfer: Transfer, warnings: string[]): vo
   }
   if (icc.curve === 'other' && transfer === 'srgb') {
     warnings.push(`embedded colour profile ${name} has a tone curve other than sRGB's; code values are decoded with the sRGB curve`);
+  } else if (typeof transfer === 'object' && transfer.source === 'profile') {
+    warnings.push(`embedded colour profile ${name} has a tone curve other than sRGB's: code values are decoded with its curve`);
   }
 }
 
@@ -767,6 +777,7 @@ function finish(
     method,
     iccProfile: plan.icc,
     rgbToXyz: primariesOf(plan),
+    transfer,
     warnings,
   };
 }

@@ -53,6 +53,9 @@ export interface IccSummary {
    *  which ICC profiles store adapted to the D50 connection white), adapted back to D65 by Bradford and
    *  scaled so that white has Y = 1; row-major 3 × 3. Null without the colorant tags. */
   rgbToXyzD65: number[] | null;
+  /** the tone curve at the 256 8-bit code values (linear light, 0..1), when every RGB curve (or the
+   *  gray curve) is the same one, of kind 'other', and rises throughout; null otherwise */
+  curveTable: number[] | null;
 }
 
 function tag(buf: Uint8Array, view: DataView, sig: string): { off: number; size: number } | null {
@@ -213,6 +216,22 @@ export function colorantsToD65(cols: [number, number, number][]): number[] | nul
   return m;
 }
 
+/** The curves' common table at the 256 8-bit codes, scaled so that code 255 is 1: null unless they
+ *  agree within 1e-4 everywhere and rise throughout (a table to decode with must). */
+function commonTable(fns: ((x: number) => number)[]): number[] | null {
+  const t: number[] = [];
+  for (let z = 0; z < 256; z++) {
+    const vals = fns.map((f) => f(z / 255));
+    if (Math.max(...vals) - Math.min(...vals) > 1e-4 || !vals.every(Number.isFinite)) return null;
+    t.push(vals[0]!);
+  }
+  const top = t[255]!;
+  if (!(top > 0)) return null;
+  for (let z = 0; z < 256; z++) t[z] = t[z]! / top;
+  for (let z = 1; z < 256; z++) if (!(t[z]! > t[z - 1]!)) return null;
+  return t;
+}
+
 /** Summarise an ICC profile; null when the bytes are not a profile. */
 export function readIccSummary(buf: Uint8Array): IccSummary | null {
   if (buf.length < 132) return null;
@@ -223,6 +242,7 @@ export function readIccSummary(buf: Uint8Array): IccSummary | null {
 
   const curveSigs = colourSpace === 'GRAY' ? ['kTRC'] : colourSpace === 'RGB' ? ['rTRC', 'gTRC', 'bTRC'] : [];
   let curve: CurveKind | null = null;
+  const fns: ((x: number) => number)[] = [];
   for (const sig of curveSigs) {
     const t = tag(buf, view, sig);
     const fn = t ? curveEvaluator(buf, view, t) : null;
@@ -231,8 +251,10 @@ export function readIccSummary(buf: Uint8Array): IccSummary | null {
       curve = null;
       break;
     }
+    fns.push(fn!);
     curve = curve === null || curve === kind ? kind : 'other';
   }
+  const curveTable = curve === 'other' && fns.length === curveSigs.length ? commonTable(fns) : null;
 
   let srgbPrimaries: boolean | null = null;
   let rgbToXyzD65: number[] | null = null;
@@ -254,5 +276,5 @@ export function readIccSummary(buf: Uint8Array): IccSummary | null {
     }
     if (cols.length === 3) rgbToXyzD65 = colorantsToD65(cols);
   }
-  return { description, colourSpace, curve, srgbPrimaries, rgbToXyzD65 };
+  return { description, colourSpace, curve, srgbPrimaries, rgbToXyzD65, curveTable };
 }

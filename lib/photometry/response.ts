@@ -23,13 +23,15 @@ export interface ResponseCurve {
   camera?: { make: string | null; model: string | null };
   /** the code values it was measured between (outside them the table is extended), when known */
   measuredCodes?: [number, number];
+  /** 'profile': the tone curve of a file's embedded colour profile, not a measured response */
+  source?: 'profile';
 }
 
 /** How code values become linear light. */
 export type Transfer = 'srgb' | 'linear' | ResponseCurve;
 
-export function transferName(t: Transfer): 'srgb' | 'linear' | 'response' {
-  return typeof t === 'string' ? t : 'response';
+export function transferName(t: Transfer): 'srgb' | 'linear' | 'response' | 'profile' {
+  return typeof t === 'string' ? t : t.source === 'profile' ? 'profile' : 'response';
 }
 
 /** Linear light of a code value v given as a fraction of full scale (0..1; real). */

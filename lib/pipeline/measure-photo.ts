@@ -396,7 +396,7 @@ async function measureInner(
   // Steps 1-7 work on camera-sized images. They run in their own function so that those images are
   // unreachable (and can be freed) during the mura analysis: a local variable of a running function
   // keeps its array alive until the function returns, even after its last use.
-  const { map, points, known, widthMm, heightMm, cameraPxPerMapPx, cornerStrength, gainGrid, lens } = await measureCamera(file, opts, result, partial);
+  const { map, points, known, widthMm, heightMm, cameraPxPerMapPx, cornerStrength, gainGrid, lens, curve } = await measureCamera(file, opts, result, partial);
 
   // 8. mura
   let contrastMap: Plane | null = null;
@@ -421,12 +421,12 @@ async function measureInner(
     const jpegBlockMm = isJpeg && camPerMap ? 8 / (camPerMap * map.pxPerMm) : null;
     // 8-bit sRGB input: the contrast of one level step (a code value, or the JPEG's DC step) at the
     // panel's level in the photo
-    const codeStepPct = codeStepAt(result, points, responseOf(opts));
+    const codeStepPct = codeStepAt(result, points, curve);
     // ...and where the code values lie across the panel, for the step where each finding is
     const centreY = points.find((p) => p.u === 0.5 && p.v === 0.5)?.Y ?? points[0]?.Y;
     const codeLevel =
       codeStepPct !== null && centreY !== undefined && centreY > 0
-        ? { centreY, gain: gainGrid, stepCodes: result.decode?.levelStepCodes ?? 1, response: responseOf(opts) }
+        ? { centreY, gain: gainGrid, stepCodes: result.decode?.levelStepCodes ?? 1, response: curve }
         : null;
     const mura = analyseMura(
       { ...map, valid: withoutBorder(map.valid, map.width, map.height, border) },
@@ -490,6 +490,9 @@ interface CameraStage {
   gainGrid: { cols: number; rows: number; data: Float32Array } | null;
   /** where the panel lay in the photo, when the lens falloff was left in it (for the mura background) */
   lens: LensField | null;
+  /** the table the code values were read through (a measured response, or the embedded profile's tone
+   *  curve), or null for the sRGB curve and linear input */
+  curve: ResponseCurve | null;
 }
 
 /**
@@ -564,6 +567,8 @@ async function measureCamera(
     clipMaskLinear: clipLinearOf(opts),
   });
   const scale = decoded.info.scale;
+  // the table the codes were read through: --response's, or the file's own profile curve
+  const curve = typeof decoded.transfer === 'object' ? decoded.transfer : null;
   result.sha256 = decoded.sha256;
   result.decode = decoded.info;
   result.exposure = decoded.exposure;
@@ -796,7 +801,7 @@ async function measureCamera(
       minFeatureMm: opts.muraOptions.minFeatureMm ?? DEFAULT_MIN_FEATURE_MM,
       mapFootprintPx: quadWidthPx(cornersWork) / mapW,
       viewAngleMaxDeg,
-      response: responseOf(opts),
+      response: curve,
       tileGrid: opts.muraOptions.tileGrid ?? null,
       exposureTimeS: decoded.exposure.exposureTimeS,
     },
@@ -854,7 +859,7 @@ async function measureCamera(
   const gainGrid = transmission ? transmissionOnPanel(transmission, cornersWork, 17) : null;
   const f35 = decoded.exposure.focalLength35mm;
   const lens = transmission ? null : lensFieldOf(cornersWork, img.width, img.height, widthMm, heightMm, f35 && f35 > 0 ? f35 : null);
-  return { map, points, known, widthMm, heightMm, cameraPxPerMapPx: rect.cameraPxPerMapPx, cornerStrength, gainGrid, lens };
+  return { map, points, known, widthMm, heightMm, cameraPxPerMapPx: rect.cameraPxPerMapPx, cornerStrength, gainGrid, lens, curve };
 }
 
 function downsamplePlane(p: Plane, maxWidth: number): Plane {

@@ -969,6 +969,8 @@ function photoMethodPairs(p: PreparedPhoto): Array<[string, string | Cell]> {
             ? 'sRGB transfer function undone to linear light'
             : d.transfer === 'response'
               ? `camera response measured from an exposure bracket undone to linear light (table ${d.responseId ?? '?'})`
+              : d.transfer === 'profile'
+                ? `the embedded colour profile's tone curve undone to linear light (table ${d.responseId ?? '?'})`
               : 'linear data'
         }; ` +
         `${d.scale === 1 ? 'measured at full size' : `measured at 1/${trim(d.scale, 2)} size (area average)`}`

@@ -12,7 +12,7 @@ import { decodePhotoBuffer } from '../../lib/io/index.js';
 import { readIccSummary } from '../../lib/io/tags.js';
 import { DEFAULT_MEASURE_OPTIONS, measurePhoto } from '../../lib/pipeline/index.js';
 import { SRGB_TO_XYZ } from '../../lib/photometry/index.js';
-import { mkdtempSync, writeFileSync } from 'node:fs';
+import { mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 
@@ -108,4 +108,103 @@ describe('colour profiles with other primaries', () => {
     expect(ratios.length).toBeGreaterThanOrEqual(4);
     expect(Math.abs(ratios.reduce((x, y) => x + y, 0) / ratios.length - 1)).toBeLessThan(0.04);
   }, 60_000);
+});
+
+/**
+ * A matrix/TRC RGB display profile (ICC.1 version 2 layout: header, tag table, 'desc', 'wtpt', colorants
+ * and one gamma curve for R, G and B), built here with the Adobe RGB (1998) encoding's primaries as
+ * colorjs.io gives them (its 'a98rgb-linear' space, adapted to D50) and its gamma of 563/256.
+ */
+function a98LikeProfile(): Buffer {
+  const cols = [
+    [1, 0, 0],
+    [0, 1, 0],
+    [0, 0, 1],
+  ].map((c) => new Color('a98rgb-linear', c as [number, number, number]).to('xyz-d50').coords as number[]);
+  const s15 = (v: number) => {
+    const b = Buffer.alloc(4);
+    b.writeInt32BE(Math.round(v * 65536));
+    return b;
+  };
+  const xyzTag = (x: number, y: number, z: number) => Buffer.concat([Buffer.from('XYZ \0\0\0\0', 'latin1'), s15(x), s15(y), s15(z)]);
+  const text = 'A98-like test profile';
+  const desc = Buffer.concat([
+    Buffer.from('desc\0\0\0\0', 'latin1'),
+    (() => {
+      const b = Buffer.alloc(4);
+      b.writeUInt32BE(text.length + 1);
+      return b;
+    })(),
+    Buffer.from(text + '\0', 'latin1'),
+    Buffer.alloc(4 + 4 + 2 + 1 + 67),
+  ]);
+  const curv = Buffer.concat([Buffer.from('curv\0\0\0\0\0\0\0\x01', 'latin1'), Buffer.from([0x02, 0x33, 0, 0])]);
+  const tags: [string, Buffer][] = [
+    ['desc', desc],
+    ['wtpt', xyzTag(0.9642, 1, 0.8249)],
+    ['rXYZ', xyzTag(cols[0]![0]!, cols[0]![1]!, cols[0]![2]!)],
+    ['gXYZ', xyzTag(cols[1]![0]!, cols[1]![1]!, cols[1]![2]!)],
+    ['bXYZ', xyzTag(cols[2]![0]!, cols[2]![1]!, cols[2]![2]!)],
+    ['rTRC', curv],
+    ['gTRC', curv],
+    ['bTRC', curv],
+    ['cprt', Buffer.from('text\0\0\0\0none\0\0\0\0', 'latin1')],
+  ];
+  const tableLen = 4 + 12 * tags.length;
+  let off = 128 + tableLen;
+  const table = Buffer.alloc(tableLen);
+  table.writeUInt32BE(tags.length, 0);
+  const bodies: Buffer[] = [];
+  tags.forEach(([sig, body], i) => {
+    const padded = Buffer.concat([body, Buffer.alloc((4 - (body.length % 4)) % 4)]);
+    table.write(sig, 4 + 12 * i, 'latin1');
+    table.writeUInt32BE(off, 8 + 12 * i);
+    table.writeUInt32BE(body.length, 12 + 12 * i);
+    bodies.push(padded);
+    off += padded.length;
+  });
+  const header = Buffer.alloc(128);
+  header.writeUInt32BE(off, 0);
+  header.writeUInt32BE(0x02100000, 8);
+  header.write('mntrRGB XYZ ', 12, 'latin1');
+  header.write('acsp', 36, 'latin1');
+  s15(0.9642).copy(header, 68);
+  s15(1).copy(header, 72);
+  s15(0.8249).copy(header, 76);
+  return Buffer.concat([header, table, ...bodies]);
+}
+
+describe('colour profiles with another tone curve', () => {
+  const dir = mkdtempSync(join(tmpdir(), 'ef-a98-'));
+  const icc = join(dir, 'a98-like.icc');
+  writeFileSync(icc, a98LikeProfile());
+
+  it("reads the profile's curve as a table: gamma 563/256 (colorjs.io's a98rgb decoding)", () => {
+    const s = readIccSummary(readFileSync(icc))!;
+    expect(s.curve).toBe('other');
+    for (const z of [1, 10, 30, 64, 128, 200, 254]) {
+      const want = new Color('a98rgb', [z / 255, z / 255, z / 255]).to('a98rgb-linear').coords[0]!;
+      expect(Math.abs(s.curveTable![z]! - want)).toBeLessThan(1e-6 + 1e-4 * want);
+    }
+  });
+
+  it('decodes an 8-bit photo in that profile to the source colours (curve and primaries)', async () => {
+    for (const hex of ['#1c1c1c', '#303844', '#808080', '#c8aa96']) {
+      const coded = await sharp({ create: { width: 32, height: 24, channels: 3, background: hex } })
+        .withIccProfile(icc)
+        .png()
+        .toBuffer();
+      const d = await decodePhotoBuffer(coded, 'a.png');
+      expect(d.info.transfer).toBe('profile');
+      const { data } = d.image;
+      const mean = [0, 0, 0];
+      for (let i = 0; i < data.length; i += 3) for (let c = 0; c < 3; c++) mean[c]! += data[i + c]! / (data.length / 3);
+      const M = d.rgbToXyz;
+      const Y = M[3]! * mean[0]! + M[4]! * mean[1]! + M[5]! * mean[2]!;
+      const ref = new Color(hex).to('xyz-d65').coords[1]!;
+      // 8-bit coding in the profile: half a code step at the darkest patch (code ~25) is 4 % of its level
+      // (measured 2.5 %; read through the sRGB curve it came out 38 % bright)
+      expect(Math.abs(Y / ref - 1)).toBeLessThan(0.03);
+    }
+  });
 });
