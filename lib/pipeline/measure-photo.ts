@@ -453,7 +453,8 @@ async function measureInner(
     }
     result.mura = rest;
     result.blobs = rest.blobs;
-    const rowBands = bandsAlongCameraRows(result);
+    // (not when the flicker check has already warned of bands along the rows)
+    const rowBands = result.warnings.some((w) => w.startsWith("bands along the camera's rows")) ? 0 : bandsAlongCameraRows(result);
     if (rowBands > 0) {
       const t = result.exposure!.exposureTimeS!;
       result.warnings.push(
