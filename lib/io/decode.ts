@@ -234,11 +234,13 @@ function chooseTransfer(buf: Buffer, plan: Plan, requested: 'auto' | Transfer, w
     }
   }
   if (!taggedLinear) {
-    // an 8-bit file whose profile declares another tone curve (Adobe RGB's gamma 563/256, ...): decoded
-    // through that curve, as colour-managed software shows it (a 16-bit file keeps the sRGB curve and
-    // the warning: a 256-point table is too coarse for its toe)
-    const table = plan.icc?.curve === 'other' && plan.bitDepth === 8 ? plan.icc.curveTable : null;
-    return table ? { id: responseId(table), linear: table, source: 'profile' } : 'srgb';
+    // a file whose profile declares another tone curve (Adobe RGB's gamma 563/256, ProPhoto's 1.8 ...):
+    // decoded through that curve, as colour-managed software shows it (16-bit files through its values
+    // at every 16-bit code)
+    const icc = plan.icc;
+    const table = icc?.curve === 'other' ? icc.curveTable : null;
+    if (!table || (plan.bitDepth === 16 && !icc!.curveTable16)) return 'srgb';
+    return { id: responseId(table), linear: table, source: 'profile', ...(plan.bitDepth === 16 ? { lut16: icc!.curveTable16! } : {}) };
   }
   if (plan.bitDepth === 16) return 'linear';
   warnings.push(`8-bit file tagged linear (${why}); decoded as sRGB — declare the transfer to override`);

@@ -56,6 +56,9 @@ export interface IccSummary {
   /** the tone curve at the 256 8-bit code values (linear light, 0..1), when every RGB curve (or the
    *  gray curve) is the same one, of kind 'other', and rises throughout; null otherwise */
   curveTable: number[] | null;
+  /** the same curve at the 65536 16-bit code values (code 65535 = 1), for 16-bit files; null with
+   *  curveTable null */
+  curveTable16: Float32Array | null;
 }
 
 function tag(buf: Uint8Array, view: DataView, sig: string): { off: number; size: number } | null {
@@ -255,6 +258,13 @@ export function readIccSummary(buf: Uint8Array): IccSummary | null {
     curve = curve === null || curve === kind ? kind : 'other';
   }
   const curveTable = curve === 'other' && fns.length === curveSigs.length ? commonTable(fns) : null;
+  let curveTable16: Float32Array | null = null;
+  if (curveTable) {
+    const f = fns[0]!;
+    const top = f(1);
+    curveTable16 = new Float32Array(65536);
+    for (let z = 0; z < 65536; z++) curveTable16[z] = f(z / 65535) / top;
+  }
 
   let srgbPrimaries: boolean | null = null;
   let rgbToXyzD65: number[] | null = null;
@@ -276,5 +286,5 @@ export function readIccSummary(buf: Uint8Array): IccSummary | null {
     }
     if (cols.length === 3) rgbToXyzD65 = colorantsToD65(cols);
   }
-  return { description, colourSpace, curve, srgbPrimaries, rgbToXyzD65, curveTable };
+  return { description, colourSpace, curve, srgbPrimaries, rgbToXyzD65, curveTable, curveTable16 };
 }

@@ -82,6 +82,7 @@ export function decodeLut(bitDepth: 8 | 16, transfer: Transfer): Float32Array {
     if (bitDepth === 8) return transfer === 'srgb' ? SRGB_LUT_8 : LINEAR_LUT_8;
     return transfer === 'srgb' ? SRGB_LUT_16 : LINEAR_LUT_16;
   }
+  if (bitDepth === 16 && transfer.lut16) return transfer.lut16;
   const key = `${bitDepth}:${transfer.id}`;
   let lut = responseLuts.get(key);
   if (!lut) {

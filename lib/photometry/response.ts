@@ -25,6 +25,9 @@ export interface ResponseCurve {
   measuredCodes?: [number, number];
   /** 'profile': the tone curve of a file's embedded colour profile, not a measured response */
   source?: 'profile';
+  /** a profile curve's own values at the 65536 16-bit codes (used for 16-bit files instead of
+   *  interpolating the 256-entry table) */
+  lut16?: Float32Array;
 }
 
 /** How code values become linear light. */

@@ -207,4 +207,26 @@ describe('colour profiles with another tone curve', () => {
       expect(Math.abs(Y / ref - 1)).toBeLessThan(0.03);
     }
   });
+
+  it('decodes a 16-bit photo in that profile through the curve at every 16-bit code', async () => {
+    for (const hex of ['#1c1c1c', '#808080']) {
+      const coded = await sharp({ create: { width: 32, height: 24, channels: 3, background: hex } })
+        .toColourspace('rgb16')
+        .withIccProfile(icc)
+        .png()
+        .toBuffer();
+      const d = await decodePhotoBuffer(coded, 'a16.png');
+      expect(d.info.bitDepth).toBe(16);
+      expect(d.info.transfer).toBe('profile');
+      const { data } = d.image;
+      let Y = 0;
+      const M = d.rgbToXyz;
+      for (let i = 0; i < data.length; i += 3) Y += (M[3]! * data[i]! + M[4]! * data[i + 1]! + M[5]! * data[i + 2]!) / (data.length / 3);
+      // libvips widens the 8-bit source to 16 bits by 256, not 257: the source colour is that value
+      const src = [1, 3, 5].map((k) => (parseInt(hex.slice(k, k + 2), 16) * 256) / 65535) as [number, number, number];
+      const ref = new Color('srgb', src).to('xyz-d65').coords[1]!;
+      // lcms's 16-bit conversion: within 0.1 % measured
+      expect(Math.abs(Y / ref - 1)).toBeLessThan(0.005);
+    }
+  });
 });
