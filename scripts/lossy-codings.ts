@@ -14,7 +14,8 @@ import { join } from 'node:path';
 import sharp, { type Sharp } from 'sharp';
 import { renderPhoto } from '../fixtures/generator/index.js';
 import { graySpec } from './mura-scenes.js';
-import { DEFAULT_MEASURE_OPTIONS, DEFAULT_QUALITY_LIMITS, measurePhoto } from '../lib/pipeline/index.js';
+import { measurePhoto } from '../lib/pipeline/index.js';
+import { generatedPhotoOptions, STUDY_QUALITY } from './generated-options.js';
 
 const quality = Number(process.argv[2] ?? 90);
 const photos = Number(process.argv[3] ?? 6);
@@ -38,18 +39,10 @@ async function main(): Promise<void> {
       const coded = await code(sharp(r.buffer)).toBuffer();
       const file = join(dir, `s${seed}-${k}_gray50.${name === 'JPEG' ? 'jpg' : 'png'}`);
       writeFileSync(file, name === 'JPEG' ? coded : await sharp(coded).png().toBuffer());
-      const m = await measurePhoto(file, {
-        ...DEFAULT_MEASURE_OPTIONS,
-        pattern: 'gray',
-        patternLevel: 50,
-        panelSizeMm: { width: spec.panel.widthMm, height: spec.panel.heightMm },
-        grid: { layout: 9, placement: 'cells', insetFraction: 0.1, spotRadiusPct: 2 },
-        corners: r.truth.corners,
-        falloff: { kind: 'cos4', focal35mm: spec.camera.focal35 },
-        quality: { ...DEFAULT_QUALITY_LIMITS, maxViewAngleDeg: 90, warnViewAngleDeg: 90 },
-        mura: true,
-        artifacts: false,
-      });
+      const m = await measurePhoto(
+        file,
+        generatedPhotoOptions(spec, { corners: r.truth.corners, falloff: { kind: 'cos4', focal35mm: spec.camera.focal35 }, quality: STUDY_QUALITY, mura: true }),
+      );
       const blobs = m.result.blobs ?? [];
       const n = blobs.filter((b) => b.semu >= 1).length;
       const top = m.result.mura?.maxSemu ?? NaN;

@@ -21,7 +21,7 @@
 // photographed square and level) look the same: the message says how to tell them apart, and the
 // limit can be raised or the check turned off (--max-flicker).
 
-import { fft, quadRowRun, robustLogSurface } from './quality.js';
+import { bilinear, fft, quadRowRun, robustLogSurface, shrink } from './quality.js';
 import type { Corners, Plane } from '../types.js';
 
 export interface FlickerFinding {
@@ -62,13 +62,6 @@ const MIN_PROMINENCE = 10;
 /** Each whole cycle's amplitude at least this share of the strongest cycle's (a flicker keeps on). */
 const MIN_CYCLE_SHARE = 0.6;
 
-/** The outline shrunk to 90 % about its centre (edge pixels and the bezel's blur stay out). */
-function innerQuad(c: Corners): Corners {
-  const cx = c.reduce((a, p) => a + p[0], 0) / 4;
-  const cy = c.reduce((a, p) => a + p[1], 0) / 4;
-  return c.map(([x, y]) => [cx + 0.9 * (x - cx), cy + 0.9 * (y - cy)]) as Corners;
-}
-
 /** Each line's run inside the quadrilateral (lines are rows when `alongY`, else columns), kept where it
  *  is at least half the longest run: [first line, starts, ends], or null. */
 function runs(q: Corners, w: number, h: number, alongY: boolean): { first: number; a: Int32Array; b: Int32Array } | null {
@@ -100,24 +93,13 @@ function runs(q: Corners, w: number, h: number, alongY: boolean): { first: numbe
 /** A smooth surface over the image: its level at the centres of square cells of `c` pixels. */
 interface Level {
   c: number;
-  gw: number;
-  gh: number;
-  level: Float64Array;
+  cells: Plane;
 }
 
-/** The surface's level at (x, y), bilinear between the cells' centres. */
+/** The surface's level at (x, y), bilinear between the cells' centres (held at the outer centres). */
 function levelAt(L: Level, x: number, y: number): number {
-  const fy = Math.min(L.gh - 1, Math.max(0, y / L.c - 0.5));
-  const j0 = Math.max(0, Math.min(L.gh - 2, Math.floor(fy)));
-  const ty = L.gh > 1 ? fy - j0 : 0;
-  const fx = Math.min(L.gw - 1, Math.max(0, x / L.c - 0.5));
-  const i0 = Math.max(0, Math.min(L.gw - 2, Math.floor(fx)));
-  const tx = L.gw > 1 ? fx - i0 : 0;
-  const a = j0 * L.gw + i0;
-  const l = L.level;
-  const right = L.gw > 1 ? 1 : 0;
-  const down = L.gh > 1 ? L.gw : 0;
-  return (1 - ty) * ((1 - tx) * l[a] + tx * l[a + right]) + ty * ((1 - tx) * l[a + down] + tx * l[a + down + right]);
+  const { width, height } = L.cells;
+  return bilinear(L.cells, Math.min(width - 1, Math.max(0, x / L.c - 0.5)), Math.min(height - 1, Math.max(0, y / L.c - 0.5)));
 }
 
 /** Samples taken across the lines: every SAMPLE_STEP-th pixel (the ripple sought is the same along a
@@ -218,9 +200,9 @@ function smoothLevel(lum: Plane, q: Corners): Level {
     use[k] = m > 0 && cnt[k] >= 0.5 * (c / SAMPLE_STEP) ** 2 ? 1 : 0;
   }
   const fit = robustLogSurface(logv, gw, gh, use, SURFACE_ORDER);
-  const level = new Float64Array(gw * gh);
+  const level = new Float32Array(gw * gh);
   for (let k = 0; k < level.length; k++) level[k] = Math.exp(fit[k]);
-  return { c, gw, gh, level };
+  return { c, cells: { width: gw, height: gh, data: level } };
 }
 
 /** Order of the polynomial in the line index taken out of each profile before looking for a ripple
@@ -381,7 +363,7 @@ function strongestLine(sp: Spectrum): { k: number; amp: number; prominence: numb
  * `lum` is linear luminance at working scale, `corners` the active area's outline on it.
  */
 export function findFlicker(lum: Plane, corners: Corners, o: FlickerOptions): FlickerFinding | null {
-  const q = innerQuad(corners);
+  const q = shrink(corners, 0.9);
   if (lum.width < 8 || lum.height < 8) return null;
   const level = smoothLevel(lum, q);
   const ps = profiles(lum, level, q, true);

@@ -779,7 +779,7 @@ async function measureCamera(
       );
     }
   }
-    // single-pixel spikes on the panel: counted and said (those in the surroundings do not matter)
+  // single-pixel spikes on the panel: counted and said (those in the surroundings do not matter)
   const spikesOnPanel = spikes.filter((i) => insideQuad(cornersWork, i % img.width, Math.floor(i / img.width))).length;
   if (result.exposureStats) result.exposureStats = { ...result.exposureStats, spikesRemoved: spikesOnPanel };
   if (spikesOnPanel > 0) {

@@ -317,13 +317,14 @@ export interface QualityOutcome {
 
 const SIDES = ['top', 'right', 'bottom', 'left'] as const;
 
-function shrink(corners: Corners, f: number): Corners {
+/** The outline scaled by `f` about its centre (the mean of its corners). */
+export function shrink(corners: Corners, f: number): Corners {
   const cx = corners.reduce((a, p) => a + p[0], 0) / 4;
   const cy = corners.reduce((a, p) => a + p[1], 0) / 4;
   return corners.map(([x, y]) => [cx + f * (x - cx), cy + f * (y - cy)]) as Corners;
 }
 
-function bilinear(p: Plane, x: number, y: number): number {
+export function bilinear(p: Plane, x: number, y: number): number {
   const w = p.width;
   const h = p.height;
   if (!(x >= 0 && y >= 0 && x <= w - 1 && y <= h - 1)) return Number.NaN;

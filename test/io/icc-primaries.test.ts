@@ -10,7 +10,8 @@ import { describe, expect, it } from 'vitest';
 import { randomScene, renderPhoto } from '../../fixtures/generator/index.js';
 import { decodePhotoBuffer } from '../../lib/io/index.js';
 import { readIccSummary } from '../../lib/io/tags.js';
-import { DEFAULT_MEASURE_OPTIONS, measurePhoto } from '../../lib/pipeline/index.js';
+import { measurePhoto } from '../../lib/pipeline/index.js';
+import { generatedPhotoOptions } from '../../scripts/generated-options.js';
 import { SRGB_TO_XYZ } from '../../lib/photometry/index.js';
 import { mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
@@ -81,17 +82,7 @@ describe('colour profiles with other primaries', () => {
     const files = { srgb: join(dir, 'A_white.jpg'), p3: join(dir, 'B_white.jpg') };
     writeFileSync(files.srgb, buffer);
     writeFileSync(files.p3, await sharp(buffer).withIccProfile('p3').jpeg({ quality: 98, chromaSubsampling: '4:4:4' }).toBuffer());
-    const run = (file: string) =>
-      measurePhoto(file, {
-        ...DEFAULT_MEASURE_OPTIONS,
-        pattern: 'white',
-        patternLevel: null,
-        corners: truth.corners,
-        panelSizeMm: { width: spec.panel.widthMm, height: spec.panel.heightMm },
-        grid: { layout: 9, placement: 'cells', insetFraction: 0.1, spotRadiusPct: 2 },
-        mura: false,
-        artifacts: false,
-      });
+    const run = (file: string) => measurePhoto(file, generatedPhotoOptions(spec, { corners: truth.corners, mura: false }));
     const a = (await run(files.srgb)).result;
     const b = (await run(files.p3)).result;
     expect(b.warnings.some((w) => /computed with its primaries/.test(w))).toBe(true);

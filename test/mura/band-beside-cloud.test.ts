@@ -8,7 +8,8 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { renderPhoto } from '../../fixtures/generator/index.js';
-import { DEFAULT_MEASURE_OPTIONS, DEFAULT_QUALITY_LIMITS, measurePhoto } from '../../lib/pipeline/index.js';
+import { measurePhoto } from '../../lib/pipeline/index.js';
+import { generatedPhotoOptions, STUDY_QUALITY } from '../../scripts/generated-options.js';
 import { graySpec } from '../../scripts/mura-scenes.js';
 
 describe('band search', () => {
@@ -20,17 +21,10 @@ describe('band search', () => {
     const band = truth.features.find((f) => f.kind === 'band' && f.visible && Math.abs(f.contrastPct) > 2)!;
     // the scene: a vertical dark band 46 mm wide at x 371 mm (-2.77 % mean), a dark cloud of -14 % to its left
     expect(band.detail.axis).toBe('vertical');
-    const m = await measurePhoto(file, {
-      ...DEFAULT_MEASURE_OPTIONS,
-      pattern: 'gray',
-      patternLevel: 50,
-      panelSizeMm: { width: spec.panel.widthMm, height: spec.panel.heightMm },
-      grid: { layout: 9, placement: 'cells', insetFraction: 0.1, spotRadiusPct: 2 },
-      corners: truth.corners,
-      falloff: { kind: 'cos4', focal35mm: spec.camera.focal35 },
-      quality: { ...DEFAULT_QUALITY_LIMITS, maxViewAngleDeg: 90, warnViewAngleDeg: 90 },
-      artifacts: false,
-    });
+    const m = await measurePhoto(
+      file,
+      generatedPhotoOptions(spec, { corners: truth.corners, falloff: { kind: 'cos4', focal35mm: spec.camera.focal35 }, quality: STUDY_QUALITY }),
+    );
     expect(m.result.status).toBe('ok');
     const found = m.result.blobs.filter((b) => b.polarity === 'dark' && Math.abs(b.xMm - band.xMm) < 20);
     expect(found.map((b) => b.kind)).toContain('band');

@@ -11,7 +11,8 @@ import { describe, expect, it } from 'vitest';
 import { randomScene, renderPhoto } from '../../fixtures/generator/index.js';
 import type { PhotoSpec } from '../../fixtures/generator/index.js';
 import { findFlicker } from '../../lib/pipeline/flicker.js';
-import { DEFAULT_MEASURE_OPTIONS, DEFAULT_QUALITY_LIMITS, measurePhoto } from '../../lib/pipeline/index.js';
+import { measurePhoto } from '../../lib/pipeline/index.js';
+import { generatedPhotoOptions, STUDY_QUALITY } from '../../scripts/generated-options.js';
 import type { Corners } from '../../lib/types.js';
 
 /** Peak-to-peak of the fundamental, as a fraction of the mean (see the file's head). */
@@ -27,18 +28,7 @@ async function measure(spec: PhotoSpec, name: string, tileGrid?: [number, number
   const { buffer, truth } = await renderPhoto(spec);
   const file = join(dir, name);
   writeFileSync(file, buffer);
-  const m = await measurePhoto(file, {
-    ...DEFAULT_MEASURE_OPTIONS,
-    pattern: spec.panel.pattern,
-    patternLevel: spec.panel.pattern === 'gray' ? 50 : null,
-    corners: truth.corners,
-    panelSizeMm: { width: spec.panel.widthMm, height: spec.panel.heightMm },
-    grid: { layout: 9, placement: 'cells', insetFraction: 0.1, spotRadiusPct: 2 },
-    quality: { ...DEFAULT_QUALITY_LIMITS, maxViewAngleDeg: 90, warnViewAngleDeg: 90 },
-    mura,
-    muraOptions: tileGrid ? { tileGrid } : {},
-    artifacts: false,
-  });
+  const m = await measurePhoto(file, generatedPhotoOptions(spec, { corners: truth.corners, quality: STUDY_QUALITY, mura, muraOptions: tileGrid ? { tileGrid } : {} }));
   return m.result;
 }
 

@@ -6,7 +6,8 @@ import sharp from 'sharp';
 import { describe, expect, it } from 'vitest';
 import { randomScene, renderPhoto } from '../../fixtures/generator/index.js';
 import { removeImpulses } from '../../lib/pipeline/impulses.js';
-import { DEFAULT_MEASURE_OPTIONS, measurePhoto } from '../../lib/pipeline/index.js';
+import { measurePhoto } from '../../lib/pipeline/index.js';
+import { generatedPhotoOptions } from '../../scripts/generated-options.js';
 import { mkdtempSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
@@ -75,15 +76,7 @@ describe('removeImpulses', () => {
     }
     const file = join(dir, 'S1_black.jpg');
     writeFileSync(file, await sharp(data, { raw: info }).jpeg({ quality: 95 }).toBuffer());
-    const m = await measurePhoto(file, {
-      ...DEFAULT_MEASURE_OPTIONS,
-      pattern: 'black',
-      patternLevel: null,
-      corners: truth.corners,
-      panelSizeMm: { width: spec.panel.widthMm, height: spec.panel.heightMm },
-      grid: { layout: 9, placement: 'cells', insetFraction: 0.1, spotRadiusPct: 2 },
-      artifacts: false,
-    });
+    const m = await measurePhoto(file, generatedPhotoOptions(spec, { corners: truth.corners }));
     expect(m.result.status).toBe('ok');
     expect(m.result.exposureStats!.spikesRemoved).toBeGreaterThan(5);
     expect(m.result.warnings.some((w) => /single-pixel spikes? on the panel/.test(w))).toBe(true);
