@@ -1,11 +1,11 @@
 // Grouping photos into panels: by a manifest (CSV) or by the file naming rule
 // <panel>_<pattern>.<ext> (split at the last underscore).
 
-import { readdirSync, readFileSync, statSync } from 'node:fs';
+import { readdirSync, statSync } from 'node:fs';
 import { basename, dirname, extname, isAbsolute, join, relative, resolve, sep } from 'node:path';
 import { parse } from 'csv-parse/sync';
 import { EvenfieldError } from '../errors.js';
-import { CAMERA_RAW_EXTENSIONS } from '../io/index.js';
+import { CAMERA_RAW_EXTENSIONS, readTextFile } from '../io/index.js';
 import type { Corners, Pattern } from '../types.js';
 
 // HEIF files (.heic from phones, .avif) are listed too: AVIF-coded ones decode, and HEVC-coded ones are
@@ -180,12 +180,7 @@ export function parseCornersText(text: string): Corners | null {
  * File paths are relative to the manifest's folder and may not climb out of it.
  */
 export function groupByManifest(manifestPath: string): GroupingResult {
-  let text: string;
-  try {
-    text = readFileSync(manifestPath, 'utf8');
-  } catch {
-    throw new EvenfieldError('manifest', 'cannot read the manifest', manifestPath);
-  }
+  const text = readTextFile(manifestPath, 'manifest', 'manifest');
   let rows: string[][];
   try {
     rows = parse(text, { skip_empty_lines: true, trim: true, relax_column_count: true, bom: true }) as string[][];

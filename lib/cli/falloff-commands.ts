@@ -1,9 +1,9 @@
 // File-facing side of lens falloff: read profiles, decode flat frames, write profiles.
 
-import { existsSync, readFileSync } from 'node:fs';
+import { existsSync } from 'node:fs';
 import { calibrateFromFlats, profileFromJson, profileToJson } from '../falloff/index.js';
 import type { FalloffProfile } from '../falloff/index.js';
-import { decodePhoto, writeFileAtomic } from '../io/index.js';
+import { decodePhoto, readTextFile, writeFileAtomic } from '../io/index.js';
 import { EvenfieldError } from '../errors.js';
 import type { RgbImage } from '../types.js';
 import type { Transfer } from '../photometry/index.js';
@@ -13,12 +13,7 @@ import { calibrateShiftedFiles } from './shifted.js';
 const FLAT_WORK_LONG_SIDE = 1000;
 
 export function loadFalloffProfile(path: string): FalloffProfile {
-  let text: string;
-  try {
-    text = readFileSync(path, 'utf8');
-  } catch {
-    throw new EvenfieldError('not-found', 'falloff profile not found', path);
-  }
+  const text = readTextFile(path, 'falloff profile', 'falloff');
   try {
     return profileFromJson(text, path);
   } catch (e) {

@@ -1,11 +1,11 @@
 // File-facing side of the camera response: measure it from an exposure bracket, write and read it.
 
-import { existsSync, readFileSync } from 'node:fs';
+import { existsSync } from 'node:fs';
 import { basename } from 'node:path';
 import sharp from 'sharp';
 import { z } from 'zod';
 import { EvenfieldError } from '../errors.js';
-import { readExif, readInputFile, sha256OfBuffer, writeFileAtomic } from '../io/index.js';
+import { readExif, readInputFile, readTextFile, sha256OfBuffer, writeFileAtomic } from '../io/index.js';
 import { decodePhotoBuffer } from '../io/decode.js';
 import {
   bracketPoints,
@@ -69,12 +69,7 @@ export function curveFromTable(linear: number[], source: string): ResponseCurve 
 }
 
 export function loadResponse(path: string): ResponseCurve {
-  let text: string;
-  try {
-    text = readFileSync(path, 'utf8');
-  } catch {
-    throw new EvenfieldError('not-found', 'camera response file not found', path);
-  }
+  const text = readTextFile(path, 'camera response file', 'response');
   let obj: unknown;
   try {
     obj = JSON.parse(text);

@@ -1,10 +1,24 @@
 // File helpers: hashing, reading a photo once, making output folders, atomic writes.
 
 import { createHash, randomBytes } from 'node:crypto';
-import { mkdirSync, statSync } from 'node:fs';
+import { mkdirSync, readFileSync, statSync } from 'node:fs';
 import { open, readFile, rename, unlink } from 'node:fs/promises';
 import { basename, dirname, join, resolve } from 'node:path';
-import { EvenfieldError } from '../errors.js';
+import { EvenfieldError, type ErrorCode } from '../errors.js';
+
+/**
+ * A small text file the user names (criteria, manifest, a calibration file) as UTF-8. Throws
+ * 'not-found' ("<what> not found") when it does not exist, else `code` with the system's reason.
+ */
+export function readTextFile(path: string, what: string, code: ErrorCode): string {
+  try {
+    return readFileSync(path, 'utf8');
+  } catch (e) {
+    const sys = (e as NodeJS.ErrnoException).code;
+    if (sys === 'ENOENT') throw new EvenfieldError('not-found', `${what} not found`, path);
+    throw new EvenfieldError(code, `cannot read the ${what} (${sys ?? String(e)})`, path);
+  }
+}
 
 /** Lower-case hex SHA-256 of a buffer. */
 export function sha256OfBuffer(data: Uint8Array): string {

@@ -18,7 +18,7 @@ export {
   type ScaleMethod,
 } from './decode.js';
 export { EMPTY_EXPOSURE, exifDateToIso, exposureFromTags, readExif, type ExifResult } from './exif.js';
-export { makeFolder, readInputFile, sha256OfBuffer, writeFileAtomic } from './files.js';
+export { makeFolder, readInputFile, readTextFile, sha256OfBuffer, writeFileAtomic } from './files.js';
 export { CAMERA_RAW_ADVICE, CAMERA_RAW_EXTENSIONS, cameraRawKind, describeDecodeFailure, describeStart, lossyNonJpegCoding, sniffFormat, type SniffedFormat } from './sniff.js';
 export { kthSmallest, orderStatistics, quantile, quantiles } from './stats.js';
 export { readIccSummary, readPngColourChunks, srgbColorantsD50, type CurveKind, type IccSummary, type PngColourChunks } from './tags.js';

@@ -2,13 +2,14 @@
 // "file:line: key: problem" so the user can go straight to the line.
 
 import { createHash } from 'node:crypto';
-import { existsSync, readFileSync } from 'node:fs';
+import { existsSync } from 'node:fs';
 import { dirname, join, resolve } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import { Document, LineCounter, isMap, isScalar, isSeq, parseDocument, visit } from 'yaml';
 import type { Node as YamlNode, Pair } from 'yaml';
 import type { z } from 'zod';
 import { EvenfieldError } from '../errors.js';
+import { readTextFile } from '../io/files.js';
 import { CriteriaSchema, allowedKeysAt, typeProblem } from './schema.js';
 import type { Criteria } from './schema.js';
 
@@ -59,14 +60,7 @@ export function defaultCriteriaPath(here: string = dirname(fileURLToPath(import.
 /** Read, parse and validate a criteria file; null loads the shipped default. Throws CriteriaError / EvenfieldError. */
 export function loadCriteria(file: string | null): LoadedCriteria {
   const path = file ?? defaultCriteriaPath();
-  let text: string;
-  try {
-    text = readFileSync(path, 'utf8');
-  } catch (e) {
-    const code = (e as NodeJS.ErrnoException).code;
-    if (code === 'ENOENT') throw new EvenfieldError('not-found', 'criteria file not found', path);
-    throw new EvenfieldError('criteria', `cannot read the criteria file (${code ?? String(e)})`, path);
-  }
+  const text = readTextFile(path, 'criteria file', 'criteria');
   const criteria = parseCriteria(text, path);
   return {
     criteria,

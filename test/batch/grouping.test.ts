@@ -63,6 +63,12 @@ describe('manifest', () => {
     expect(() => groupByManifest(manifest('file,panel,pattern,corners\na.jpg,P1,white,1 2 3\n'))).toThrow(/line 2: corners must be 8 numbers/);
     expect(() => groupByManifest(manifest('file,panel,pattern,colour\na.jpg,P1,white,x\n'))).toThrow(/unknown column "colour"/);
   });
+  it('says whether the manifest is missing or cannot be read (common practice: missing files are not-found)', () => {
+    const d = mkdtempSync(join(tmpdir(), 'ef-man-'));
+    expect(() => groupByManifest(join(d, 'none.csv'))).toThrow(expect.objectContaining({ code: 'not-found', message: expect.stringMatching(/none\.csv: manifest not found$/) }));
+    // a folder where the file should be
+    expect(() => groupByManifest(d)).toThrow(expect.objectContaining({ code: 'manifest', message: expect.stringMatching(/cannot read the manifest \(EISDIR\)/) }));
+  });
   it('parses corners written with commas, spaces or semicolons', () => {
     expect(parseCornersText('1 2; 3 4; 5 6; 7 8')).toEqual([
       [1, 2],
