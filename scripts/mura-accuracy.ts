@@ -14,6 +14,7 @@
 // Corners are the generator's true ones, so that a geometry miss does not count as a mura miss.
 //
 //   npx tsc -p tsconfig.build.json && node dist/scripts/mura-accuracy.js [gray] [clean] [black] [width] [height] [--big] [--render] [--seeds=N] [--panel=WxH]
+//     [--distortion=K] [--mosaic] [--denoise=K,S] [--sharpen=A,S]
 //
 // Rendered photos and their truth are kept under .cache/ and reused (--render draws them again).
 
@@ -45,6 +46,17 @@ const distArg = process.argv.find((a) => a.startsWith('--distortion='));
 const distortion = distArg ? Number(distArg.slice('--distortion='.length)) : 0;
 if (!Number.isFinite(distortion) || Math.abs(distortion) > 0.2) throw new Error('--distortion=K needs a number from -0.2 to 0.2');
 const foundCorners = process.argv.includes('--found-corners');
+// --mosaic: a colour filter mosaic on the sensor (the generator's CameraSpec.mosaic: noise on RGGB
+// photosites, bilinear interpolation, white balance and a colour matrix); --sharpen=A,S: the camera's
+// unsharp masking of its output, amount A and radius S px (OutputSpec.sharpen)
+const mosaic = process.argv.includes('--mosaic');
+const sharpArg = process.argv.find((a) => a.startsWith('--sharpen='));
+const sharpen = sharpArg ? (([a, sg]) => ({ amount: a, sigmaPx: sg }))(sharpArg.slice('--sharpen='.length).split(',').map(Number)) : null;
+if (sharpen && !(sharpen.amount >= 0 && sharpen.sigmaPx > 0)) throw new Error('--sharpen=A,S needs an amount >= 0 and a radius > 0 px, e.g. --sharpen=0.8,1');
+// --denoise=K,S: the camera's noise reduction, strength K (0-1) and radius S px (OutputSpec.denoise)
+const denoiseArg = process.argv.find((a) => a.startsWith('--denoise='));
+const denoise = denoiseArg ? (([k, sg]) => ({ strength: k, sigmaPx: sg }))(denoiseArg.slice('--denoise='.length).split(',').map(Number)) : null;
+if (denoise && !(denoise.strength >= 0 && denoise.strength <= 1 && denoise.sigmaPx > 0)) throw new Error('--denoise=K,S needs a strength 0..1 and a radius > 0 px, e.g. --denoise=0.8,1.5');
 const cloudSizes = process.argv.includes('--nominal') ? 'nominal' : 'half-peak';
 // --panel=WxH: another panel size in mm (default the generator's 597.9 x 336.3, a 27-inch 16:9 monitor)
 const panelArg = process.argv.find((a) => a.startsWith('--panel='));
@@ -54,7 +66,10 @@ const dir = join(
   '.cache',
   (process.argv.includes('--nominal') ? 'mura-accuracy-nominal' : 'mura-accuracy') +
     (panelMm ? `-panel-${panelMm.width}x${panelMm.height}-${width}x${height}` : '') +
-    (distortion ? `-distortion-${distortion}` : ''),
+    (distortion ? `-distortion-${distortion}` : '') +
+    (mosaic ? '-mosaic' : '') +
+    (denoise ? `-denoise-${denoise.strength}-${denoise.sigmaPx}` : '') +
+    (sharpen ? `-sharpen-${sharpen.amount}-${sharpen.sigmaPx}` : ''),
 );
 mkdirSync(dir, { recursive: true });
 
@@ -68,6 +83,9 @@ interface Measured {
 
 async function measure(name: string, spec: PhotoSpec): Promise<Measured> {
   if (distortion) spec.camera.distortion = distortion;
+  if (mosaic) spec.camera.mosaic = {};
+  if (sharpen) spec.output = { ...spec.output, sharpen };
+  if (denoise) spec.output = { ...spec.output, denoise };
   // rendered photos are kept (with their truth) and reused: the scenes are deterministic from the seed
   const cached = join(dir, `${name}.jpg`);
   const cachedTruth = join(dir, `${name}.truth.json`);
