@@ -89,6 +89,17 @@ export interface QualityLimits {
    */
   moireColourTestPeriodPx: number;
   /**
+   * A ripple counts as moiré only where its power stands this many times above the noise's mean power
+   * at its frequency (estimated from the median over all directions at that frequency), and its
+   * amplitude is given with that noise power taken out. Default 25. Why: the power of one frequency bin
+   * of random noise is exponentially distributed, so it exceeds t times its mean with probability
+   * e^-t (computed); the search looks at about 1.5e5 bins per photo (three windows of 256², two ripple
+   * kinds), so t = 25 keeps noise alone from passing in all but about 2e-6 of photos, while a ripple at
+   * the 1 % limit stands 25 times above a noise of up to 0.2 % per bin. Without it the colour noise of a
+   * dark field (a camera's colour matrix amplifies it) was read as a coloured ripple of about 1 %.
+   */
+  moireMinPowerRatio: number;
+  /**
    * Flicker bands (flicker.ts): largest peak-to-peak ripple (percent of the level) of a periodic pattern
    * along the camera's rows, the same across the panel's width and with no counterpart along them, for
    * the photo to be measured. Default 1 %. Why: a ripple of 1 % peak to peak (amplitude 0.5 %) is
@@ -134,6 +145,7 @@ export const DEFAULT_QUALITY_LIMITS: QualityLimits = {
   maxMoireAmplitude: 0.01,
   moireMaxPeriodPx: 32,
   moireColourTestPeriodPx: 8,
+  moireMinPowerRatio: 25,
   maxFlickerPct: 1,
   warnFlickerPct: 0.4,
   maxViewAngleDeg: 60,
@@ -826,6 +838,7 @@ function scanSpectra(
   sumW: number,
   fw: number,
   colourTestPeriodPx: number,
+  minPowerRatio: number,
 ): MoireFinding | null {
   const nU = spectra.length;
   // unused channels get weight 0 (and are left out of the colour test)
@@ -845,12 +858,19 @@ function scanSpectra(
   const attY = new Float64Array(N + 1);
   for (let k = 0; k <= half; k++) attX[k] = fw > 0 ? sinc((k / N) * fw) : 1;
   for (let k = -half; k <= half; k++) attY[k + half] = fw > 0 ? sinc((k / N) * fw) : 1;
-  let best: MoireFinding | null = null;
-  let bestAmp = -Infinity;
   const toAmp = 2 / sumW;
+  // first pass: each bin's luminance and colour ripple amplitudes, and its ring (integer radius)
+  const aYs = new Float64Array(N * N);
+  const aCs = new Float64Array(N * N);
+  const ring = new Int32Array(N * N).fill(-1);
+  const rings: number[][] = [];
+  const ringsC: number[][] = [];
+  for (let r = 0; r <= half + 1; r++) {
+    rings.push([]);
+    ringsC.push([]);
+  }
   for (let ky = -half + 1; ky < half; ky++) {
     const row = ((ky + N) % N) * N;
-    const ay = attY[ky + half];
     for (let kx = 0; kx < half; kx++) {
       if (kx === 0 && ky <= 0) continue; // each real ripple once
       const kk = Math.sqrt(kx * kx + ky * ky);
@@ -879,10 +899,48 @@ function scanSpectra(
           aC = Math.max(aC, toAmp * Math.sqrt(dr * dr + di * di));
         }
       }
+      aYs[idx] = aY;
+      aCs[idx] = aC;
+      const r = Math.round(kk);
+      ring[idx] = r;
+      rings[r].push(aY * aY);
+      ringsC[r].push(aC * aC);
+    }
+  }
+  // the noise's power at each frequency radius: the median bin of its ring over ln 2 (a noise bin's
+  // power is exponentially distributed, whose median is ln 2 of its mean); a ripple's few bins do not
+  // move a median of dozens
+  const noiseOf = (list: number[][]): Float64Array =>
+    Float64Array.from(list, (v) => {
+      if (v.length === 0) return 0;
+      const sorted = Float64Array.from(v).sort();
+      return sorted[sorted.length >> 1] / Math.LN2;
+    });
+  const noiseY = noiseOf(rings);
+  const noiseC = noiseOf(ringsC);
+  let best: MoireFinding | null = null;
+  let bestAmp = -Infinity;
+  for (let ky = -half + 1; ky < half; ky++) {
+    const row = ((ky + N) % N) * N;
+    const ay = attY[ky + half];
+    for (let kx = 0; kx < half; kx++) {
+      const idx = row + kx;
+      const r = ring[idx];
+      if (r < 0) continue;
+      const pY = aYs[idx] * aYs[idx];
+      const pC = aCs[idx] * aCs[idx];
+      // amplitudes with the noise's mean power taken out, and how far each stands above that noise
+      const aY = Math.sqrt(Math.max(0, pY - noiseY[r]));
+      const aC = Math.sqrt(Math.max(0, pC - noiseC[r]));
       const coloured = canColour && aC >= 0.5 * aY;
       // beyond the colour test's reach (fine chroma is lost to JPEG chroma subsampling) any ripple counts
+      const kk = Math.sqrt(kx * kx + ky * ky);
       if (canColour && !coloured && N / kk > colourTestPeriodPx) continue;
-      const cam = aY > aC ? aY : aC;
+      const useY = aY > aC;
+      const cam = useY ? aY : aC;
+      const power = useY ? pY : pC;
+      const noise = useY ? noiseY[r] : noiseC[r];
+      if (!(cam > 0) || power < minPowerRatio * noise) continue;
       const amp = cam * Math.abs(attX[kx] * ay);
       if (amp > bestAmp) {
         bestAmp = amp;
@@ -958,7 +1016,7 @@ export function findMoire(q: QualityInput, limits: QualityLimits): MoireFinding 
     const wY = [0.2126, 0.7152, 0.0722];
     const lw = usable.map((c) => wY[c] * mean[c]);
     const lsum = lw.reduce((x, y) => x + y, 0);
-    const found = scanSpectra(spectra, lw.map((x) => x / lsum), N, minK, sumW, fw, limits.moireColourTestPeriodPx);
+    const found = scanSpectra(spectra, lw.map((x) => x / lsum), N, minK, sumW, fw, limits.moireColourTestPeriodPx, limits.moireMinPowerRatio);
     if (found && (!best || found.amplitude > best.amplitude)) best = found;
   }
   return best;
