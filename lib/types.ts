@@ -69,6 +69,14 @@ export interface DecodeInfo {
    * decoded in float, the luma DC quantiser over 8 (0.375 at quality 92). Null for 16-bit input.
    */
   levelStepCodes: number | null;
+  /**
+   * JPEG decoded in float, once the panel is found: the share (0..1) of the panel's flat luma blocks
+   * whose mean lies on a whole code value, beyond the share chance gives (pipeline/plateaus.ts). 0: the
+   * photo's noise dithered its 8-bit codes; 1: a noise-free staircase of whole codes. The mura analysis
+   * takes the level step as the larger of this and levelStepCodes. Null when it cannot be told (too few
+   * flat blocks, or a field within a few codes); absent for other input.
+   */
+  codePlateauShare?: number | null;
   /** the pixels were coded by JPEG: a JPEG file, or a TIFF with JPEG compression (TIFF tag 259 = 6 or 7).
    *  Its 8 x 8 blocks and the ringing at sharp edges are then allowed for (mura border, block size). */
   jpegCoded: boolean;

@@ -14,7 +14,7 @@
 // Corners are the generator's true ones, so that a geometry miss does not count as a mura miss.
 //
 //   npx tsc -p tsconfig.build.json && node dist/scripts/mura-accuracy.js [gray] [clean] [black] [width] [height] [--big] [--render] [--seeds=N] [--panel=WxH]
-//     [--distortion=K] [--mosaic] [--denoise=K,S] [--sharpen=A,S]
+//     [--distortion=K] [--no-noise] [--full-well=N] [--mosaic] [--denoise=K,S] [--sharpen=A,S]
 //
 // Rendered photos and their truth are kept under .cache/ and reused (--render draws them again).
 
@@ -50,6 +50,12 @@ const foundCorners = process.argv.includes('--found-corners');
 // photosites, bilinear interpolation, white balance and a colour matrix); --sharpen=A,S: the camera's
 // unsharp masking of its output, amount A and radius S px (OutputSpec.sharpen)
 const mosaic = process.argv.includes('--mosaic');
+// --no-noise: photos without sensor noise (the 8-bit coding's steps then lie bare on smooth gradients)
+const noNoise = process.argv.includes('--no-noise');
+// --full-well=N: sensor noise of N electrons at full scale (the generator's default 20000; more is quieter)
+const fwArg = process.argv.find((a) => a.startsWith('--full-well='));
+const fullWell = fwArg ? Number(fwArg.slice('--full-well='.length)) : null;
+if (fullWell !== null && !(fullWell >= 100)) throw new Error('--full-well=N needs a number of electrons >= 100');
 const sharpArg = process.argv.find((a) => a.startsWith('--sharpen='));
 const sharpen = sharpArg ? (([a, sg]) => ({ amount: a, sigmaPx: sg }))(sharpArg.slice('--sharpen='.length).split(',').map(Number)) : null;
 if (sharpen && !(sharpen.amount >= 0 && sharpen.sigmaPx > 0)) throw new Error('--sharpen=A,S needs an amount >= 0 and a radius > 0 px, e.g. --sharpen=0.8,1');
@@ -67,6 +73,8 @@ const dir = join(
   (process.argv.includes('--nominal') ? 'mura-accuracy-nominal' : 'mura-accuracy') +
     (panelMm ? `-panel-${panelMm.width}x${panelMm.height}-${width}x${height}` : '') +
     (distortion ? `-distortion-${distortion}` : '') +
+    (noNoise ? '-no-noise' : '') +
+    (fullWell !== null ? `-full-well-${fullWell}` : '') +
     (mosaic ? '-mosaic' : '') +
     (denoise ? `-denoise-${denoise.strength}-${denoise.sigmaPx}` : '') +
     (sharpen ? `-sharpen-${sharpen.amount}-${sharpen.sigmaPx}` : ''),
@@ -83,6 +91,8 @@ interface Measured {
 
 async function measure(name: string, spec: PhotoSpec): Promise<Measured> {
   if (distortion) spec.camera.distortion = distortion;
+  if (noNoise) spec.noise = null;
+  else if (fullWell !== null) spec.noise = { ...spec.noise, fullWell };
   if (mosaic) spec.camera.mosaic = {};
   if (sharpen) spec.output = { ...spec.output, sharpen };
   if (denoise) spec.output = { ...spec.output, denoise };

@@ -36,7 +36,7 @@ import { readExif } from './exif.js';
 import { readInputFile, sha256OfBuffer } from './files.js';
 import { CAMERA_RAW_ADVICE, cameraRawKind, describeDecodeFailure, describeStart, formatName, lossyCodingAdvice, lossyNonJpegCoding, missingCodec, sniffFormat } from './sniff.js';
 import { quantiles } from './stats.js';
-import { JpegDataError, decodeJpegFloat, lumaDcQuant } from './jpeg-float.js';
+import { JpegDataError, decodeJpegFloat, lumaDcQuant, type FlatBlocks } from './jpeg-float.js';
 import { readIccSummary, readPngColourChunks, type IccSummary } from './tags.js';
 
 /**
@@ -108,6 +108,9 @@ export interface DecodedPhoto {
   rgbToXyz: readonly number[];
   /** how the code values were turned into linear light (the transfer asked for, or the one chosen) */
   transfer: Transfer;
+  /** a JPEG decoded in float (jpeg-float.ts): its luma blocks without AC terms and their mean codes, and
+   *  the luma DC quantiser; null for other input */
+  jpegFlatBlocks: (FlatBlocks & { dcQuant: number }) | null;
   warnings: string[];
 }
 
@@ -669,7 +672,7 @@ export async function decodePhotoBuffer(buf: Buffer, name: string, opts: DecodeO
   // libvips below, which decodes them to whole codes or reports the damage in its own words.
   if (plan.format === 'jpeg' && !useShrink && !plan.isCmyk && (opts.jpegSamples ?? 'float') === 'float') {
     const th = thresholds(8, clipLevel, darkLevel);
-    let fl: (Reduced & { lumaDcQuant: number }) | null = null;
+    let fl: (Reduced & { lumaDcQuant: number; lumaBlocks: FlatBlocks }) | null = null;
     try {
       fl = decodeJpegFloat(buf, { scale, transfer, clipCode: th.clipCode, darkCode: th.darkCode, clipLinear: opts.clipMaskLinear ?? null, weights: [YR, YG, YB] });
     } catch (e) {
@@ -679,7 +682,9 @@ export async function decodePhotoBuffer(buf: Buffer, name: string, opts: DecodeO
     if (fl) {
       const sha256 = sha256OfBuffer(buf);
       const exif = await readExif(buf, plan.exifBlock);
-      return finish(fl, plan, transfer, scale, 'float', fl.lumaDcQuant / 8, sha256, exif, method, warnings);
+      const photo = finish(fl, plan, transfer, scale, 'float', fl.lumaDcQuant / 8, sha256, exif, method, warnings);
+      photo.jpegFlatBlocks = { ...fl.lumaBlocks, dcQuant: fl.lumaDcQuant };
+      return photo;
     }
   }
 
@@ -780,6 +785,7 @@ function finish(
     iccProfile: plan.icc,
     rgbToXyz: primariesOf(plan),
     transfer,
+    jpegFlatBlocks: null,
     warnings,
   };
 }

@@ -177,7 +177,20 @@ export interface FloatDecodeOptions {
 
 /** The reduced image as decode.ts's other paths make it, and the luma DC quantiser: a block's mean level
  *  moves in steps of this over 8 codes. */
-export type FloatDecoded = Reduced & { lumaDcQuant: number };
+export type FloatDecoded = Reduced & { lumaDcQuant: number; lumaBlocks: FlatBlocks };
+
+/**
+ * The luma blocks that carry no AC term (flat: every sample at the block's mean) and their mean code
+ * value (0-255, the DC term over 8 plus the level shift); NaN for the others. Block (i, j) covers the
+ * full-size pixels from (i blockW, j blockH), blockW x blockH of them.
+ */
+export interface FlatBlocks {
+  cols: number;
+  rows: number;
+  blockW: number;
+  blockH: number;
+  mean: Float32Array;
+}
 
 interface Comp {
   id: number;
@@ -196,6 +209,8 @@ interface Comp {
   /** the component's own size in samples */
   cw: number;
   ch: number;
+  /** luma only: the mean code of each flat block, NaN for the others (FlatBlocks.mean) */
+  flat?: Float32Array;
 }
 
 /** Code value (0..255, real) to linear light: a table of 16 steps per code, linearly interpolated. Kept
@@ -412,6 +427,7 @@ function frameOf(W: number, H: number, comps: Comp[], opts: FloatDecodeOptions):
     c.bw = mcusPerLine * c.h;
     c.bh = mcuRows * c.v;
   }
+  comps[0]!.flat = new Float32Array(comps[0]!.bw * comps[0]!.bh).fill(NaN);
   return { W, H, comps, hmax: comps.length === 1 ? 1 : hmax, vmax: comps.length === 1 ? 1 : vmax, mcuW, mcuH, mcusPerLine, mcuRows };
 }
 
@@ -461,6 +477,7 @@ function decodeBaseline(data: Uint8Array, start: number, f: Frame, qt: Float64Ar
               if ((z & 7) > colMax) colMax = z & 7;
               k++;
             }
+            if (c.flat && rowMask === 1 && colMax === 0) c.flat[(my * c.v + by) * c.bw + mx * c.h + bx] = coef[0]! / 8 + 128;
             idct(coef, tmp, rowMask, colMax, c.rows, by * 8 * c.stride + (mx * c.h + bx) * 8, c.stride);
           }
         }
@@ -622,6 +639,7 @@ function renderCoefficients(f: Frame, coefs: Int16Array[], qt: Float64Array[], o
               if ((z & 7) > colMax) colMax = z & 7;
             }
           }
+          if (c.flat && rowMask === 1 && colMax === 0) c.flat[(my * c.v + by) * c.bw + bx] = coef[0]! / 8 + 128;
           idct(coef, tmp, rowMask, colMax, c.rows, by * 8 * c.stride + bx * 8, c.stride);
         }
       }
@@ -829,7 +847,15 @@ class Emitter {
   }
 
   result(lumaDcQuant: number): FloatDecoded {
-    return { lumaDcQuant, data: this.out, luminance: this.lum, width: this.w, height: this.h, clipped: this.clipped, dark: this.dark, pixels: this.f.W * this.f.H, clipMask: this.clipMask };
+    const y = this.f.comps[0]!;
+    const lumaBlocks: FlatBlocks = {
+      cols: y.bw,
+      rows: y.bh,
+      blockW: (8 * this.f.hmax) / y.h,
+      blockH: (8 * this.f.vmax) / y.v,
+      mean: y.flat!,
+    };
+    return { lumaDcQuant, lumaBlocks, data: this.out, luminance: this.lum, width: this.w, height: this.h, clipped: this.clipped, dark: this.dark, pixels: this.f.W * this.f.H, clipMask: this.clipMask };
   }
 }
 

@@ -1,7 +1,7 @@
 // State shared by the detectors of one analysis round, and the measurement of a found region.
 
 import type { MuraOptions } from './options.js';
-import { transferCodeStepPct } from '../photometry/index.js';
+import { transferCodeStepPct, transferEncode } from '../photometry/index.js';
 
 export interface Ctx {
   w: number;
@@ -280,9 +280,24 @@ export function register(ctx: Ctx, f: Found): void {
 /**
  * Contrast (%) of one 8-bit code value where the camera saw the working pixel (x, y), from the code level
  * at the panel's centre, the background's level there and the lens transmission there; null when the
- * input is not 8-bit sRGB or the level is unknown.
+ * input is not 8-bit sRGB or the level is unknown. Times the level step (CodeLevel.stepCodes).
  */
 export function localCodeStepPct(ctx: Ctx, x: number, y: number): number | null {
+  const cl = ctx.opts.codeLevel;
+  const level = cameraLevelAt(ctx, x, y);
+  return cl && level !== null ? transferCodeStepPct(cl.response ?? 'srgb', level) * (cl.stepCodes ?? 1) : null;
+}
+
+/** The camera's code value (0-255, not rounded) where it saw the working pixel (x, y), or null (see
+ *  localCodeStepPct). */
+export function localCode(ctx: Ctx, x: number, y: number): number | null {
+  const cl = ctx.opts.codeLevel;
+  const level = cameraLevelAt(ctx, x, y);
+  return cl && level !== null ? 255 * transferEncode(cl.response ?? 'srgb', level) : null;
+}
+
+/** The camera's linear level (0..1) where it saw the working pixel (x, y), or null. */
+function cameraLevelAt(ctx: Ctx, x: number, y: number): number | null {
   const cl = ctx.opts.codeLevel;
   if (!cl || !ctx.B) return null;
   const { w, h, B } = ctx;
@@ -293,7 +308,7 @@ export function localCodeStepPct(ctx: Ctx, x: number, y: number): number | null 
   if (!(bc > 0) || !(bp > 0)) return null;
   let level = (cl.centreY * bp) / bc;
   if (cl.gain) level *= bilinearNode(cl.gain, (x + 0.5) / w, (y + 0.5) / h);
-  return level > 0 && level <= 1 ? transferCodeStepPct(cl.response ?? 'srgb', level) * (cl.stepCodes ?? 1) : null;
+  return level > 0 && level <= 1 ? level : null;
 }
 
 /** Bilinear value of a grid of nodes spanning u, v = 0..1. */

@@ -166,6 +166,12 @@ export interface CodeLevel {
   /** the level step in code values (DecodeInfo.levelStepCodes: 1 for whole codes; the JPEG DC
    *  quantiser over 8 for a JPEG decoded in float) */
   stepCodes?: number;
+  /** how far (code values, 0..1) the photo's 8-bit codes form a bare staircase of whole codes
+   *  (DecodeInfo.codePlateauShare; 0 or absent: dithered by noise). A plateau edged by its neighbours
+   *  reads as up to a code value of contrast against its surround, whatever its size; over a finding
+   *  that spans n whole codes of the camera's level the plateaus' errors average to about 1 / n. A
+   *  finding must exceed this many code values over max(1, n), and the level step is at least that. */
+  bareStepCodes?: number;
   /** a measured camera response the photo was read through (null or absent: the sRGB curve) */
   response?: ResponseCurve | null;
 }

@@ -15,6 +15,7 @@ import type { GridOptions } from '../measure/index.js';
 import { EvenfieldError, isEvenfieldError } from '../errors.js';
 import type {
   Corners,
+  DecodeInfo,
   FalloffRecord,
   GeometryRecord,
   GridPoint,
@@ -26,7 +27,8 @@ import type {
   RgbImage,
 } from '../types.js';
 import type { PhotoArtifacts as ReportArtifacts, ReportThumbnail } from '../report/types.js';
-import { checkPanelQuality, insideQuad, nearWhiteMask, type QualityLimits, DEFAULT_QUALITY_LIMITS } from './quality.js';
+import { checkPanelQuality, insideQuad, nearWhiteMask, shrink, type QualityLimits, DEFAULT_QUALITY_LIMITS } from './quality.js';
+import { plateauShare } from './plateaus.js';
 import { removeImpulses } from './impulses.js';
 
 /** default smallest mura feature, mm (the mura analysis's own default; see lib/mura/options.ts) */
@@ -41,6 +43,13 @@ const EDGE_TRANSITION_CAMERA_PX = 3;
  *  from a couple of pixels). */
 const EDGE_BOW_WARN_PX = 2;
 
+/** The part of the panel whose JPEG blocks tell whether its codes were dithered (the outline scaled
+ *  about its centre: clear of the edge's transition and ringing). */
+const PLATEAU_INNER_SHRINK = 0.8;
+/** From this plateau share (DecodeInfo.codePlateauShare) a photo is said to carry almost no noise:
+ *  the level step then exceeds the DC step of a JPEG of quality 92 and above by a third or more. */
+const PLATEAU_WARN_SHARE = 0.5;
+
 /**
  * Contrast (%) of the smallest level step of an 8-bit sRGB photo as decoded (one code value, or a
  * fraction of one for a JPEG decoded in float: DecodeInfo.levelStepCodes) at the level of the panel's
@@ -51,7 +60,13 @@ function codeStepAt(result: PhotoResult, points: GridPoint[], response: Response
   if (!d || d.bitDepth !== 8 || d.transfer === 'linear') return null;
   const centre = points.find((p) => p.u === 0.5 && p.v === 0.5) ?? points[0];
   const y = centre?.Y;
-  return y !== undefined && y > 0 && y <= 1 ? transferCodeStepPct(response ?? 'srgb', y) * (d.levelStepCodes ?? 1) : null;
+  return y !== undefined && y > 0 && y <= 1 ? transferCodeStepPct(response ?? 'srgb', y) * levelStepOf(d) : null;
+}
+
+/** The level step (code values) the mura analysis allows for: the decoder's, or more where the photo's
+ *  codes lie in plateaus of whole codes (DecodeInfo.codePlateauShare). */
+function levelStepOf(d: DecodeInfo): number {
+  return Math.max(d.levelStepCodes ?? 1, d.codePlateauShare ?? 0);
 }
 
 /** The measured response in the options, or null (the sRGB curve or linear input). */
@@ -426,7 +441,7 @@ async function measureInner(
     const centreY = points.find((p) => p.u === 0.5 && p.v === 0.5)?.Y ?? points[0]?.Y;
     const codeLevel =
       codeStepPct !== null && centreY !== undefined && centreY > 0
-        ? { centreY, gain: gainGrid, stepCodes: result.decode?.levelStepCodes ?? 1, response: curve }
+        ? { centreY, gain: gainGrid, stepCodes: result.decode?.levelStepCodes ?? 1, bareStepCodes: result.decode?.codePlateauShare ?? 0, response: curve }
         : null;
     const mura = analyseMura(
       { ...map, valid: withoutBorder(map.valid, map.width, map.height, border) },
@@ -708,6 +723,17 @@ async function measureCamera(
   const cornersFull = cornersWork.map((p) => toFull(p, scale)) as Corners;
   result.corners = cornersFull.map((p) => [round3(p[0]), round3(p[1])]) as Corners;
 
+  // a JPEG's 8-bit codes: dithered by the photo's noise, or a bare staircase of whole codes
+  if (decoded.jpegFlatBlocks) {
+    const pl = plateauShare(decoded.jpegFlatBlocks, shrink(cornersFull, PLATEAU_INNER_SHRINK));
+    result.decode.codePlateauShare = pl ? round3(pl.share) : null;
+    if (pl && pl.share >= PLATEAU_WARN_SHARE) {
+      result.warnings.push(
+        `the photo carries almost no noise: ${(100 * pl.share).toFixed(0)} % of its flat 8 × 8 blocks on the panel lie on whole code values beyond chance, so its smooth gradients are a staircase of whole codes, and the mura analysis takes its level step as ${levelStepOf(result.decode).toFixed(2)} code value; a 16-bit TIFF or PNG, or a photo with the camera's noise reduction lower, resolves finer mura`,
+      );
+    }
+  }
+
   // 4. pose and size (the quality gates need the viewing angle and the panel's size)
   const known = opts.panelSizeMm !== null;
   let widthMm: number;
@@ -805,6 +831,7 @@ async function measureCamera(
       response: curve,
       tileGrid: opts.muraOptions.tileGrid ?? null,
       exposureTimeS: decoded.exposure.exposureTimeS,
+      codePlateauShare: result.decode.codePlateauShare ?? null,
     },
     opts.quality,
   );

@@ -19,7 +19,7 @@
 import { Matrix, solve } from 'ml-matrix';
 import { EvenfieldError, type ErrorCode } from '../errors.js';
 import { cornerAngles, isConvexClockwise, panelToCamera, quadraticFit, rectifyPlane, signedArea } from '../geometry/index.js';
-import { srgbDecode, srgbEncode, transferEncode, type ResponseCurve } from '../photometry/index.js';
+import { srgbCodeStepPct, srgbDecode, srgbEncode, transferCodeStepPct, transferEncode, type ResponseCurve } from '../photometry/index.js';
 import type { Corners, Pattern, Plane, Point, RgbImage } from '../types.js';
 import { findFlicker, type FlickerFinding } from './flicker.js';
 
@@ -274,6 +274,11 @@ export interface QualityInput {
   tileGrid?: [number, number] | null;
   /** the photo's exposure time in seconds (EXIF), for the flicker message; null when unknown */
   exposureTimeS?: number | null;
+  /** how far the photo's 8-bit codes form a bare staircase of whole codes (0..1, DecodeInfo.codePlateauShare;
+   *  absent or null: dithered by noise, or not known). Without noise the contours of the three channels'
+   *  codes lie side by side along every gradient and read as a coloured ripple of up to about a code
+   *  value; a ripple no stronger than this share of a code at the panel's level is not called moiré. */
+  codePlateauShare?: number | null;
 }
 
 export interface EdgeWidth {
@@ -1147,7 +1152,8 @@ export function assessPanelQuality(q: QualityInput, limits: QualityLimits): Qual
 
   // moiré
   const moire = dark ? null : findMoire(q, limits);
-  if (moire && moire.amplitude > limits.maxMoireAmplitude) {
+  const staircase = (q.codePlateauShare ?? 0) * (q.response ? transferCodeStepPct(q.response, Math.min(1, Math.max(1e-6, median))) : srgbCodeStepPct(Math.min(1, Math.max(1e-6, median)))) / 100;
+  if (moire && moire.amplitude > limits.maxMoireAmplitude && moire.cameraAmplitude > staircase) {
     problems.push({
       code: 'moire',
       message:

@@ -960,7 +960,10 @@ function photoMethodPairs(p: PreparedPhoto): Array<[string, string | Cell]> {
     d
       ? `${d.format.toUpperCase()}, ${d.width} \u00d7 ${d.height} px, ${d.bitDepth}-bit, ${d.channels} channels; ` +
         (d.jpegSamples === 'float'
-          ? `decoded without rounding samples to whole code values (level step ${trim(d.levelStepCodes ?? 1, 3)} code value); `
+          ? `decoded without rounding samples to whole code values (level step ${trim(d.levelStepCodes ?? 1, 3)} code value); ` +
+            ((d.codePlateauShare ?? 0) >= 0.5
+              ? `almost no noise: its codes lie in plateaus of whole codes (plateau share ${trim(d.codePlateauShare!, 2)}), and small findings fainter than that share of a code value are not reported; `
+              : '')
           : d.jpegSamples === '8bit'
             ? 'decoded to whole code values; '
             : '') +
