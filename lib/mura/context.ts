@@ -1,7 +1,7 @@
 // State shared by the detectors of one analysis round, and the measurement of a found region.
 
 import type { MuraOptions } from './options.js';
-import { transferCodeStepPct, transferEncode } from '../photometry/index.js';
+import { transferCodeStepPct } from '../photometry/index.js';
 
 export interface Ctx {
   w: number;
@@ -286,14 +286,6 @@ export function localCodeStepPct(ctx: Ctx, x: number, y: number): number | null 
   const cl = ctx.opts.codeLevel;
   const level = cameraLevelAt(ctx, x, y);
   return cl && level !== null ? transferCodeStepPct(cl.response ?? 'srgb', level) * (cl.stepCodes ?? 1) : null;
-}
-
-/** The camera's code value (0-255, not rounded) where it saw the working pixel (x, y), or null (see
- *  localCodeStepPct). */
-export function localCode(ctx: Ctx, x: number, y: number): number | null {
-  const cl = ctx.opts.codeLevel;
-  const level = cameraLevelAt(ctx, x, y);
-  return cl && level !== null ? 255 * transferEncode(cl.response ?? 'srgb', level) : null;
 }
 
 /** The camera's linear level (0..1) where it saw the working pixel (x, y), or null. */

@@ -18,7 +18,7 @@
 // The feature is measured where that correction stays small (the region at least 6 level px wide).
 
 import type { Axis, Ctx, Found } from './context.js';
-import { isDuplicate, localCode, localCodeStepPct, measureRegion, register } from './context.js';
+import { isDuplicate, localCodeStepPct, measureRegion, register } from './context.js';
 import { median, robustSigma } from './raster.js';
 
 interface Level {
@@ -428,35 +428,15 @@ export function detectFeatures(ctx: Ctx, levelsIn: Level[], useFitFloor = true):
       // value off over 100 mm and more, edged by contours (measured on generated JPEGs of quiet fields)
       const share = extentMm < 25 ? 1 : o.jpegBlockMm !== null ? o.jpegPlateauShare : extentMm < 100 ? 0.5 : 0;
       // a bare staircase of whole codes (a photo nearly free of noise): a plateau edged by its neighbours
-      // reads as up to a code value of contrast, whatever its size; over a finding that spans n plateaus
-      // (n whole codes between its ends, along the camera's gradient) their errors average to 1 / n
-      const bare = o.codeLevel?.bareStepCodes ?? 0;
-      const stairPct = bare > 0 && wholeCode !== null ? (bare * wholeCode) / Math.max(1, codesSpanned(ctx, f)) : 0;
-      if (Math.abs(f.contrastPct) < o.codeStepFactor * Math.max(share * Math.max(step, stairPct), stairPct)) continue;
+      // reads as up to a code value of contrast, whatever its size
+      const stairPct = (o.codeLevel?.bareStepCodes ?? 0) * (wholeCode ?? 0);
+      if (Math.abs(f.contrastPct) < o.codeStepFactor * Math.max(share * step, stairPct)) continue;
     }
     if (isDuplicate(ctx, f)) continue;
     register(ctx, f);
   }
   // what follows (masks, tile seams and steps) works on the contrast map as it is
   if (original) ctx.C = original;
-}
-
-/** How many whole code values the camera's level changes by across a finding: the range of the code
- *  the camera saw over (up to 256 of) its pixels; 0 when unknown. */
-function codesSpanned(ctx: Ctx, f: Found): number {
-  const n = f.pixels.length;
-  const stride = Math.max(1, Math.floor(n / 256));
-  let lo = Infinity;
-  let hi = -Infinity;
-  for (let k = 0; k < n; k += stride) {
-    const i = f.pixels[k]!;
-    const x = i % ctx.w;
-    const c = localCode(ctx, x, (i - x) / ctx.w);
-    if (c === null) continue;
-    if (c < lo) lo = c;
-    if (c > hi) hi = c;
-  }
-  return hi > lo ? hi - lo : 0;
 }
 
 /** How much more noise survives averaging than white noise would, from the levels' own noise. */

@@ -164,13 +164,12 @@ export interface CodeLevel {
    *  or null when no falloff correction was applied */
   gain: { cols: number; rows: number; data: Float32Array } | null;
   /** the level step in code values (DecodeInfo.levelStepCodes: 1 for whole codes; the JPEG DC
-   *  quantiser over 8 for a JPEG decoded in float) */
+   *  quantiser over 8 for a JPEG decoded in float; at least bareStepCodes) */
   stepCodes?: number;
   /** how far (code values, 0..1) the photo's 8-bit codes form a bare staircase of whole codes
    *  (DecodeInfo.codePlateauShare; 0 or absent: dithered by noise). A plateau edged by its neighbours
-   *  reads as up to a code value of contrast against its surround, whatever its size; over a finding
-   *  that spans n whole codes of the camera's level the plateaus' errors average to about 1 / n. A
-   *  finding must exceed this many code values over max(1, n), and the level step is at least that. */
+   *  reads as up to a code value of contrast against its surround, whatever its size, so a finding of
+   *  any size must exceed this many code values (stepCodes is then at least this too). */
   bareStepCodes?: number;
   /** a measured camera response the photo was read through (null or absent: the sRGB curve) */
   response?: ResponseCurve | null;

@@ -441,7 +441,7 @@ async function measureInner(
     const centreY = points.find((p) => p.u === 0.5 && p.v === 0.5)?.Y ?? points[0]?.Y;
     const codeLevel =
       codeStepPct !== null && centreY !== undefined && centreY > 0
-        ? { centreY, gain: gainGrid, stepCodes: result.decode?.levelStepCodes ?? 1, bareStepCodes: result.decode?.codePlateauShare ?? 0, response: curve }
+        ? { centreY, gain: gainGrid, stepCodes: result.decode ? levelStepOf(result.decode) : 1, bareStepCodes: result.decode?.codePlateauShare ?? 0, response: curve }
         : null;
     const mura = analyseMura(
       { ...map, valid: withoutBorder(map.valid, map.width, map.height, border) },
