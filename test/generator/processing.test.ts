@@ -74,14 +74,14 @@ describe('sharpening and noise reduction of the encoded image', () => {
     sharpenEncoded(flat, W, H, 1, 1);
     for (const v of flat) expect(v).toBeCloseTo(0.3, 6);
     // a step in x: on its high side the encoded value overshoots by amount (v - blur v), the blur being
-    // the sum of the normalised Gaussian weights (sigma 1 px, cut at 3 sigma) over the step (computed)
+    // the sum of the normalised Gaussian weights (sigma 1 px, cut at 4 sigma) over the step (computed)
     const lo = 0.1;
     const hi = 0.5;
     const step = field((x) => (x < W / 2 ? lo : hi));
     sharpenEncoded(step, W, H, 1, 1);
     const enc = (l: number) => (l <= 0.0031308 ? 12.92 * l : 1.055 * Math.pow(l, 1 / 2.4) - 0.055);
     const dec = (v: number) => (v <= 0.04045 ? v / 12.92 : Math.pow((v + 0.055) / 1.055, 2.4));
-    const rad = 3;
+    const rad = 4;
     const wts = Array.from({ length: 2 * rad + 1 }, (_, i) => Math.exp(-0.5 * (i - rad) ** 2));
     const wsum = wts.reduce((a, b) => a + b, 0);
     const x = W / 2; // first pixel of the high side
