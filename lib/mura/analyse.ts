@@ -8,7 +8,7 @@
 import { EvenfieldError } from '../errors.js';
 import type { Blob, LeftOutFinding, MuraResult, PanelMap, Plane } from '../types.js';
 import { bumpDistance2, fitBackground, type BackgroundFit, type Bump, type WorkRaster } from './background.js';
-import { buildLevels, detectFeatures, noiseCorrelation } from './detect.js';
+import { buildLevels, codingFloorPct, detectFeatures, noiseCorrelation } from './detect.js';
 import { classify, round } from './classify.js';
 import { panelEdges, register, type Ctx, type Found } from './context.js';
 import { groupHotspots, type Finding } from './hotspots.js';
@@ -130,7 +130,9 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
   for (const d of RESOLVABLE_DIAMETERS_MM) {
     const px = (Math.PI * (d / 2) ** 2) / (work.mmPerPx * work.mmPerPx);
     const noiseOfMean = (rho * noisePct) / Math.sqrt(Math.max(px, 1));
-    resolvable[String(d)] = round(Math.max(opts.thresholdSigma * noiseOfMean, opts.fitSigma * fit.fitErrorPct), 4);
+    // ...and not below what the 8-bit coding lets a finding of that size show (at the panel's centre)
+    const coding = opts.codeStepPct !== null ? codingFloorPct(opts, d, opts.codeStepPct) : 0;
+    resolvable[String(d)] = round(Math.max(opts.thresholdSigma * noiseOfMean, opts.fitSigma * fit.fitErrorPct, coding), 4);
   }
 
   const notes: string[] = [];

@@ -20,6 +20,7 @@
 import type { Axis, Ctx, Found } from './context.js';
 import { isDuplicate, localCodeStepPct, measureRegion, register } from './context.js';
 import { median, robustSigma } from './raster.js';
+import type { MuraOptions } from './options.js';
 
 interface Level {
   l: number;
@@ -423,20 +424,28 @@ export function detectFeatures(ctx: Ctx, levelsIn: Level[], useFitFloor = true):
     if (o.jpegBlockMm !== null && extentMm < 2 * o.jpegBlockMm && (wholeCode === null || Math.abs(f.peakContrastPct) < 3 * wholeCode)) continue;
     // within one or a few of the 8-bit coding's plateaus: must beat the code step
     if (process.env.MURA_DBG && step !== null) console.log(`  step at (${(f.cx * ctx.mmPerPx).toFixed(0)},${(f.cy * ctx.mmPerPx).toFixed(0)}) ${step.toFixed(2)} % (centre ${o.codeStepPct?.toFixed(2)}) C ${f.contrastPct.toFixed(2)} extent ${extentMm.toFixed(0)}`);
-    if (step !== null) {
-      // JPEG: flat blocks come out at the rounded block mean, so whole regions sit up to half a code
-      // value off over 100 mm and more, edged by contours (measured on generated JPEGs of quiet fields)
-      const share = extentMm < 25 ? 1 : o.jpegBlockMm !== null ? o.jpegPlateauShare : extentMm < 100 ? 0.5 : 0;
-      // a bare staircase of whole codes (a photo nearly free of noise): a plateau edged by its neighbours
-      // reads as up to a code value of contrast, whatever its size
-      const stairPct = (o.codeLevel?.bareStepCodes ?? 0) * (wholeCode ?? 0);
-      if (Math.abs(f.contrastPct) < o.codeStepFactor * Math.max(share * step, stairPct)) continue;
-    }
+    if (step !== null && Math.abs(f.contrastPct) < codingFloorPct(o, extentMm, step)) continue;
     if (isDuplicate(ctx, f)) continue;
     register(ctx, f);
   }
   // what follows (masks, tile seams and steps) works on the contrast map as it is
   if (original) ctx.C = original;
+}
+
+/**
+ * The least mean contrast (%) a finding `extentMm` across needs to stand out of the 8-bit coding where
+ * the level step is `stepPct` (MuraOptions.codeStepPct; CodeLevel.stepCodes of a code value): the whole
+ * step under 25 mm (one or a few of the coding's plateaus), a share of it beyond, and at any size the
+ * bare staircase's share of a code (CodeLevel.bareStepCodes).
+ */
+export function codingFloorPct(o: MuraOptions, extentMm: number, stepPct: number): number {
+  // JPEG: flat blocks come out at the rounded block mean, so whole regions sit up to half a code value
+  // off over 100 mm and more, edged by contours (measured on generated JPEGs of quiet fields)
+  const share = extentMm < 25 ? 1 : o.jpegBlockMm !== null ? o.jpegPlateauShare : extentMm < 100 ? 0.5 : 0;
+  // a bare staircase of whole codes (a photo nearly free of noise): a plateau edged by its neighbours
+  // reads as up to a code value of contrast, whatever its size
+  const stairPct = ((o.codeLevel?.bareStepCodes ?? 0) * stepPct) / (o.codeLevel?.stepCodes ?? 1);
+  return o.codeStepFactor * Math.max(share * stepPct, stairPct);
 }
 
 /** How much more noise survives averaging than white noise would, from the levels' own noise. */

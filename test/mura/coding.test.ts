@@ -85,6 +85,39 @@ describe('coding limits', () => {
     expect(near(analyseMura(small, { pattern: 'gray', jpegBlockMm: 2, codeStepPct: 0.375 * 3.11, codeLevel: { centreY: 0.05, gain: flat, stepCodes: 0.375 } }))).toHaveLength(0);
   });
 
+  it('a photo without noise: a finding of any size must beat the bare staircase share of a code value', () => {
+    // a broad cloud (sigma 20 mm: 47 mm across) of 2.2 % peak, about 1.6 % mean (peak / (2 ln 2) for a
+    // Gaussian over its half-peak region): a JPEG's plateau rule for findings of 25 mm and more asks 0.6
+    // of the level step, 0.45 % while the codes are dithered (0.375 of a code of 2 %) and 1.2 % on a
+    // staircase of whole codes (step 1 code): it stays either way by that rule; the staircase's own rule
+    // (plateau share 1: a whole code value at any size) drops it
+    const m = map(20, 2.2);
+    const flat = { cols: 2, rows: 2, data: Float32Array.from([1, 1, 1, 1]) };
+    const near = (r: ReturnType<typeof analyseMura>) => r.blobs.filter((b) => Math.hypot(b.xMm - 100, b.yMm - 70) < 10);
+    const dithered = analyseMura(m, { pattern: 'gray', jpegBlockMm: 2, codeStepPct: 0.375 * 2, codeLevel: { centreY: 0.2, gain: flat, stepCodes: 0.375 } });
+    expect(near(dithered)).toHaveLength(1);
+    const bare = analyseMura(m, { pattern: 'gray', jpegBlockMm: 2, codeStepPct: 2, codeLevel: { centreY: 0.2, gain: flat, stepCodes: 1, bareStepCodes: 1 } });
+    expect(near(bare)).toHaveLength(0);
+  });
+
+  it('says the coding limits in the smallest resolvable contrast, by feature size', () => {
+    // the map's noise (0.3 %) alone would resolve a few tenths of a percent at 30 and 100 mm; an 8-bit
+    // PNG whose code value is 2 % of the level needs the whole step under 25 mm, half of it to 100 mm
+    // and nothing beyond (the rules of the test above); a JPEG 0.6 of its step at every size from
+    // 25 mm; a staircase of whole codes the whole code at every size
+    const m = map(3, 0);
+    const flat = { cols: 2, rows: 2, data: Float32Array.from([1, 1, 1, 1]) };
+    const png = analyseMura(m, { pattern: 'gray', codeStepPct: 2, codeLevel: { centreY: 0.2, gain: flat, stepCodes: 1 } }).resolvableContrastPct;
+    expect(png['3']).toBeGreaterThanOrEqual(2);
+    expect(png['10']).toBeGreaterThanOrEqual(2);
+    expect(png['30']).toBeGreaterThanOrEqual(1);
+    expect(png['100']).toBeLessThan(1);
+    const jpeg = analyseMura(m, { pattern: 'gray', jpegBlockMm: 2, codeStepPct: 0.75, codeLevel: { centreY: 0.2, gain: flat, stepCodes: 0.375 } }).resolvableContrastPct;
+    expect(jpeg['100']).toBeGreaterThanOrEqual(0.6 * 0.75);
+    const bare = analyseMura(m, { pattern: 'gray', jpegBlockMm: 2, codeStepPct: 2, codeLevel: { centreY: 0.2, gain: flat, stepCodes: 1, bareStepCodes: 1 } }).resolvableContrastPct;
+    for (const d of ['3', '10', '30', '100']) expect(bare[d]).toBeGreaterThanOrEqual(2);
+  });
+
   it('drops a half-peak region smaller than a quarter of the smallest feature searched for', () => {
     // sigma 0.4 mm on a map of 0.5 mm pixels: measured over about 1.9 mm² (the map's own smoothing).
     // Kept with the default smallest feature (3 mm: a quarter of its disc is 1.77 mm²), dropped when the
