@@ -46,6 +46,27 @@ describe('plateau share of flat JPEG blocks', () => {
     }
   });
 
+  it('counts a photo whose blocks are nearly all noisy as dithered, however its few flat blocks lie', () => {
+    // 1 % of the blocks flat, all on whole codes: the samples of those few rounded alike (noise that
+    // reaches nearly every block's AC terms dithers the codes)
+    const b = blocks(3, 12, true);
+    const sparse = Float32Array.from(b.mean, (m, k) => (k % 100 === 0 ? m : NaN));
+    const big = { ...b, cols: COLS, rows: ROWS, mean: sparse };
+    const few = plateauShare(big, ALL);
+    expect(few === null || few.share === 0).toBe(true);
+    // ...and so is a larger field with 300 such blocks, enough for a verdict: 0, not 1
+    const many = new Float32Array(200 * 150).fill(NaN);
+    for (let k = 0; k < many.length; k += 100) many[k] = 100 + ((k * 7) % 13); // whole codes 100-112
+    const r = plateauShare({ cols: 200, rows: 150, blockW: 8, blockH: 8, mean: many, dcQuant: 1 }, [
+      [0, 0],
+      [1600, 0],
+      [1600, 1200],
+      [0, 1200],
+    ]);
+    expect(r!.flatBlocks).toBe(300);
+    expect(r!.share).toBe(0);
+  });
+
   it('cannot tell within a field of a code or two, or when the DC quantiser is 8 or more', () => {
     expect(plateauShare(blocks(3, 2, true), ALL)).toBeNull();
     expect(plateauShare(blocks(8, 12, true), ALL)).toBeNull();
