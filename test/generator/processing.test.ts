@@ -22,6 +22,7 @@ describe('colour filter mosaic', () => {
   });
 
   it('lays out red, green and blue photosites as RGGB', () => {
+    // the Bayer pattern in its RGGB phase: red at even row and column, blue at odd both (common practice)
     expect([mosaicColour(0, 0), mosaicColour(1, 0), mosaicColour(0, 1), mosaicColour(1, 1), mosaicColour(2, 2), mosaicColour(3, 3)]).toEqual([0, 1, 1, 2, 0, 2]);
   });
 

@@ -22,9 +22,10 @@ const ALL: Corners = [
 ];
 
 /** Flat blocks over a field rising `codes` code values from left to right; each block's mean as its
- *  DC term carries it: the mean times 8, less the level shift, rounded to a multiple of the quantiser
- *  q, over 8 (ITU-T T.81, F.1.1.1 and A.3.1: DC = 8 x mean of the level-shifted samples). `whole`:
- *  the samples were rounded to whole codes before coding (each block inside one plateau). */
+ *  DC term carries it: 8 x the mean of the level-shifted samples (the 8 x 8 forward DCT of ITU-T T.81
+ *  with its 1/4 C(0) C(0) = 1/8 factor on a sum of 64: computed; the clause from memory), rounded to a
+ *  multiple of the quantiser q, over 8, plus the shift. `whole`: the samples were rounded to whole
+ *  codes before coding (each block inside one plateau). */
 function blocks(q: number, codes: number, whole: boolean) {
   const mean = new Float32Array(COLS * ROWS);
   for (let j = 0; j < ROWS; j++)
