@@ -4,9 +4,9 @@
 // noise of about half a code value or more, the rounding errors average out over a block, and a block's
 // mean keeps the field's level to a fraction of a code (the luma DC quantiser over 8, which is what a
 // float decoder gives back: DecodeInfo.levelStepCodes). A photo nearly free of noise (a generated one, a
-// camera's strong noise reduction, a very low ISO on a bright field) is rounded into plateaus one whole
-// code apart instead, and a smooth field's gradients become a staircase: the mura analysis then sees
-// islands and rings of up to a code value, which no averaging removes.
+// camera's strong noise reduction) is rounded into plateaus one whole code apart instead, and a smooth
+// field's gradients become a staircase: the mura analysis then sees islands and rings of up to a code
+// value, which no averaging removes.
 //
 // The test: a flat luma block (no AC term) inside a plateau has an integer mean before its DC term is
 // quantised, so its decoded mean lies within dcQuant / 16 of a whole code. With noise dithering the
