@@ -14,7 +14,7 @@
 // Corners are the generator's true ones, so that a geometry miss does not count as a mura miss.
 //
 //   npx tsc -p tsconfig.build.json && node dist/scripts/mura-accuracy.js [gray] [clean] [black] [width] [height] [--big] [--render] [--seeds=N] [--panel=WxH]
-//     [--distortion=K] [--no-noise] [--full-well=N] [--mosaic] [--denoise=K,S] [--sharpen=A,S]
+//     [--distortion=K] [--no-noise] [--full-well=N] [--mosaic] [--denoise=K,S] [--sharpen=A,S] [--varied]
 //
 // Rendered photos and their truth are kept under .cache/ and reused (--render draws them again).
 
@@ -64,6 +64,9 @@ const denoiseArg = process.argv.find((a) => a.startsWith('--denoise='));
 const denoise = denoiseArg ? (([k, sg]) => ({ strength: k, sigmaPx: sg }))(denoiseArg.slice('--denoise='.length).split(',').map(Number)) : null;
 if (denoise && !(denoise.strength >= 0 && denoise.strength <= 1 && denoise.sigmaPx > 0)) throw new Error('--denoise=K,S needs a strength 0..1 and a radius > 0 px, e.g. --denoise=0.8,1.5');
 const cloudSizes = process.argv.includes('--nominal') ? 'nominal' : 'half-peak';
+// --varied: the same scenes with other feature shapes (mura-scenes.ts varyShape: flat-topped spots,
+// clouds of 1-6 lobes, Gaussian and flat-topped bands, bands ending inside the panel)
+const varied = process.argv.includes('--varied');
 // --panel=WxH: another panel size in mm (default the generator's 597.9 x 336.3, a 27-inch 16:9 monitor)
 const panelArg = process.argv.find((a) => a.startsWith('--panel='));
 const panelMm = panelArg ? (([w, h]) => ({ width: w, height: h }))(panelArg.slice('--panel='.length).split('x').map(Number)) : null;
@@ -77,7 +80,8 @@ const dir = join(
     (fullWell !== null ? `-full-well-${fullWell}` : '') +
     (mosaic ? '-mosaic' : '') +
     (denoise ? `-denoise-${denoise.strength}-${denoise.sigmaPx}` : '') +
-    (sharpen ? `-sharpen-${sharpen.amount}-${sharpen.sigmaPx}` : ''),
+    (sharpen ? `-sharpen-${sharpen.amount}-${sharpen.sigmaPx}` : '') +
+    (varied ? '-varied' : ''),
 );
 mkdirSync(dir, { recursive: true });
 
@@ -317,7 +321,7 @@ async function main(): Promise<void> {
   let areaOkNc = 0;
   for (let k = 0; k < nGray; k++) {
     const seed = 1000 + seedOffset + k;
-    const spec = graySpec(seed, false, width, height, cloudSizes, panelMm);
+    const spec = graySpec(seed, false, width, height, cloudSizes, panelMm, varied);
     const r = await measure(`gray-${seed}`, spec);
     ms.push(r.ms);
     if (!r.mura) {
@@ -335,6 +339,7 @@ async function main(): Promise<void> {
       const cancelled = comp?.cancelled ?? false;
       const tag =
         `seed ${seed} ${t.kind} ${t.polarity} ${t.kind === 'band' ? `w ${Number(t.detail.widthMm).toFixed(0)} mm` : `d ${(2 * Math.sqrt(t.areaMm2 / Math.PI)).toFixed(0)} mm`} C ${t.contrastPct.toFixed(2)} % SEMU ${t.semu.toFixed(2)}` +
+        (varied ? ` [${t.detail.profile ?? (t.kind === 'cloud' ? `${t.detail.lobes} lobes` : t.kind === 'band' ? 'cosine' : '')}]` : '') +
         (cancelled ? ` [cancelled: local contrast ${comp!.composite.toFixed(2)} % with the features of the other sign, ${comp!.own.toFixed(2)} % alone]` : '');
       if (t.semu >= 1.5) {
         recallN++;

@@ -28,6 +28,7 @@ export function graySpec(
   height: number,
   cloudSizes: 'half-peak' | 'nominal' = 'half-peak',
   panelMm: { width: number; height: number } | null = null,
+  varied = false,
 ): PhotoSpec {
   const spec = randomScene(seed, {
     ...(panelMm ? { widthMm: panelMm.width, heightMm: panelMm.height } : {}),
@@ -44,13 +45,40 @@ export function graySpec(
   spec.camera.k1 = 0;
   spec.camera.k2 = 0;
   const rng = new Rng(seed * 7919 + 17);
+  const shapeRng = new Rng(seed * 104729 + 3);
   (spec.panel.features ?? []).forEach((f, i) => {
     // contrast log-uniform in 0.5-20 %, either polarity
     const c = Math.exp(rng.uniform(Math.log(0.5), Math.log(20)));
     f.contrastPct = rng.next() < 0.5 ? -c : c;
+    if (varied) varyShape(f, shapeRng);
     if (f.kind === 'cloud' && cloudSizes === 'half-peak') sizeCloud(spec, i, f.sizeMm);
   });
   return spec;
+}
+
+/**
+ * Other shapes for the same scene (`varied`): half the spots flat-topped discs with an edge of 0.5 mm to
+ * half their diameter; clouds of 1-6 lobes (one lobe: a round Gaussian); bands with a Gaussian, flat-topped
+ * or raised-cosine cross-profile, half of them ending inside the panel (covering 45-100 % of its length).
+ * Sizes, places and contrasts stay the scene's, so a run with and without shows what the shapes change.
+ */
+function varyShape(f: FeatureSpec, rng: Rng): void {
+  if (f.kind === 'spot') {
+    if (rng.next() < 0.5) {
+      f.profile = 'disc';
+      f.edgeMm = rng.uniform(0.5, Math.max(0.5, f.sizeMm / 2));
+    }
+  } else if (f.kind === 'cloud') {
+    f.lobes = rng.int(1, 6);
+  } else if (f.kind === 'band') {
+    f.profile = rng.pick(['cosine', 'gaussian', 'flat'] as const);
+    if (f.profile === 'flat') f.edgeMm = rng.uniform(0.5, Math.max(0.5, f.widthMm / 2));
+    if (rng.next() < 0.5) {
+      const from = rng.uniform(0, 0.3);
+      f.from = from;
+      f.to = Math.min(1, from + rng.uniform(0.45, 1));
+    }
+  }
 }
 
 export function blackSpec(seed: number, width: number, height: number, panelMm: { width: number; height: number } | null = null): PhotoSpec {

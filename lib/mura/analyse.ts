@@ -376,6 +376,9 @@ export function neighbourNoise(C: Float32Array, work: WorkRaster): number {
  * elongated ones): at 2.5 x the half-peak radius a Gaussian is down to 2 % of its peak. Radii shrink
  * together when the mask would cover more than maxMaskedFraction of the panel.
  */
+/** A finding spanning this share of the panel along an axis runs across it (featureMask). */
+const ACROSS_SPAN = 0.6;
+
 function featureMask(ctx: Ctx, opts: MuraOptions): Uint8Array {
   const { w, h } = ctx;
   const mask = new Uint8Array(w * h);
@@ -386,8 +389,7 @@ function featureMask(ctx: Ctx, opts: MuraOptions): Uint8Array {
   // A band or line across the panel touches two edges by nature and is masked like any feature.
   const half = (f: Found): number =>
     (f.lengthMm < 2 * f.widthMm ? Math.sqrt(f.areaMm2 / Math.PI) : f.widthMm / 2) / ctx.mmPerPx;
-  const spans = (f: Found): boolean =>
-    (f.bbox[2] - f.bbox[0]) >= opts.bandMinSpan * w || (f.bbox[3] - f.bbox[1]) >= opts.bandMinSpan * h;
+  const spans = (f: Found): boolean => (f.bbox[2] - f.bbox[0]) >= ACROSS_SPAN * w || (f.bbox[3] - f.bbox[1]) >= ACROSS_SPAN * h;
   // (a band running along the panel's edge, touching it along its length, is the surface missing that edge)
   const alongEdge = (f: Found): boolean =>
     f.axis === 'vertical' ? f.touch.left + f.touch.right > 0 : f.axis === 'horizontal' ? f.touch.top + f.touch.bottom > 0 : false;

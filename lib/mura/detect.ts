@@ -1249,6 +1249,9 @@ interface BandProfile {
   f: number;
   /** smoothed profile across the panel, level px (NaN where unknown) */
   S: Float64Array;
+  /** the band's weight at each position along it, level px: 1 over its half-level extent, falling to 0
+   *  beyond it as the band fades out (all 1 for a band from edge to edge) */
+  A: Float64Array;
 }
 
 /**
@@ -1278,11 +1281,13 @@ function withoutBandProfiles(ctx: Ctx, bands: BandProfile[]): Float32Array {
       const v = (1 - a) * S[i0] + a * S[i1];
       if (Number.isFinite(v)) off[t] = v;
     }
+    const wAlong = new Float64Array(along);
+    for (let a = 0; a < along; a++) wAlong[a] = b.A[Math.min(b.A.length - 1, Math.floor(a / b.f))];
     for (let t = 0; t < across; t++) {
       if (off[t] === 0) continue;
       for (let a = 0; a < along; a++) {
         const i = b.axis === 'horizontal' ? t * w + a : a * w + t;
-        if (ctx.wt[i] > 0) out[i] -= off[t];
+        if (ctx.wt[i] > 0 && wAlong[a] > 0) out[i] -= off[t] * wAlong[a];
       }
     }
   }
@@ -1483,16 +1488,34 @@ function findBands(ctx: Ctx, lv: Level, floor: number): BandProfile[] {
         if (!(typical >= 0.5 * sign * (S[pk] - pedestal) * (2 / 3))) continue;
         const even = means.filter((v) => v >= 0.4 * typical && v <= 2.5 * typical).length;
         if (even < 4) continue;
-        // and smooth along it: the band's mean at each position along it scatters (robustly) by less
-        // than half of its level - a row of separate zones (hot spots) alternates between them and the gaps
-        const alongMeans: number[] = [];
-        const alongNear: number[] = [];
+        // the band's level at each position along it, against the strips beside it (NaN without data)
+        const gAlong = new Float64Array(along).fill(NaN);
+        const nearAlong = new Float64Array(along).fill(NaN);
+        const plainAlong = new Float64Array(along).fill(NaN);
         for (let a = 0; a < along; a++) {
           const m = stretchMean(a, a + 1, c0, c1);
           if (m === null) continue;
           const b = beside(a, a + 1);
-          alongMeans.push(sign * (m - b.mean));
-          alongNear.push(sign * (m - b.near));
+          gAlong[a] = sign * (m - b.mean);
+          nearAlong[a] = sign * (m - b.near);
+          plainAlong[a] = m;
+        }
+        // where along the panel the band is: one that ends inside the panel (in one of the five stretches)
+        // is measured over its own extent, and its profile taken out only there; taken as whole it would
+        // leave a band of the other sign where it is not. (Not on black fields: there a stretch of light
+        // along an edge is glow, which the round search measures as such.)
+        const [e0, e1] = (ctx.black ? null : bandExtent(gAlong, sign * (S[pk] - pedestal), c1 - c0 + 1)) ?? [0, along - 1];
+        // one that ends inside the panel is a band only when long against its width (else a cloud's rows)
+        if ((e0 > 0 || e1 < along - 1) && e1 - e0 + 1 < 3 * (c1 - c0 + 1)) continue;
+        if (process.env.MURA_DBG) console.log(`band ${axis} at ${c0}-${c1} extent ${e0}-${e1} of ${along} sign ${sign} peak ${S[pk].toFixed(2)} pedestal ${pedestal.toFixed(2)}`);
+        // and smooth along it: the band's mean at each position along it scatters (robustly) by less
+        // than half of its level - a row of separate zones (hot spots) alternates between them and the gaps
+        const alongMeans: number[] = [];
+        const alongNear: number[] = [];
+        for (let a = e0; a <= e1; a++) {
+          if (!Number.isFinite(gAlong[a])) continue;
+          alongMeans.push(gAlong[a]);
+          alongNear.push(nearAlong[a]);
         }
         if (!(robustSigma(alongMeans) < 0.5 * typical)) continue;
         // on a pedestal, or between strips that differ from the background, the band's mean contrast is
@@ -1510,17 +1533,14 @@ function findBands(ctx: Ctx, lv: Level, floor: number): BandProfile[] {
           // against the background: the median along it of its mean across (a feature crossing it -
           // another band, a cloud - covers a part of its length and moves the plain mean)
           const plain: number[] = [];
-          for (let a = 0; a < along; a++) {
-            const m = stretchMean(a, a + 1, c0, c1);
-            if (m !== null) plain.push(m);
-          }
+          for (let a = e0; a <= e1; a++) if (Number.isFinite(plainAlong[a])) plain.push(plainAlong[a]);
           local = medianOfFirst(Float64Array.from(plain), plain.length);
         }
         for (let c = c0; c <= c1; c++) taken[c] = 1;
-        const f = bandFound(ctx, lv, axis, c0, c1, sign, S[pk], pedestal, local);
+        const f = bandFound(ctx, lv, axis, c0, c1, e0, e1, sign, S[pk], pedestal, local);
         if (f && Math.abs(f.contrastPct) >= floor && f.zNoise >= o.thresholdSigma && !isDuplicate(ctx, f)) {
           register(ctx, f);
-          bands.push({ axis, c0, c1, f: lv.f, S: S.slice() });
+          bands.push({ axis, c0, c1, f: lv.f, S: S.slice(), A: alongWeight(gAlong, e0, e1, typical, c1 - c0 + 1) });
           const margin = Math.ceil((c1 - c0 + 1) / 2);
           for (let c = Math.max(0, c0 - margin); c <= Math.min(across - 1, c1 + margin); c++) blocked[c] = 1;
         }
@@ -1585,13 +1605,140 @@ function stretchMeanOn(
   return cnt > 0 ? sum / cnt : null;
 }
 
-/** The band between profile positions c0..c1 (level px) across the panel, measured at working resolution. */
+/**
+ * Where along its length a band is (level px): from the first to the last stretch where its level
+ * against the strips beside it (g, NaN without data), smoothed along, is at least half its level - first
+ * the profile's peak `peak`, then the median over those stretches. A band that another feature hides in
+ * its middle is still one band from end to end; one that ends inside the panel ends where it falls under
+ * half. The smoothing is as long as the noise of g needs for its mean to lie well within half the level
+ * (at least twice the band's width `widthPx`, at most a fifth of the length); stretches shorter than half
+ * of it are left out. Null when none is left or the extent is under 0.4 of the length: not a band the row
+ * medians describe.
+ */
+export function bandExtent(g: Float64Array, peak: number, widthPx: number): [number, number] | null {
+  const along = g.length;
+  if (!(peak > 0) || along < 5) return null;
+  const diffs: number[] = [];
+  for (let a = 1; a < along; a++) if (Number.isFinite(g[a]) && Number.isFinite(g[a - 1])) diffs.push(g[a] - g[a - 1]);
+  const sigma = diffs.length >= 5 ? robustSigma(diffs) / Math.SQRT2 : 0;
+  const want = Math.ceil(((6 * sigma) / peak) ** 2);
+  const n = Math.min(Math.max(want, 2 * Math.ceil(widthPx) + 1, 3), Math.max(3, Math.floor(along / 5)));
+  const gs = boxAlong(g, n >> 1);
+  const minRun = Math.max(2, n >> 1);
+  let level = peak;
+  let hull: [number, number] | null = null;
+  for (let pass = 0; pass < 2; pass++) {
+    const runs = runsAbove(gs, 0.5 * level).filter(([a, b]) => b - a + 1 >= minRun);
+    if (runs.length === 0) return null;
+    hull = [runs[0][0], runs[runs.length - 1][1]];
+    const inside: number[] = [];
+    for (const [a0, a1] of runs) for (let a = a0; a <= a1; a++) if (Number.isFinite(g[a])) inside.push(g[a]);
+    const m = inside.length ? medianOfFirst(Float64Array.from(inside), inside.length) : NaN;
+    if (!(m > 0)) return null;
+    level = m;
+  }
+  if (hull === null || hull[1] - hull[0] + 1 < 0.4 * along) return null;
+  return hull;
+}
+
+/** Mean of the finite values of g over a +-h window at each position (NaN where none). */
+function boxAlong(g: Float64Array, h: number): Float64Array {
+  const out = new Float64Array(g.length).fill(NaN);
+  for (let a = 0; a < g.length; a++) {
+    let sum = 0;
+    let cnt = 0;
+    for (let k = Math.max(0, a - h); k <= Math.min(g.length - 1, a + h); k++) {
+      if (Number.isFinite(g[k])) {
+        sum += g[k];
+        cnt++;
+      }
+    }
+    if (cnt > 0) out[a] = sum / cnt;
+  }
+  return out;
+}
+
+/** The runs of positions with gs >= level, in order (a NaN neither ends nor extends a run). */
+function runsAbove(gs: Float64Array, level: number): [number, number][] {
+  const runs: [number, number][] = [];
+  let start = -1;
+  let last = -1;
+  for (let a = 0; a <= gs.length; a++) {
+    const v = a < gs.length ? gs[a] : -Infinity;
+    if (Number.isNaN(v)) continue;
+    if (v >= level) {
+      if (start < 0) start = a;
+      last = a;
+    } else if (start >= 0) {
+      runs.push([start, last]);
+      start = -1;
+    }
+  }
+  return runs;
+}
+
+/**
+ * A band's weight along its length (BandProfile.A): where it fades out, its level g (lightly smoothed,
+ * over a third of its width) as a share of `level`, kept rising from each end of its extent e0..e1
+ * inwards until it reaches 1 (a running maximum) and falling outwards until it reaches 0 (a running
+ * minimum); 1 over the rest of the extent, 0 beyond. Positions without data take their neighbour's.
+ */
+export function alongWeight(g: Float64Array, e0: number, e1: number, level: number, widthPx: number): Float64Array {
+  const A = new Float64Array(g.length);
+  for (let a = e0; a <= e1; a++) A[a] = 1;
+  const gs = boxAlong(g, Math.max(1, Math.round(widthPx / 3)));
+  const mid = (e0 + e1) >> 1;
+  for (const [end, outward] of [
+    [e0, -1],
+    [e1, 1],
+  ] as const) {
+    // inwards: the end's own ramp, up to the middle of the extent; at the panel's edge only when the
+    // band is under half there (it begins inside, closer to the edge than the extent's smoothing reaches):
+    // a band from edge to edge is taken out whole, as the surface near an edge is the least certain
+    const firstShare = (): number => {
+      // the raw level over the first sixth of the band's width with data
+      const k = Math.max(2, Math.round(widthPx / 6));
+      let sum = 0;
+      let cnt = 0;
+      for (let a = end; (outward < 0 ? a <= mid : a >= mid) && cnt < k; a -= outward) {
+        if (Number.isFinite(g[a])) {
+          sum += g[a];
+          cnt++;
+        }
+      }
+      return cnt > 0 ? sum / cnt / level : NaN;
+    };
+    const atEdge = end === 0 || end === g.length - 1;
+    if (atEdge && !(firstShare() < 0.5)) continue;
+    let run = 0;
+    for (let a = end; outward < 0 ? a <= mid : a >= mid; a -= outward) {
+      const v = gs[a] / level;
+      if (Number.isFinite(v)) run = Math.max(run, v);
+      if (run >= 1) break;
+      A[a] = Math.max(0, run);
+    }
+    // outwards: the tail
+    let fall = Math.min(1, A[end]);
+    for (let a = end + outward; a >= 0 && a < g.length; a += outward) {
+      const v = gs[a] / level;
+      if (Number.isFinite(v)) fall = Math.min(fall, v);
+      if (!(fall > 0)) break;
+      A[a] = fall;
+    }
+  }
+  return A;
+}
+
+/** The band between profile positions c0..c1 (level px) across the panel and e0..e1 along it, measured
+ *  at working resolution. */
 function bandFound(
   ctx: Ctx,
   lv: Level,
   axis: Axis,
   c0: number,
   c1: number,
+  e0: number,
+  e1: number,
   sign: 1 | -1,
   peak: number,
   pedestal: number,
@@ -1602,14 +1749,18 @@ function bandFound(
   const px: number[] = [];
   const lo = c0 * f;
   const hi = Math.min(axis === 'horizontal' ? H : W, (c1 + 1) * f);
+  const alongEnd = axis === 'horizontal' ? W : H;
+  const from = e0 * f;
+  const to = e1 >= (axis === 'horizontal' ? lv.w : lv.h) - 1 ? alongEnd : Math.min(alongEnd, (e1 + 1) * f);
   if (axis === 'horizontal') {
-    for (let y = lo; y < hi; y++) for (let x = 0; x < W; x++) if (ctx.wt[y * W + x] > 0) px.push(y * W + x);
+    for (let y = lo; y < hi; y++) for (let x = from; x < to; x++) if (ctx.wt[y * W + x] > 0) px.push(y * W + x);
   } else {
-    for (let y = 0; y < H; y++) for (let x = lo; x < hi; x++) if (ctx.wt[y * W + x] > 0) px.push(y * W + x);
+    for (let y = from; y < to; y++) for (let x = lo; x < hi; x++) if (ctx.wt[y * W + x] > 0) px.push(y * W + x);
   }
   if (px.length === 0) return null;
   const mid = ((c0 + c1 + 1) / 2) * f - 0.5;
-  const found = measureRegion(ctx, Int32Array.from(px), pedestal, peak, axis === 'horizontal' ? [W / 2, mid] : [mid, H / 2], sign, 'profile', axis);
+  const midAlong = e0 === 0 && to === alongEnd ? alongEnd / 2 : (from + to) / 2 - 0.5;
+  const found = measureRegion(ctx, Int32Array.from(px), pedestal, peak, axis === 'horizontal' ? [midAlong, mid] : [mid, midAlong], sign, 'profile', axis);
   if (!found) return null;
   // the mean contrast from the profile along the band (see findBands), not the plain mean over its pixels
   const c = localContrast / (1 + pedestal / 100);

@@ -105,7 +105,7 @@ export interface MuraOptions {
   cloudMinMm: number;
   /** elongated features narrower than this (mm, half-peak width) are lines (default 4) */
   lineMaxWidthMm: number;
-  /** a band must span at least this fraction of the panel along its axis (default 0.6) */
+  /** a band must span at least this fraction of the panel along its axis (default 0.4) */
   bandMinSpan: number;
   /** at least this many spots on a common lattice make a hot-spot array (default 6) */
   hotspotMinCount: number;
@@ -214,7 +214,7 @@ export function resolveMuraOptions(input: MuraOptionsInput): MuraOptions {
     background: bg,
     cloudMinMm: input.cloudMinMm ?? 45,
     lineMaxWidthMm: input.lineMaxWidthMm ?? 4,
-    bandMinSpan: input.bandMinSpan ?? 0.6,
+    bandMinSpan: input.bandMinSpan ?? 0.4,
     hotspotMinCount: input.hotspotMinCount ?? 6,
     maxWorkPixels: input.maxWorkPixels ?? 4e6,
     jpegBlockMm: input.jpegBlockMm ?? null,
