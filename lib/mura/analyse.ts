@@ -1060,6 +1060,7 @@ function findingOf(ctx: Ctx, f: Found, opts: MuraOptions): Finding {
       ...(gain !== 1 ? { seenPeakPct: round(f.peakContrastPct, 3), carriedToEdgeMm: round(opts.edgeBorderMm, 2) } : {}),
       significanceSigma: round(Math.min(f.zNoise, 1e6), 1),
       ...(f.pedestalPct !== 0 ? { surroundPct: round(f.pedestalPct, 3) } : {}),
+      ...(f.belowResolution !== null ? { belowResolution: f.belowResolution } : {}),
     },
     members: [f],
   };

@@ -90,6 +90,10 @@ export interface Found {
   touch: { top: number; bottom: number; left: number; right: number };
   /** mean contrast (against the surround) of those pixels, per edge (0 where none) */
   edgeContrast: { top: number; bottom: number; left: number; right: number };
+  /** narrower ('width') or, across both axes, smaller ('size') than the analysed map resolves: its
+   *  seen extent is mostly the map's own blur, so its width (size) is an upper bound and its contrast
+   *  and SEMU lower bounds (contrast times area is what the map keeps); null when resolved */
+  belowResolution: 'width' | 'size' | null;
 }
 
 /** Measure a region: mean contrast and centroid on the unsmoothed contrast map, shape from moments. */
@@ -209,6 +213,7 @@ export function measureRegion(
     zNoise,
     zFit,
     touch,
+    belowResolution: null,
   };
 }
 

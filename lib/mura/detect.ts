@@ -1207,6 +1207,8 @@ function toFound(ctx: Ctx, c: Candidate): Found | null {
   const b2 = c.minor * c.minor;
   const ca = Math.sqrt(Math.max(a2 - BLUR_FWHM2, 0.25 * a2) / a2);
   const cb = Math.sqrt(Math.max(b2 - BLUR_FWHM2, 0.25 * b2) / b2);
+  // under two working px across (the blur taken out), the extent is mostly the map's own blur
+  if (c.minor * cb * f < RESOLVED_PX) found.belowResolution = c.major * ca * f < RESOLVED_PX ? 'size' : 'width';
   const k = ca * cb;
   found.areaMm2 *= k;
   found.contrastPct /= Math.sqrt(k);
@@ -1758,21 +1760,124 @@ function bandFound(
     for (let y = from; y < to; y++) for (let x = lo; x < hi; x++) if (ctx.wt[y * W + x] > 0) px.push(y * W + x);
   }
   if (px.length === 0) return null;
-  const mid = ((c0 + c1 + 1) / 2) * f - 0.5;
+  // a line (a few level px wide) measured across again at the working raster's resolution: the level's
+  // pixels and smoothing would make it about 2.5 of them wide and correspondingly faint
+  const fine = f > 1 && (c1 - c0 + 1) * f <= NARROW_REMEASURE_PX ? acrossAtWorkScale(ctx, axis, lo, hi, from, to, sign) : null;
+  if (fine) {
+    px.length = 0;
+    if (axis === 'horizontal') {
+      for (let y = fine.r0; y < fine.r1; y++) for (let x = from; x < to; x++) if (ctx.wt[y * W + x] > 0) px.push(y * W + x);
+    } else {
+      for (let y = from; y < to; y++) for (let x = fine.r0; x < fine.r1; x++) if (ctx.wt[y * W + x] > 0) px.push(y * W + x);
+    }
+    if (px.length === 0) return null;
+  }
+  const mid = fine ? (fine.r0 + fine.r1) / 2 - 0.5 : ((c0 + c1 + 1) / 2) * f - 0.5;
   const midAlong = e0 === 0 && to === alongEnd ? alongEnd / 2 : (from + to) / 2 - 0.5;
-  const found = measureRegion(ctx, Int32Array.from(px), pedestal, peak, axis === 'horizontal' ? [midAlong, mid] : [mid, midAlong], sign, 'profile', axis);
+  // a base level of the rows around the line counts as its surround only where the band search found
+  // one (a pedestal); else the background is the reference, as for any other band
+  const base = fine && pedestal !== 0 ? fine.base : pedestal;
+  const found = measureRegion(ctx, Int32Array.from(px), base, fine ? fine.peak : peak, axis === 'horizontal' ? [midAlong, mid] : [mid, midAlong], sign, 'profile', axis);
   if (!found) return null;
   // the mean contrast from the profile along the band (see findBands), not the plain mean over its pixels
-  const c = localContrast / (1 + pedestal / 100);
+  const c = (fine ? fine.local + fine.base - base : localContrast) / (1 + base / 100);
   const k = Math.abs(c) / Math.max(Math.abs(found.contrastPct), 1e-9);
   found.contrastPct = c;
   found.zNoise *= k;
   found.zFit *= k;
-  // the profile's blur (box of one level px and the 1-px kernel) out of the width, in quadrature
-  const wpx = c1 - c0 + 1;
-  const cb = Math.sqrt(Math.max(wpx * wpx - BLUR_FWHM2, 0.25 * wpx * wpx)) / wpx;
+  // the profile's blur out of the width, in quadrature: on a level a box of one level px and the 1-px
+  // kernel; at the working raster's scale its own pixel and the camera's, about one working px each
+  const wpx = fine ? fine.r1 - fine.r0 : c1 - c0 + 1;
+  const blur2 = fine ? WORK_BLUR_FWHM2 : BLUR_FWHM2;
+  const cb = Math.sqrt(Math.max(wpx * wpx - blur2, 0.25 * wpx * wpx)) / wpx;
+  if (wpx * cb * (fine ? 1 : f) < RESOLVED_PX) found.belowResolution = 'width';
   found.areaMm2 *= cb;
   found.widthMm *= cb;
   found.contrastPct /= Math.sqrt(cb);
   return found;
+}
+
+/** Bands found on a coarser level at most this many working px wide are measured across again at the
+ *  working raster's scale (acrossAtWorkScale). */
+const NARROW_REMEASURE_PX = 8;
+/** FWHM² (working px²) of the working raster's own blur: its pixel's box and the camera pixel's as
+ *  resampled into it, about one working px each (variance 1/12 each) */
+const WORK_BLUR_FWHM2 = 8 * Math.LN2 * (2 / 12);
+/** the analysed map resolves a feature from this many of its pixels across (README "Taking the photos") */
+const RESOLVED_PX = 2;
+
+/**
+ * A narrow band's cross-profile at the working raster's scale: the mean of C along its extent (from..to)
+ * at each row (column) from two of its widths before lo to two after hi; its extreme within lo-1..hi, the
+ * level of the outer rows (beyond one width on either side) as its base, and the rows around the extreme
+ * at least halfway from the base to it. `local`: the median along the band of its mean over those rows.
+ */
+function acrossAtWorkScale(
+  ctx: Ctx,
+  axis: Axis,
+  lo: number,
+  hi: number,
+  from: number,
+  to: number,
+  sign: 1 | -1,
+): { r0: number; r1: number; base: number; peak: number; local: number } | null {
+  const { w: W, h: H, C, wt } = ctx;
+  const across = axis === 'horizontal' ? H : W;
+  const span = Math.max(1, hi - lo);
+  const t0 = Math.max(0, lo - 2 * span);
+  const t1 = Math.min(across, hi + 2 * span);
+  const idx = (t: number, a: number): number => (axis === 'horizontal' ? t * W + a : a * W + t);
+  const P = new Float64Array(t1 - t0).fill(NaN);
+  for (let t = t0; t < t1; t++) {
+    let sum = 0;
+    let cnt = 0;
+    for (let a = from; a < to; a++) {
+      const i = idx(t, a);
+      if (wt[i] > 0) {
+        sum += C[i];
+        cnt++;
+      }
+    }
+    if (cnt > 0) P[t - t0] = sum / cnt;
+  }
+  let tp = -1;
+  for (let t = Math.max(t0, lo - 1); t < Math.min(t1, hi + 1); t++) {
+    const v = P[t - t0];
+    if (Number.isFinite(v) && (tp < 0 || sign * v > sign * P[tp - t0])) tp = t;
+  }
+  if (tp < 0) return null;
+  let bsum = 0;
+  let bcnt = 0;
+  for (let t = t0; t < t1; t++) {
+    if (t >= lo - span && t < hi + span) continue;
+    const v = P[t - t0];
+    if (Number.isFinite(v)) {
+      bsum += v;
+      bcnt++;
+    }
+  }
+  if (bcnt === 0) return null;
+  const base = bsum / bcnt;
+  const peak = P[tp - t0];
+  if (!(sign * (peak - base) > 0)) return null;
+  const half = base + 0.5 * (peak - base);
+  let r0 = tp;
+  let r1 = tp + 1;
+  while (r0 - 1 >= t0 && sign * (P[r0 - 1 - t0] - half) >= 0) r0--;
+  while (r1 < t1 && sign * (P[r1 - t0] - half) >= 0) r1++;
+  const means: number[] = [];
+  for (let a = from; a < to; a++) {
+    let sum = 0;
+    let cnt = 0;
+    for (let t = r0; t < r1; t++) {
+      const i = idx(t, a);
+      if (wt[i] > 0) {
+        sum += C[i];
+        cnt++;
+      }
+    }
+    if (cnt > 0) means.push(sum / cnt - base);
+  }
+  if (means.length === 0) return null;
+  return { r0, r1, base, peak, local: medianOfFirst(Float64Array.from(means), means.length) };
 }

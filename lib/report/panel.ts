@@ -711,6 +711,8 @@ const DETAIL_WORDS: Record<string, (v: string) => string> = {
   seenPeakPct: (v) => `peak ${v} % where the map begins`,
   carriedToEdgeMm: (v) => `carried across the ${v} mm strip left out along the edges`,
   surroundPct: (v) => `on a surround of ${v} %`,
+  belowResolution: (v) =>
+    `${v === 'size' ? 'smaller' : 'narrower'} than the photo resolves: its ${v === 'size' ? 'area' : 'width'} is at most the figure given, its contrast and SEMU at least`,
 };
 
 function blobKind(b: Blob): string {
