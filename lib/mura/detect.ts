@@ -1542,7 +1542,7 @@ function findBands(ctx: Ctx, lv: Level, floor: number): BandProfile[] {
         const f = bandFound(ctx, lv, axis, c0, c1, e0, e1, sign, S[pk], pedestal, local);
         if (f && Math.abs(f.contrastPct) >= floor && f.zNoise >= o.thresholdSigma && !isDuplicate(ctx, f)) {
           register(ctx, f);
-          bands.push({ axis, c0, c1, f: lv.f, S: S.slice(), A: alongWeight(gAlong, e0, e1, typical, c1 - c0 + 1) });
+          bands.push({ axis, c0, c1, f: lv.f, S: S.slice(), A: alongWeight(gAlong, e0, e1, medianOfFirst(Float64Array.from(alongMeans), alongMeans.length), c1 - c0 + 1) });
           const margin = Math.ceil((c1 - c0 + 1) / 2);
           for (let c = Math.max(0, c0 - margin); c <= Math.min(across - 1, c1 + margin); c++) blocked[c] = 1;
         }
