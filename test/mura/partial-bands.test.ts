@@ -116,6 +116,17 @@ describe('bands that end inside the panel, through the whole pipeline', () => {
     expect(found.filter((b) => b.polarity === 'bright' && b.semu >= 1)).toEqual([]);
   }, 60_000);
 
+  it('a band over 60 % of the width: taken out following its ends, no spots of the other sign there', async () => {
+    // second study set's scene 1146 with varied shapes: a bright band of Gaussian cross-profile, 24 mm
+    // wide at y 107 mm, from x 54 to 425 mm (17.5 % peak); its ends ramp over 48 mm
+    const { truth, blobs } = await analyse(1146);
+    const band = truth.features.find((f) => f.kind === 'band' && f.visible)!;
+    const found = blobs.filter((b) => b.semu >= 1 && Math.abs(b.yMm - band.yMm) < 25);
+    expect(found.map((b) => `${b.kind} ${b.polarity}`)).toEqual(['band bright']);
+    expect(Math.abs(found[0].areaMm2 / band.areaMm2 - 1)).toBeLessThan(0.3);
+    expect(Math.abs(found[0].contrastPct / band.contrastPct - 1)).toBeLessThan(0.25);
+  }, 60_000);
+
   it("a band over half the panel's width is a band, not a cloud", async () => {
     // study scene 1034 with varied shapes: a bright band of Gaussian cross-profile, 32 mm wide at
     // y 218 mm, from x 32 to 326 mm (49 % of the width), and a dark disc spot elsewhere
