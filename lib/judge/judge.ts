@@ -325,6 +325,29 @@ function judgePhoto(
         },
         out,
       );
+      // A finding narrower (or smaller) than the photo resolves has a SEMU that is a lower bound: within
+      // the limit as measured, it may still be beyond it (common practice: a lower bound under a maximum
+      // does not show compliance). Marked borderline, so that it is confirmed before the panel is passed.
+      if (!ro('maxSemu')) {
+        for (const b of semuBlobs) {
+          if (b.detail.belowResolution === undefined || !(b.semu <= section.maxSemu)) continue;
+          out.push({
+            pattern,
+            figure: 'maxSemu',
+            value: b.semu,
+            limit: section.maxSemu,
+            margin: section.maxSemu - b.semu,
+            file,
+            unit: UNIT_TEXT.semu,
+            reportOnly: false,
+            severity: 'note',
+            borderline: true,
+            text:
+              `${label}: blob ${b.id} (${b.kind}) is ${b.detail.belowResolution === 'size' ? 'smaller' : 'narrower'} than the photo resolves, ` +
+              `so its SEMU ${fixed(b.semu, DECIMALS.semu)} is a lower bound on the ${trimNumber(section.maxSemu)} maximum: confirm it with a closer photo`,
+          });
+        }
+      }
     }
     if (section.blobs) {
       const from = section.blobs.countFromSemu;

@@ -417,6 +417,28 @@ describe('judgePanel', () => {
   });
 });
 
+describe('findings narrower than the photo resolves', () => {
+  // Their SEMU is a lower bound (the map spreads them over its own resolution): under a maximum it does
+  // not show that the panel is within it (common practice), so the pass is marked borderline.
+  const c = parseCriteria('name: t\npatterns:\n  white:\n    maxSemu: 1\n', 't');
+  it('a line under the limit as measured: pass, with a borderline note saying why', () => {
+    const j = judgePanel([photo('white', { blobs: [{ kind: 'line', semu: 0.45, detail: { belowResolution: 'width' } }] })], c);
+    expect(j.verdict).toBe('pass');
+    const note = j.reasonDetails.find((r) => r.borderline)!;
+    expect(note.text).toBe('white: blob 1 (line) is narrower than the photo resolves, so its SEMU 0.45 is a lower bound on the 1 maximum: confirm it with a closer photo');
+    expect(j.reasons).toContain(note.text);
+  });
+  it('over the limit as measured: a fail, and no such note (a lower bound over a maximum is beyond it)', () => {
+    const j = judgePanel([photo('white', { blobs: [{ kind: 'spot', semu: 1.6, detail: { belowResolution: 'size' } }] })], c);
+    expect(j.verdict).toBe('fail');
+    expect(j.reasonDetails.filter((r) => r.borderline)).toEqual([]);
+  });
+  it('a resolved finding of the same SEMU gets no note', () => {
+    const j = judgePanel([photo('white', { blobs: [{ kind: 'line', semu: 0.45 }] })], c);
+    expect(j.reasonDetails.filter((r) => r.borderline)).toEqual([]);
+  });
+});
+
 describe('worstMargin', () => {
   it('picks the judged figure nearest its limit, relative to the limit, skipping report-only figures', () => {
     const j = judgePanel([photo('white', { rel: withLow(0.77), dv: [0, 0, 0, 0, 0, 0, 0, 0, 0.03], blobs: [{ semu: 0.9, kind: 'cloud' }] })], criteria);
