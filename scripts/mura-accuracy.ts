@@ -67,6 +67,9 @@ const cloudSizes = process.argv.includes('--nominal') ? 'nominal' : 'half-peak';
 // --varied: the same scenes with other feature shapes (mura-scenes.ts varyShape: flat-topped spots,
 // clouds of 1-6 lobes, Gaussian and flat-topped bands, bands ending inside the panel)
 const varied = process.argv.includes('--varied');
+// --lines: other scenes, drawn from spots, clouds, bands and lines 0.3-3 mm wide (Gaussian cross-profile);
+// lines narrower than two pixels of the analysed map are tallied apart (their figures are bounds)
+const withLines = process.argv.includes('--lines');
 // --panel=WxH: another panel size in mm (default the generator's 597.9 x 336.3, a 27-inch 16:9 monitor)
 const panelArg = process.argv.find((a) => a.startsWith('--panel='));
 const panelMm = panelArg ? (([w, h]) => ({ width: w, height: h }))(panelArg.slice('--panel='.length).split('x').map(Number)) : null;
@@ -81,7 +84,8 @@ const dir = join(
     (mosaic ? '-mosaic' : '') +
     (denoise ? `-denoise-${denoise.strength}-${denoise.sigmaPx}` : '') +
     (sharpen ? `-sharpen-${sharpen.amount}-${sharpen.sigmaPx}` : '') +
-    (varied ? '-varied' : ''),
+    (varied ? '-varied' : '') +
+    (withLines ? '-lines' : ''),
 );
 mkdirSync(dir, { recursive: true });
 
@@ -304,6 +308,11 @@ async function main(): Promise<void> {
   let isoContrastOk = 0;
   let isoAreaOk = 0;
   const cErr: number[] = [];
+  // lines narrower than the map resolves (found ones): marked so, and their figures no more than the truth's
+  let thinN = 0;
+  let thinMarked = 0;
+  let thinBounds = 0;
+  const thinRatio: number[] = [];
   const aErr: number[] = [];
   let falseSemu1 = 0;
   const unmatched: string[] = [];
@@ -321,7 +330,7 @@ async function main(): Promise<void> {
   let areaOkNc = 0;
   for (let k = 0; k < nGray; k++) {
     const seed = 1000 + seedOffset + k;
-    const spec = graySpec(seed, false, width, height, cloudSizes, panelMm, varied);
+    const spec = graySpec(seed, false, width, height, cloudSizes, panelMm, varied, withLines);
     const r = await measure(`gray-${seed}`, spec);
     ms.push(r.ms);
     if (!r.mura) {
@@ -338,7 +347,7 @@ async function main(): Promise<void> {
       const comp = compositeOf(panel, t);
       const cancelled = comp?.cancelled ?? false;
       const tag =
-        `seed ${seed} ${t.kind} ${t.polarity} ${t.kind === 'band' ? `w ${Number(t.detail.widthMm).toFixed(0)} mm` : `d ${(2 * Math.sqrt(t.areaMm2 / Math.PI)).toFixed(0)} mm`} C ${t.contrastPct.toFixed(2)} % SEMU ${t.semu.toFixed(2)}` +
+        `seed ${seed} ${t.kind} ${t.polarity} ${t.kind === 'band' || t.kind === 'line' ? `w ${Number(t.detail.widthMm).toFixed(t.kind === 'line' ? 1 : 0)} mm` : `d ${(2 * Math.sqrt(t.areaMm2 / Math.PI)).toFixed(0)} mm`} C ${t.contrastPct.toFixed(2)} % SEMU ${t.semu.toFixed(2)}` +
         (varied ? ` [${t.detail.profile ?? (t.kind === 'cloud' ? `${t.detail.lobes} lobes` : t.kind === 'band' ? 'cosine' : '')}]` : '') +
         (cancelled ? ` [cancelled: local contrast ${comp!.composite.toFixed(2)} % with the features of the other sign, ${comp!.own.toFixed(2)} % alone]` : '');
       if (t.semu >= 1.5) {
@@ -355,7 +364,15 @@ async function main(): Promise<void> {
         kindN++;
         if (b.kind === t.kind) kindOk++;
         else wrongKinds.push(`${tag} -> ${b.kind} (${JSON.stringify(b.detail)})`);
-        if (t.semu >= 2) {
+        const unresolved = t.kind === 'line' && Number(t.detail.widthMm) < (r.mura.resolvedFromMm ?? 0);
+        if (unresolved) {
+          // narrower than the analysed map resolves: its figures are bounds (Blob detail.belowResolution)
+          thinN++;
+          if (b.detail.belowResolution !== undefined) thinMarked++;
+          if (Math.abs(b.contrastPct) <= Math.abs(t.contrastPct) && b.semu <= t.semu) thinBounds++;
+          else badAcc.push(`${tag}${standsAlone(t, r.truth) ? '' : ' (overlaps another feature)'}: narrower than resolved, measured C ${b.contrastPct.toFixed(2)}, SEMU ${b.semu.toFixed(2)} (beyond the truth's)`);
+          thinRatio.push(b.contrastPct / t.contrastPct);
+        } else if (t.semu >= 2) {
           accN++;
           const ce = (b.contrastPct - t.contrastPct) / Math.abs(t.contrastPct);
           const ae = (b.areaMm2 - t.areaMm2) / t.areaMm2;
@@ -391,6 +408,12 @@ async function main(): Promise<void> {
     `  without the ${cancelledN} feature(s) of SEMU >= 1.5 another feature of the other sign cancels (local contrast with those features under half their own): ` +
       `recall ${pct(recallHitNc, recallNc)}, contrast ${pct(contrastOkNc, accNc)}, area ${pct(areaOkNc, accNc)} (SEMU >= 2)`,
   );
+  if (withLines) {
+    log(
+      `  lines narrower than the map resolves, found: ${thinN}; marked belowResolution ${pct(thinMarked, thinN)}; contrast and SEMU no more than the truth's ${pct(thinBounds, thinN)}; ` +
+        `contrast found / true median ${quant(thinRatio, 0.5).toFixed(2)}, range ${quant(thinRatio, 0).toFixed(2)} .. ${quant(thinRatio, 0.999).toFixed(2)} (not in the contrast and area tallies above)`,
+    );
+  }
   log(`  unmatched findings of SEMU >= 1: ${falseSemu1} (${(falseSemu1 / Math.max(1, nGray)).toFixed(2)} per photo)`);
   for (const u of unmatched) log(`  unmatched: ${u}`);
   for (const m of misses) log(`  missed: ${m}`);

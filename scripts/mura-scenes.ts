@@ -17,7 +17,8 @@ function sizeCloud(spec: PhotoSpec, index: number, diameter: number): void {
 }
 
 /**
- * A gray field with 1-4 spots, clouds and bands (none when clean). Cloud sizes: 'half-peak' scales each
+ * A gray field with 1-4 spots, clouds and bands (none when clean; with `lines`, lines 0.3-3 mm wide too,
+ * another set of scenes). Cloud sizes: 'half-peak' scales each
  * cloud's envelope so that its half-peak region is the drawn size across (the convention of spots and
  * bands); 'nominal' keeps the generator's envelope size, whose half-peak region is about 0.5-0.65 of it.
  */
@@ -29,6 +30,7 @@ export function graySpec(
   cloudSizes: 'half-peak' | 'nominal' = 'half-peak',
   panelMm: { width: number; height: number } | null = null,
   varied = false,
+  lines = false,
 ): PhotoSpec {
   const spec = randomScene(seed, {
     ...(panelMm ? { widthMm: panelMm.width, heightMm: panelMm.height } : {}),
@@ -37,8 +39,8 @@ export function graySpec(
     width,
     height,
     features: clean ? [0, 0] : [1, 4],
-    featureKinds: ['spot', 'cloud', 'band'],
-    sizeMm: { spot: [5, 40], cloud: [50, 200], band: [5, 60] },
+    featureKinds: lines ? ['spot', 'cloud', 'band', 'line'] : ['spot', 'cloud', 'band'],
+    sizeMm: { spot: [5, 40], cloud: [50, 200], band: [5, 60], line: [0.3, 3] },
   });
   // the lens's own extra radial term is left out: the falloff correction is the cos⁴ model from the
   // focal length (the falloff study covers measured profiles), so what remains is the panel's own

@@ -94,6 +94,9 @@ export interface Found {
    *  seen extent is mostly the map's own blur, so its width (size) is an upper bound and its contrast
    *  and SEMU lower bounds (contrast times area is what the map keeps); null when resolved */
   belowResolution: 'width' | 'size' | null;
+  /** area with the map's blur taken out (mm²): the area itself when resolved; for one below resolution
+   *  the estimate its figures are not corrected to, which the smallest-size rule still uses */
+  unblurredAreaMm2: number;
 }
 
 /** Measure a region: mean contrast and centroid on the unsmoothed contrast map, shape from moments. */
@@ -214,6 +217,7 @@ export function measureRegion(
     zFit,
     touch,
     belowResolution: null,
+    unblurredAreaMm2: areaMm2,
   };
 }
 

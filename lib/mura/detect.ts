@@ -411,7 +411,7 @@ export function detectFeatures(ctx: Ctx, levelsIn: Level[], useFitFloor = true):
     if (f.zNoise < o.thresholdSigma) continue;
     // a half-peak region smaller than a quarter of the smallest feature searched for is a pixel or two
     // (an edge or corner artefact), not a feature this analysis resolves
-    if (f.areaMm2 < (0.25 * Math.PI * o.minFeatureMm ** 2) / 4) continue;
+    if (f.unblurredAreaMm2 < (0.25 * Math.PI * o.minFeatureMm ** 2) / 4) continue;
     // black fields show light that leaks (bleed, clouding, glow): a spot or cloud darker than its
     // surround is less leakage, not a defect of the black, and where the lens and the panel roll off
     // towards the corners it is mostly the low-order surface missing the roll-off
@@ -1102,6 +1102,8 @@ function sameFeature(a: Candidate, b: Candidate): boolean {
   if (fine.level.l < coarse.level.l && fine.pedestal === 0 && contains(coarse, peakOf(fine))) return true;
   if (Math.abs(a.level.l - b.level.l) > 2) return false;
   if (contains(a, peakOf(b)) && contains(b, peakOf(a))) return true;
+  // a round feature near the middle of an elongated one (a spot on a band) is a feature of its own
+  if (a.major > 3 * a.minor !== b.major > 3 * b.minor) return false;
   const sizeA = a.minor * a.level.f;
   const sizeB = b.minor * b.level.f;
   const ratio = Math.max(sizeA, sizeB) / Math.max(Math.min(sizeA, sizeB), 1e-9);
@@ -1207,9 +1209,15 @@ function toFound(ctx: Ctx, c: Candidate): Found | null {
   const b2 = c.minor * c.minor;
   const ca = Math.sqrt(Math.max(a2 - BLUR_FWHM2, 0.25 * a2) / a2);
   const cb = Math.sqrt(Math.max(b2 - BLUR_FWHM2, 0.25 * b2) / b2);
-  // under two working px across (the blur taken out), the extent is mostly the map's own blur
-  if (c.minor * cb * f < RESOLVED_PX) found.belowResolution = c.major * ca * f < RESOLVED_PX ? 'size' : 'width';
+  // under two working px across (the blur taken out), the extent is mostly the map's own blur: the
+  // figures are then left as seen, bounds (the blur widens a feature and lowers its mean), since a
+  // correction taken that far would claim more than the map shows
   const k = ca * cb;
+  found.unblurredAreaMm2 = found.areaMm2 * k;
+  if (c.minor * cb * f < RESOLVED_PX) {
+    found.belowResolution = c.major * ca * f < RESOLVED_PX ? 'size' : 'width';
+    return found;
+  }
   found.areaMm2 *= k;
   found.contrastPct /= Math.sqrt(k);
   found.lengthMm *= ca;
@@ -1790,7 +1798,12 @@ function bandFound(
   const wpx = fine ? fine.r1 - fine.r0 : c1 - c0 + 1;
   const blur2 = fine ? WORK_BLUR_FWHM2 : BLUR_FWHM2;
   const cb = Math.sqrt(Math.max(wpx * wpx - blur2, 0.25 * wpx * wpx)) / wpx;
-  if (wpx * cb * (fine ? 1 : f) < RESOLVED_PX) found.belowResolution = 'width';
+  found.unblurredAreaMm2 = found.areaMm2 * cb;
+  if (wpx * cb * (fine ? 1 : f) < RESOLVED_PX) {
+    // the figures as seen: bounds (see toFound)
+    found.belowResolution = 'width';
+    return found;
+  }
   found.areaMm2 *= cb;
   found.widthMm *= cb;
   found.contrastPct /= Math.sqrt(cb);

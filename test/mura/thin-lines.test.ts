@@ -3,7 +3,8 @@
 // and smoothing had made every line about 2.5 mm wide and as much fainter: a 0.6 mm line of -16 % read
 // -5.8 %, a 0.3 mm line of -49 % read -8.4 % (SEMU 9 for 45). Now a narrow band is measured across again at
 // the working raster's scale (0.5 mm here), and a line narrower than two of its pixels is marked
-// `belowResolution`: its width is then an upper bound, its contrast and SEMU lower bounds.
+// `belowResolution` and its figures left as seen: its width and area are then upper bounds, its contrast
+// and SEMU lower bounds.
 //
 // References: the generator's truth (a Gaussian line of the given FWHM; mean contrast and area over its
 // half-peak region, the mura issue's convention); blur spreads a line's contrast over a wider region and
@@ -38,7 +39,7 @@ async function lineScene(seed: number, widthMm: number, contrastPct: number, axi
 }
 
 describe('lines narrower than the map resolves', () => {
-  it('a 0.6 mm line of -20 % peak: most of its contrast, marked, and no figure above the truth', async () => {
+  it('a 0.6 mm line of -20 % peak: most of its contrast, marked, its figures bounds of the truth', async () => {
     const { t, b, others } = await lineScene(5004, 0.6, -20, 'vertical', 0.3);
     expect(b.polarity).toBe('dark');
     expect(Math.abs(b.xMm - t.xMm)).toBeLessThan(1);
@@ -46,6 +47,7 @@ describe('lines narrower than the map resolves', () => {
     expect(Math.abs(b.contrastPct)).toBeLessThanOrEqual(Math.abs(t.contrastPct));
     expect(Math.abs(b.contrastPct)).toBeGreaterThan(0.6 * Math.abs(t.contrastPct));
     expect(b.semu).toBeLessThanOrEqual(t.semu);
+    expect(b.areaMm2).toBeGreaterThanOrEqual(t.areaMm2);
     expect(others).toEqual([]);
   }, 60_000);
 
@@ -56,6 +58,7 @@ describe('lines narrower than the map resolves', () => {
     expect(Math.abs(b.contrastPct)).toBeGreaterThan(0.5 * Math.abs(t.contrastPct));
     expect(b.semu).toBeLessThanOrEqual(t.semu);
     expect(b.semu).toBeGreaterThan(0.5 * t.semu);
+    expect(b.areaMm2).toBeGreaterThanOrEqual(t.areaMm2);
     expect(others).toEqual([]);
   }, 60_000);
 });
