@@ -1839,20 +1839,23 @@ function acrossAtWorkScale(
   const span = Math.max(1, hi - lo);
   const t0 = Math.max(0, lo - 2 * span);
   const t1 = Math.min(across, hi + 2 * span);
-  const idx = (t: number, a: number): number => (axis === 'horizontal' ? t * W + a : a * W + t);
-  const P = new Float64Array(t1 - t0).fill(NaN);
-  for (let t = t0; t < t1; t++) {
+  // mean of C with data over rows (columns) t in [ta, tb) and positions a along in [aa, ab); NaN without
+  const meanOver = (ta: number, tb: number, aa: number, ab: number): number => {
     let sum = 0;
     let cnt = 0;
-    for (let a = from; a < to; a++) {
-      const i = idx(t, a);
-      if (wt[i] > 0) {
-        sum += C[i];
-        cnt++;
+    for (let t = ta; t < tb; t++) {
+      for (let a = aa; a < ab; a++) {
+        const i = axis === 'horizontal' ? t * W + a : a * W + t;
+        if (wt[i] > 0) {
+          sum += C[i];
+          cnt++;
+        }
       }
     }
-    if (cnt > 0) P[t - t0] = sum / cnt;
-  }
+    return cnt > 0 ? sum / cnt : NaN;
+  };
+  const P = new Float64Array(t1 - t0);
+  for (let t = t0; t < t1; t++) P[t - t0] = meanOver(t, t + 1, from, to);
   let tp = -1;
   for (let t = Math.max(t0, lo - 1); t < Math.min(t1, hi + 1); t++) {
     const v = P[t - t0];
@@ -1880,16 +1883,8 @@ function acrossAtWorkScale(
   while (r1 < t1 && sign * (P[r1 - t0] - half) >= 0) r1++;
   const means: number[] = [];
   for (let a = from; a < to; a++) {
-    let sum = 0;
-    let cnt = 0;
-    for (let t = r0; t < r1; t++) {
-      const i = idx(t, a);
-      if (wt[i] > 0) {
-        sum += C[i];
-        cnt++;
-      }
-    }
-    if (cnt > 0) means.push(sum / cnt - base);
+    const m = meanOver(r0, r1, a, a + 1);
+    if (Number.isFinite(m)) means.push(m - base);
   }
   if (means.length === 0) return null;
   return { r0, r1, base, peak, local: medianOfFirst(Float64Array.from(means), means.length) };

@@ -1,5 +1,12 @@
 // Shared helpers of the mura tests: analytical half-peak truths and blob matching.
+import { mkdtempSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { renderPhoto } from '../../fixtures/generator/index.js';
+import type { PhotoSpec } from '../../fixtures/generator/index.js';
+import { measurePhoto } from '../../lib/pipeline/index.js';
 import type { Blob } from '../../lib/types.js';
+import { generatedPhotoOptions, STUDY_QUALITY } from '../../scripts/generated-options.js';
 import { synthMap } from '../../scripts/mura-synth.js';
 
 /** Gaussian bump of sigma s (mm): the region phi >= 1/2 is a disc of radius s sqrt(2 ln 2), so its
@@ -52,4 +59,19 @@ export function threeCloudMap(): ReturnType<typeof synthMap> {
     smooth: [[0, 0.03, -0.05], [0.02, 0.01], [-0.04]],
     features: THREE_CLOUDS.map((c) => ({ kind: 'gauss' as const, xMm: c.x, yMm: c.y, sigmaMm: c.s, contrastPct: 6 })),
   });
+}
+
+/**
+ * Draw a generated scene, write it as a photo and measure it through the whole pipeline the way the mura
+ * study does (the truth's corners, the cos⁴ falloff correction, the study's quality limits).
+ */
+export async function measureGenerated(spec: PhotoSpec, name: string) {
+  const { buffer, ext, truth } = await renderPhoto(spec);
+  const file = join(mkdtempSync(join(tmpdir(), 'ef-scene-')), `${name}.${ext}`);
+  writeFileSync(file, buffer);
+  const m = await measurePhoto(
+    file,
+    generatedPhotoOptions(spec, { corners: truth.corners, falloff: { kind: 'cos4', focal35mm: spec.camera.focal35 }, quality: STUDY_QUALITY }),
+  );
+  return { truth, result: m.result };
 }

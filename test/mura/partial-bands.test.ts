@@ -8,16 +8,12 @@
 // contrast is at least half its peak, along the band as across it), and the generator's truth for the
 // scenes below (the band's own half-peak region; its ends are raised-cosine ramps at half height at the
 // band's `from` and `to`).
-import { mkdtempSync, writeFileSync } from 'node:fs';
-import { tmpdir } from 'node:os';
-import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
-import { buildPanel, renderPhoto, Rng } from '../../fixtures/generator/index.js';
+import { buildPanel, Rng } from '../../fixtures/generator/index.js';
 import type { FeatureSpec } from '../../fixtures/generator/index.js';
 import { alongWeight, bandExtent } from '../../lib/mura/detect.js';
-import { measurePhoto } from '../../lib/pipeline/index.js';
-import { generatedPhotoOptions, STUDY_QUALITY } from '../../scripts/generated-options.js';
 import { graySpec } from '../../scripts/mura-scenes.js';
+import { measureGenerated } from './helpers.js';
 
 /** A band's level along its length: 1 from a to b with raised-cosine ends of width r (0.5 at a and b). */
 function ramped(n: number, a: number, b: number, r: number): Float64Array {
@@ -89,16 +85,9 @@ describe('generated bands with other cross-profiles', () => {
 });
 
 async function analyse(seed: number) {
-  const spec = graySpec(seed, false, 2400, 1600, 'half-peak', null, true);
-  const { buffer, ext, truth } = await renderPhoto(spec);
-  const file = join(mkdtempSync(join(tmpdir(), 'ef-pband-')), `P${seed}_gray50.${ext}`);
-  writeFileSync(file, buffer);
-  const m = await measurePhoto(
-    file,
-    generatedPhotoOptions(spec, { corners: truth.corners, falloff: { kind: 'cos4', focal35mm: spec.camera.focal35 }, quality: STUDY_QUALITY }),
-  );
-  expect(m.result.status).toBe('ok');
-  return { truth, blobs: m.result.blobs };
+  const { truth, result } = await measureGenerated(graySpec(seed, false, 2400, 1600, 'half-peak', null, true), `P${seed}_gray50`);
+  expect(result.status).toBe('ok');
+  return { truth, blobs: result.blobs };
 }
 
 describe('bands that end inside the panel, through the whole pipeline', () => {

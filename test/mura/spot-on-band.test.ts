@@ -5,38 +5,26 @@
 // finding, hid both bands of the scene. The scene is one of the mura study's generated photos
 // (scripts/mura-scenes.ts, seed 1033 of the set with lines), checked against the generator's truth
 // (each feature's mean contrast and area over its own half-peak region).
-import { mkdtempSync, writeFileSync } from 'node:fs';
-import { tmpdir } from 'node:os';
-import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
-import { renderPhoto } from '../../fixtures/generator/index.js';
-import { measurePhoto } from '../../lib/pipeline/index.js';
-import { generatedPhotoOptions, STUDY_QUALITY } from '../../scripts/generated-options.js';
 import { graySpec } from '../../scripts/mura-scenes.js';
+import { measureGenerated } from './helpers.js';
 
 describe('a spot on a band', () => {
   it('is found apart from the band, and both bands of the scene are found and measured', async () => {
-    const spec = graySpec(1033, false, 2400, 1600, 'half-peak', null, false, true);
-    const { buffer, ext, truth } = await renderPhoto(spec);
-    const file = join(mkdtempSync(join(tmpdir(), 'ef-spotband-')), `S1033_gray50.${ext}`);
-    writeFileSync(file, buffer);
-    const m = await measurePhoto(
-      file,
-      generatedPhotoOptions(spec, { corners: truth.corners, falloff: { kind: 'cos4', focal35mm: spec.camera.focal35 }, quality: STUDY_QUALITY }),
-    );
-    expect(m.result.status).toBe('ok');
+    const { truth, result } = await measureGenerated(graySpec(1033, false, 2400, 1600, 'half-peak', null, false, true), 'S1033_gray50');
+    expect(result.status).toBe('ok');
     // the scene: bright bands at y 52 mm (34 mm wide, 7.8 % mean) and y 238 mm (48 mm, 3.0 %), a bright
     // spot of 23 mm (7.7 %) on the first
     const bands = truth.features.filter((f) => f.kind === 'band' && f.visible);
     const spot = truth.features.find((f) => f.kind === 'spot' && f.semu >= 2)!;
     expect(bands).toHaveLength(2);
     for (const t of bands) {
-      const b = m.result.blobs.find((x) => x.kind === 'band' && x.polarity === 'bright' && Math.abs(x.yMm - t.yMm) < 10);
+      const b = result.blobs.find((x) => x.kind === 'band' && x.polarity === 'bright' && Math.abs(x.yMm - t.yMm) < 10);
       expect(b, `band at y ${t.yMm.toFixed(0)} mm`).toBeDefined();
       expect(Math.abs(b!.contrastPct / t.contrastPct - 1)).toBeLessThan(0.25);
       expect(Math.abs(b!.areaMm2 / t.areaMm2 - 1)).toBeLessThan(0.3);
     }
-    const s = m.result.blobs.find((x) => x.kind === 'spot' && Math.hypot(x.xMm - spot.xMm, x.yMm - spot.yMm) < 10);
+    const s = result.blobs.find((x) => x.kind === 'spot' && Math.hypot(x.xMm - spot.xMm, x.yMm - spot.yMm) < 10);
     expect(s).toBeDefined();
     expect(Math.abs(s!.contrastPct / spot.contrastPct - 1)).toBeLessThan(0.25);
   }, 60_000);

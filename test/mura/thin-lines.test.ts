@@ -9,33 +9,22 @@
 // References: the generator's truth (a Gaussian line of the given FWHM; mean contrast and area over its
 // half-peak region, the mura issue's convention); blur spreads a line's contrast over a wider region and
 // keeps its integral, so a figure measured from a blurred line can only be fainter (common practice).
-import { mkdtempSync, writeFileSync } from 'node:fs';
-import { tmpdir } from 'node:os';
-import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
-import { renderPhoto } from '../../fixtures/generator/index.js';
-import { measurePhoto } from '../../lib/pipeline/index.js';
-import { generatedPhotoOptions, STUDY_QUALITY } from '../../scripts/generated-options.js';
 import { graySpec } from '../../scripts/mura-scenes.js';
+import { measureGenerated } from './helpers.js';
 
 async function lineScene(seed: number, widthMm: number, contrastPct: number, axis: 'horizontal' | 'vertical', position: number) {
   // a clean study field (smooth variation only) with one line from edge to edge
   const spec = graySpec(seed, true, 2400, 1600);
   spec.panel.features = [{ kind: 'line', axis, position, widthMm, contrastPct }];
-  const { buffer, ext, truth } = await renderPhoto(spec);
-  const file = join(mkdtempSync(join(tmpdir(), 'ef-line-')), `L${seed}_gray50.${ext}`);
-  writeFileSync(file, buffer);
-  const m = await measurePhoto(
-    file,
-    generatedPhotoOptions(spec, { corners: truth.corners, falloff: { kind: 'cos4', focal35mm: spec.camera.focal35 }, quality: STUDY_QUALITY }),
-  );
-  expect(m.result.status).toBe('ok');
+  const { truth, result } = await measureGenerated(spec, `L${seed}_gray50`);
+  expect(result.status).toBe('ok');
   // the map is analysed at 0.5 mm per pixel: it resolves from 1 mm
-  expect(m.result.mura?.resolvedFromMm).toBe(1);
+  expect(result.mura?.resolvedFromMm).toBe(1);
   const t = truth.features[0];
-  const found = m.result.blobs.filter((b) => b.kind === 'line');
+  const found = result.blobs.filter((b) => b.kind === 'line');
   expect(found).toHaveLength(1);
-  return { t, b: found[0], others: m.result.blobs.filter((b) => b.kind !== 'line' && b.semu >= 1) };
+  return { t, b: found[0], others: result.blobs.filter((b) => b.kind !== 'line' && b.semu >= 1) };
 }
 
 describe('lines narrower than the map resolves', () => {
