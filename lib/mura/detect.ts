@@ -1756,30 +1756,23 @@ function bandFound(
 ): Found | null {
   const { w: W, h: H } = ctx;
   const f = lv.f;
-  const px: number[] = [];
   const lo = c0 * f;
   const hi = Math.min(axis === 'horizontal' ? H : W, (c1 + 1) * f);
   const alongEnd = axis === 'horizontal' ? W : H;
   const from = e0 * f;
   const to = e1 >= (axis === 'horizontal' ? lv.w : lv.h) - 1 ? alongEnd : Math.min(alongEnd, (e1 + 1) * f);
-  if (axis === 'horizontal') {
-    for (let y = lo; y < hi; y++) for (let x = from; x < to; x++) if (ctx.wt[y * W + x] > 0) px.push(y * W + x);
-  } else {
-    for (let y = from; y < to; y++) for (let x = lo; x < hi; x++) if (ctx.wt[y * W + x] > 0) px.push(y * W + x);
-  }
-  if (px.length === 0) return null;
   // a line (a few level px wide) measured across again at the working raster's resolution: the level's
   // pixels and smoothing would make it about 2.5 of them wide and correspondingly faint
   const fine = f > 1 && (c1 - c0 + 1) * f <= NARROW_REMEASURE_PX ? acrossAtWorkScale(ctx, axis, lo, hi, from, to, sign) : null;
-  if (fine) {
-    px.length = 0;
-    if (axis === 'horizontal') {
-      for (let y = fine.r0; y < fine.r1; y++) for (let x = from; x < to; x++) if (ctx.wt[y * W + x] > 0) px.push(y * W + x);
-    } else {
-      for (let y = from; y < to; y++) for (let x = fine.r0; x < fine.r1; x++) if (ctx.wt[y * W + x] > 0) px.push(y * W + x);
-    }
-    if (px.length === 0) return null;
+  // the band's pixels: its rows (columns) across, over its extent along
+  const [r0, r1] = fine ? [fine.r0, fine.r1] : [lo, hi];
+  const px: number[] = [];
+  if (axis === 'horizontal') {
+    for (let y = r0; y < r1; y++) for (let x = from; x < to; x++) if (ctx.wt[y * W + x] > 0) px.push(y * W + x);
+  } else {
+    for (let y = from; y < to; y++) for (let x = r0; x < r1; x++) if (ctx.wt[y * W + x] > 0) px.push(y * W + x);
   }
+  if (px.length === 0) return null;
   const mid = fine ? (fine.r0 + fine.r1) / 2 - 0.5 : ((c0 + c1 + 1) / 2) * f - 0.5;
   const midAlong = e0 === 0 && to === alongEnd ? alongEnd / 2 : (from + to) / 2 - 0.5;
   // a base level of the rows around the line counts as its surround only where the band search found
