@@ -14,7 +14,7 @@
 // Corners are the generator's true ones, so that a geometry miss does not count as a mura miss.
 //
 //   npx tsc -p tsconfig.build.json && node dist/scripts/mura-accuracy.js [gray] [clean] [black] [width] [height] [--big] [--render] [--seeds=N] [--panel=WxH]
-//     [--distortion=K] [--no-noise] [--full-well=N] [--mosaic] [--denoise=K,S] [--sharpen=A,S] [--varied]
+//     [--distortion=K] [--no-noise] [--full-well=N] [--mosaic] [--denoise=K,S] [--sharpen=A,S] [--varied] [--smooth=steep|hump]
 //
 // Rendered photos and their truth are kept under .cache/ and reused (--render draws them again).
 
@@ -22,7 +22,7 @@ import { existsSync, mkdirSync, readFileSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { buildPanel, renderPhoto } from '../fixtures/generator/index.js';
 import type { FeatureTruth, PanelModel, PhotoSpec, PhotoTruth } from '../fixtures/generator/index.js';
-import { blackSpec, graySpec } from './mura-scenes.js';
+import { blackSpec, graySpec, otherSmooth } from './mura-scenes.js';
 import { DEFAULT_MEASURE_OPTIONS, DEFAULT_QUALITY_LIMITS, measurePhoto } from '../lib/pipeline/index.js';
 import type { Blob, MuraResult } from '../lib/types.js';
 
@@ -70,6 +70,15 @@ const varied = process.argv.includes('--varied');
 // --lines: other scenes, drawn from spots, clouds, bands and lines 0.3-3 mm wide (Gaussian cross-profile);
 // lines narrower than two pixels of the analysed map are tallied apart (their figures are bounds)
 const withLines = process.argv.includes('--lines');
+// --smooth=steep|hump: the gray and clean scenes with other smooth variation (mura-scenes.ts otherSmooth:
+// a plateau falling steeply into the corners, or a broad rise or hollow)
+const smoothArg = process.argv.find((a) => a.startsWith('--smooth='));
+const smooth = smoothArg ? smoothArg.slice('--smooth='.length) : null;
+if (smooth !== null && smooth !== 'steep' && smooth !== 'hump') throw new Error('--smooth= takes steep or hump');
+const withSmooth = (spec: PhotoSpec): PhotoSpec => {
+  if (smooth) otherSmooth(spec, smooth as 'steep' | 'hump');
+  return spec;
+};
 // --panel=WxH: another panel size in mm (default the generator's 597.9 x 336.3, a 27-inch 16:9 monitor)
 const panelArg = process.argv.find((a) => a.startsWith('--panel='));
 const panelMm = panelArg ? (([w, h]) => ({ width: w, height: h }))(panelArg.slice('--panel='.length).split('x').map(Number)) : null;
@@ -85,7 +94,8 @@ const dir = join(
     (denoise ? `-denoise-${denoise.strength}-${denoise.sigmaPx}` : '') +
     (sharpen ? `-sharpen-${sharpen.amount}-${sharpen.sigmaPx}` : '') +
     (varied ? '-varied' : '') +
-    (withLines ? '-lines' : ''),
+    (withLines ? '-lines' : '') +
+    (smooth ? `-smooth-${smooth}` : ''),
 );
 mkdirSync(dir, { recursive: true });
 
@@ -330,7 +340,7 @@ async function main(): Promise<void> {
   let areaOkNc = 0;
   for (let k = 0; k < nGray; k++) {
     const seed = 1000 + seedOffset + k;
-    const spec = graySpec(seed, false, width, height, cloudSizes, panelMm, varied, withLines);
+    const spec = withSmooth(graySpec(seed, false, width, height, cloudSizes, panelMm, varied, withLines));
     const r = await measure(`gray-${seed}`, spec);
     ms.push(r.ms);
     if (!r.mura) {
@@ -429,7 +439,7 @@ async function main(): Promise<void> {
   const cleanList: string[] = [];
   for (let k = 0; k < nClean; k++) {
     const seed = 5000 + seedOffset + k;
-    const r = await measure(`clean-${seed}`, graySpec(seed, true, width, height, 'half-peak', panelMm));
+    const r = await measure(`clean-${seed}`, withSmooth(graySpec(seed, true, width, height, 'half-peak', panelMm)));
     if (!r.mura) {
       cleanList.push(`clean ${seed}: ${r.error}`);
       continue;

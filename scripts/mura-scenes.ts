@@ -83,6 +83,28 @@ function varyShape(f: FeatureSpec, rng: Rng): void {
   }
 }
 
+/**
+ * Other smooth variation for a scene (`--smooth=`), drawn from the scene's seed: 'steep', a plateau
+ * falling steeply into the corners (the panel's radial term replaced by one losing 10-40 % at the
+ * corners as the 3rd-6th power of the distance from a centre at 0.4-0.6 of the panel); 'hump', a broad
+ * Gaussian rise or hollow of 5-20 % added (sigma 0.3-0.6 of the panel's width, its axes turned).
+ */
+export function otherSmooth(spec: PhotoSpec, kind: 'steep' | 'hump'): void {
+  const rng = new Rng(spec.seed * 31 + 7);
+  const u = (lo: number, hi: number) => rng.uniform(lo, hi);
+  const terms = spec.panel.luminance ?? [];
+  if (kind === 'steep') {
+    spec.panel.luminance = terms.filter((t) => t.kind !== 'radial');
+    spec.panel.luminance.push({ kind: 'radial', loss: u(0.1, 0.4), power: u(3, 6), u0: u(0.4, 0.6), v0: u(0.4, 0.6) });
+  } else {
+    const W = spec.panel.widthMm;
+    spec.panel.luminance = [
+      ...terms,
+      { kind: 'hump', amp: (rng.next() < 0.5 ? -1 : 1) * u(0.05, 0.2), u0: u(0.3, 0.7), v0: u(0.3, 0.7), sxMm: u(0.3, 0.6) * W, syMm: u(0.3, 0.6) * W, angleDeg: u(0, 180) },
+    ];
+  }
+}
+
 export function blackSpec(seed: number, width: number, height: number, panelMm: { width: number; height: number } | null = null): PhotoSpec {
   const spec = randomScene(seed, {
     ...(panelMm ? { widthMm: panelMm.width, heightMm: panelMm.height } : {}),
