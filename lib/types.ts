@@ -188,6 +188,10 @@ export interface MuraResult {
   coveredPct?: number;
   /** candidates found and then left out, with the reason (absent in results written before it) */
   leftOut?: LeftOutFinding[];
+  /** the panel's steep roll-off the background carried (a plateau falling steeply into the corners),
+   *  or null when it carried none (absent in results written before it): its centre as fractions of the
+   *  panel's width and height, and the model error (%) over the whole panel without and with it */
+  steepRollOff?: { centreU: number; centreV: number; modelErrorPolynomialPct: number; modelErrorRollOffPct: number } | null;
   /** map pixels per pixel of the raster the mura analysis ran on (1 = the map itself) */
   workScale?: number;
   /** smallest feature diameter (mm) the analysed map resolves: two of its pixels across (absent in

@@ -7,7 +7,7 @@
 
 import { EvenfieldError } from '../errors.js';
 import type { Blob, LeftOutFinding, MuraResult, PanelMap, Plane } from '../types.js';
-import { bumpDistance2, fitBackground, type BackgroundFit, type Bump, type WorkRaster } from './background.js';
+import { bumpDistance2, fitBackground, FLAT_ROLL_OFF_POWERS, radialCentreError, SHARP_ROLL_OFF_POWERS, type BackgroundFit, type Bump, type WorkRaster } from './background.js';
 import { buildLevels, codingFloorPct, detectFeatures, noiseCorrelation } from './detect.js';
 import { classify, round } from './classify.js';
 import { panelEdges, register, type Ctx, type Found } from './context.js';
@@ -45,58 +45,17 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
   const edges = panelEdges(raw.wt, raw.w, raw.h);
   const N = raw.w * raw.h;
 
-  let mask: Uint8Array | null = null;
-  let rho = 1;
-  let noisePct = neighbourNoise(relativeY(raw), raw);
+  const noise0 = neighbourNoise(relativeY(raw), raw);
   // the lens falloff left in the photo, estimated and divided out
-  const lensFalloff = opts.lens ? withoutLensFalloff(raw, opts.lens, opts, noisePct) : null;
-  const work = lensFalloff ? lensFalloff.work : raw;
-  let fit: BackgroundFit | null = null;
-  let ctx: Ctx | null = null;
-  let C: Float32Array = new Float32Array(N);
-  for (let round = 1; round <= opts.background.rounds; round++) {
-    // The first round fits a surface of order 2 at most: a large cloud is partly representable by a
-    // surface of higher order, which would absorb it before it could be found and masked. The later
-    // rounds fit the full order with the found features masked, so the surface passes under them.
-    const first = round === 1 && opts.background.rounds > 1;
-    const order = first ? Math.min(2, opts.background.order) : opts.background.order;
-    fit = fitBackground(work, mask, { ...opts.background, order }, rho * noisePct, opts.tileGrid, black);
-    C = contrastOf(work, fit);
-    const Cdet = opts.tileGrid ? withoutTileSteps(C, work, fit, opts.tileGrid) : C;
-    noisePct = Math.max(neighbourNoise(Cdet, work), 1e-4);
-    ctx = {
-      w: work.w,
-      h: work.h,
-      mmPerPx: work.mmPerPx,
-      C: Cdet,
-      wt: work.wt,
-      noisePct,
-      rho: 1,
-      fitErrorPct: fit.fitErrorPct,
-      B: fit.B,
-      opts,
-      black,
-      label: new Int32Array(N),
-      edges,
-      found: [],
-    };
-    const levels = buildLevels(ctx);
-    rho = noiseCorrelation(levels);
-    ctx.rho = rho;
-    detectFeatures(ctx, levels, !first);
-    if (process.env.MURA_DBG) {
-      console.log(`round ${round} order ${fit.order} fitErr ${fit.fitErrorPct.toFixed(3)} cells ${fit.cellsUsed}/${fit.cellsClipped}/${fit.cellsMasked} masked ${mask ? countOf(mask) / N : 0}`);
-      for (const f of ctx.found) console.log(`  ${f.sign} c(${(f.cx * work.mmPerPx).toFixed(0)},${(f.cy * work.mmPerPx).toFixed(0)}) A ${f.areaMm2.toFixed(0)} C ${f.contrastPct.toFixed(3)} z ${f.zNoise.toFixed(0)} semu ${semu(f.contrastPct, f.areaMm2).toFixed(2)}`);
-    }
-    if (round === opts.background.rounds) break;
-    const next = featureMask(ctx, opts);
-    // masks only grow: a feature masked once stays masked (a surface freed of its mask would absorb
-    // it again, and it would come and go between rounds); the first round's surface is never the final one
-    if (mask) orInto(next, mask);
-    if (!first && (mask ? sameMask(mask, next) : countOf(next) === 0)) break;
-    mask = next;
-  }
-  if (!fit || !ctx) throw new EvenfieldError('internal', 'mura analysis ran no round');
+  const lensFalloff = opts.lens ? withoutLensFalloff(raw, opts.lens, opts, noise0) : null;
+  const unrolled = lensFalloff ? lensFalloff.work : raw;
+  let r = runRounds(unrolled, opts, edges, noise0);
+  // a plateau falling steeply into the corners: the rounds run again with surfaces that carry it
+  const steep = black || opts.background.steepRollOffMaxRatio <= 0 ? null : steepRollOff(unrolled, r.mask, opts, noise0);
+  const work: WorkRaster = steep ? { ...unrolled, rollOff: { ...steep.centre, powers: FLAT_ROLL_OFF_POWERS } } : unrolled;
+  if (steep) r = runRounds(work, opts, edges, noise0);
+  const mask = r.mask;
+  let { fit, ctx, C, noisePct, rho } = r;
   let jointBumps = 0;
   for (let pass = 0; pass < JOINT_PASSES; pass++) {
     const joint = jointCloudFit(ctx, work, fit, opts);
@@ -158,7 +117,12 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
     );
   }
   const backgroundModel =
-    `polynomial surface of order ${fit.order} (Legendre terms) fitted robustly on ${round(fit.cellPx * work.mmPerPx, 2)} mm cells; ` +
+    `polynomial surface of order ${fit.order} (Legendre terms)` +
+    (steep
+      ? ` joined by a fall as the 6th power of the distance from a centre at ${round((100 * (steep.centre.x + 0.5)) / work.w, 1)} % of the width and ${round((100 * (steep.centre.y + 0.5)) / work.h, 1)} % of the height` +
+        ` (the panel's light holds up over the middle and falls steeply into the corners, more steeply than the polynomial can follow: model error over the whole panel ${round(steep.errPolynomial, 3)} % without these terms, ${round(steep.errRollOff, 3)} % with them)`
+      : '') +
+    ` fitted robustly on ${round(fit.cellPx * work.mmPerPx, 2)} mm cells; ` +
     `${round(maskedPct, 1)} % of the panel masked as features; model error ${round(fit.fitErrorPct, 3)} %` +
     (opts.tileGrid ? `; one level offset per tile (${opts.tileGrid[0]} x ${opts.tileGrid[1]})` : '') +
     (jointBumps
@@ -185,9 +149,18 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
     modelErrorRollOffPct: round(d.errRadial, 4),
     modelErrorCloudPct: round(d.errCloud, 4),
   }));
+
   return {
     blobs,
     leftOut,
+    steepRollOff: steep
+      ? {
+          centreU: round((steep.centre.x + 0.5) / work.w, 4),
+          centreV: round((steep.centre.y + 0.5) / work.h, 4),
+          modelErrorPolynomialPct: round(steep.errPolynomial, 4),
+          modelErrorRollOffPct: round(steep.errRollOff, 4),
+        }
+      : null,
     maxSemu: blobs.length ? blobs[0].semu : 0,
     noiseFloorPct: round(noisePct, 5),
     resolvableContrastPct: resolvable,
@@ -202,6 +175,68 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
     coveredPct: round(maskedPct, 1),
     cautions,
   };
+}
+
+/** The fit -> detect -> mask -> refit rounds on a raster: the last round's surface, findings, contrast
+ *  map, mask and noise figures. */
+function runRounds(
+  work: WorkRaster,
+  opts: MuraOptions,
+  edges: ReturnType<typeof panelEdges>,
+  noise0: number,
+): { fit: BackgroundFit; ctx: Ctx; C: Float32Array; mask: Uint8Array | null; noisePct: number; rho: number } {
+  const black = opts.pattern === 'black';
+  const N = work.w * work.h;
+  let mask: Uint8Array | null = null;
+  let rho = 1;
+  let noisePct = noise0;
+  let fit: BackgroundFit | null = null;
+  let ctx: Ctx | null = null;
+  let C: Float32Array = new Float32Array(N);
+  for (let round = 1; round <= opts.background.rounds; round++) {
+    // The first round fits a surface of order 2 at most: a large cloud is partly representable by a
+    // surface of higher order, which would absorb it before it could be found and masked. The later
+    // rounds fit the full order with the found features masked, so the surface passes under them.
+    const first = round === 1 && opts.background.rounds > 1;
+    const order = first ? Math.min(2, opts.background.order) : opts.background.order;
+    fit = fitBackground(work, mask, { ...opts.background, order }, rho * noisePct, opts.tileGrid, black);
+    C = contrastOf(work, fit);
+    const Cdet = opts.tileGrid ? withoutTileSteps(C, work, fit, opts.tileGrid) : C;
+    noisePct = Math.max(neighbourNoise(Cdet, work), 1e-4);
+    ctx = {
+      w: work.w,
+      h: work.h,
+      mmPerPx: work.mmPerPx,
+      C: Cdet,
+      wt: work.wt,
+      noisePct,
+      rho: 1,
+      fitErrorPct: fit.fitErrorPct,
+      B: fit.B,
+      opts,
+      black,
+      label: new Int32Array(N),
+      edges,
+      found: [],
+    };
+    const levels = buildLevels(ctx);
+    rho = noiseCorrelation(levels);
+    ctx.rho = rho;
+    detectFeatures(ctx, levels, !first);
+    if (process.env.MURA_DBG) {
+      console.log(`round ${round} order ${fit.order} fitErr ${fit.fitErrorPct.toFixed(3)} cells ${fit.cellsUsed}/${fit.cellsClipped}/${fit.cellsMasked} masked ${mask ? countOf(mask) / N : 0}`);
+      for (const f of ctx.found) console.log(`  ${f.sign} c(${(f.cx * work.mmPerPx).toFixed(0)},${(f.cy * work.mmPerPx).toFixed(0)}) A ${f.areaMm2.toFixed(0)} C ${f.contrastPct.toFixed(3)} z ${f.zNoise.toFixed(0)} semu ${semu(f.contrastPct, f.areaMm2).toFixed(2)}`);
+    }
+    if (round === opts.background.rounds) break;
+    const next = featureMask(ctx, opts);
+    // masks only grow: a feature masked once stays masked (a surface freed of its mask would absorb
+    // it again, and it would come and go between rounds); the first round's surface is never the final one
+    if (mask) orInto(next, mask);
+    if (!first && (mask ? sameMask(mask, next) : countOf(next) === 0)) break;
+    mask = next;
+  }
+  if (!fit || !ctx) throw new EvenfieldError('internal', 'mura analysis ran no round');
+  return { fit, ctx, C, mask, noisePct, rho };
 }
 
 /** Widths of the falloff profile tried when the photo does not give its focal length (tangent of the
@@ -612,6 +647,105 @@ function confirmOnBlack(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, mask: Ui
   return dropped;
 }
 
+/** Where the surface peaks (iHi) and dips (iLo) on the panel, and its fall (max - min) / max; iHi -1
+ *  when it has no positive peak. */
+function surfaceFall(B: Float32Array, work: WorkRaster): { iHi: number; iLo: number; range: number } {
+  let hi = -Infinity;
+  let lo = Infinity;
+  let iHi = -1;
+  let iLo = -1;
+  for (let i = 0; i < B.length; i++) {
+    if (!(work.wt[i] > 0)) continue;
+    const b = B[i];
+    if (b > hi) {
+      hi = b;
+      iHi = i;
+    }
+    if (b < lo) {
+      lo = b;
+      iLo = i;
+    }
+  }
+  if (!(hi > 0)) return { iHi: -1, iLo: -1, range: 0 };
+  return { iHi, iLo, range: (hi - lo) / hi };
+}
+
+/**
+ * Lit fields: whether the panel's light holds up over the middle and falls steeply into the corners (as
+ * the 5th-6th power of the distance from a centre, as a panel or a lens left uncorrected may), more
+ * steeply than an order-4 surface can follow. Such a surface passes under the plateau, leaving a faint
+ * cloud of 1-2 % about the centre, and above the far corners, whose last centimetres read as dark spots
+ * of 2-3 % (generated clean fields with 15-40 % corner loss); a real cloud on the plateau is measured
+ * against a bump that takes the plateau's shortfall for its own (+4 % read as +16 %). Tested on the whole
+ * panel before the features are found: the polynomial joined by FLAT_ROLL_OFF_POWERS about the centre
+ * rollOffCentre finds, against the polynomial alone, both fitted by plain least squares (clipping leaves
+ * out other cells for each, so the two errors would not measure the same cells: with it, terms about a
+ * centre a little off made the error larger); taken when its model error is at most
+ * background.steepRollOffMaxRatio of the polynomial's. The radial terms are symmetric about the centre
+ * and nearly flat within half the half-diagonal of it, so they follow a fall all corners share, but
+ * neither a blemish in one corner nor
+ * a cloud in the middle. Returns the centre (working px) and the two model errors, or null.
+ */
+function steepRollOff(work: WorkRaster, mask: Uint8Array | null, opts: MuraOptions, noisePct: number): { centre: { x: number; y: number }; errPolynomial: number; errRollOff: number } | null {
+  const { k, raster, mask: cMask } = coarseOf(work, mask);
+  const noise = noisePct / k;
+  // cells twice the rounds' size: the fall is broad, and the search fits once per centre
+  const bg = { ...opts.background, cellMm: (opts.background.cellMm ?? (Math.max(raster.w, raster.h) * raster.mmPerPx) / 80) * 2 };
+  const errPolynomial = fitBackground(raster, cMask, { ...bg, clipSigma: Infinity }, noise, opts.tileGrid, false, null, null, false).fitErrorPct;
+  const search = radialCentreError(raster, cMask, bg, noise, opts.tileGrid, FLAT_ROLL_OFF_POWERS);
+  const found = rollOffCentre(raster, search.at);
+  const outer = search.outerShare(found.x, found.y, ROLL_OFF_OUTER);
+  if (process.env.MURA_DBG) {
+    console.log(`steep roll-off: centre ${(found.x / raster.w).toFixed(3)},${(found.y / raster.h).toFixed(3)}, model error ${errPolynomial.toFixed(3)} -> ${found.e.toFixed(3)} % (${(found.e / errPolynomial).toFixed(2)}), coefficient ${found.coef[0].toExponential(2)}, outer share ${outer.toFixed(2)}`);
+  }
+  // a fall from the centre, not a rise, that earns its keep at the corners
+  if (!(found.coef[0] < 0) || !(outer >= opts.background.steepRollOffMinOuterShare)) return null;
+  if (!(found.e <= opts.background.steepRollOffMaxRatio * errPolynomial)) return null;
+  return { centre: { x: (found.x + 0.5) * k - 0.5, y: (found.y + 0.5) * k - 0.5 }, errPolynomial, errRollOff: found.e };
+}
+
+/**
+ * The centre of a radial roll-off on a raster: where errAt (the model error with the roll-off's terms
+ * about a centre) is least, searched over the middle of the panel (CENTRE_SPAN of each side about its
+ * centre): along x, along y, along x again on a grid of CENTRE_STEPS, then about the best on a grid of
+ * half the step. The error's basin about the true centre is narrow (about a tenth of the panel's width
+ * on generated flat-topped roll-offs), so the first grids must be finer than that.
+ */
+function rollOffCentre(raster: WorkRaster, fitAt: (x: number, y: number) => { error: number; coef: number[] }): { x: number; y: number; e: number; coef: number[] } {
+  const best = { x: (raster.w - 1) / 2, y: (raster.h - 1) / 2, e: Infinity, coef: [] as number[] };
+  const sx = (CENTRE_SPAN * raster.w) / (CENTRE_STEPS - 1);
+  const sy = (CENTRE_SPAN * raster.h) / (CENTRE_STEPS - 1);
+  const tryAt = (x: number, y: number): void => {
+    const { error: e, coef } = fitAt(x, y);
+    if (e < best.e) Object.assign(best, { x, y, e, coef });
+  };
+  const line = (alongX: boolean): void => {
+    const x0 = best.x;
+    const y0 = best.y;
+    for (let i = 0; i < CENTRE_STEPS; i++) {
+      const t = i / (CENTRE_STEPS - 1) - 0.5;
+      if (alongX) tryAt((raster.w - 1) / 2 + t * CENTRE_SPAN * raster.w, y0);
+      else tryAt(x0, (raster.h - 1) / 2 + t * CENTRE_SPAN * raster.h);
+    }
+  };
+  line(true);
+  line(false);
+  line(true);
+  const bx = best.x;
+  const by = best.y;
+  for (let j = -1; j <= 1; j++) for (let i = -1; i <= 1; i++) if (i || j) tryAt(bx + (i * sx) / 2, by + (j * sy) / 2);
+  return best;
+}
+
+/** A steep roll-off lives at the corners: the share of its term's gain counted from cells at least this
+ *  many half-diagonals from its centre (see steepRollOff). */
+const ROLL_OFF_OUTER = 0.75;
+
+/** The roll-off's centre is searched over this share of each side about the panel's centre... */
+const CENTRE_SPAN = 0.4;
+/** ...on a grid of this many places along each side (a step of 1/35 of the side). */
+const CENTRE_STEPS = 15;
+
 /** A Gaussian of a feature's size centred at (x, y) (px of a raster of mmPerPx): the half-peak ellipse's
  *  semi-axes from the equivalent rectangle (a = L / sqrt 3), sigma = a / 1.1774. */
 function bumpOf(f: Found, x: number, y: number, mmPerPx: number): Bump {
@@ -692,24 +826,8 @@ function findAgain(ctx: Ctx, coarse: WorkRaster, fit2: BackgroundFit, edges: Ret
  */
 function dropRollOffClouds(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, opts: MuraOptions): { f: Found; errRadial: number; errCloud: number }[] {
   // where the surface peaks and dips inside the panel, and how far it falls
-  let hi = -Infinity;
-  let lo = Infinity;
-  let iHi = -1;
-  let iLo = -1;
-  for (let i = 0; i < fit.B.length; i++) {
-    if (!(work.wt[i] > 0)) continue;
-    const b = fit.B[i];
-    if (b > hi) {
-      hi = b;
-      iHi = i;
-    }
-    if (b < lo) {
-      lo = b;
-      iLo = i;
-    }
-  }
-  if (!(hi > 0) || iHi < 0) return [];
-  const range = (hi - lo) / hi;
+  const { iHi, iLo, range } = surfaceFall(fit.B, work);
+  if (iHi < 0) return [];
   const inside = (i: number): boolean => {
     const x = i % work.w;
     const y = (i - x) / work.w;
@@ -738,7 +856,10 @@ function dropRollOffClouds(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, opts:
     const others = featureMask({ ...ctx, found: ctx.found.filter((g) => g !== f) }, opts);
     const m = k === 1 ? others : coarsenedMask(others, work.w, work.h, k);
     const noise = (ctx.rho * ctx.noisePct) / k;
-    const radial = fitBackground(raster, m, opts.background, noise, opts.tileGrid, ctx.black, null, { x: cx, y: cy });
+    // (with a steep roll-off in the surface, the roll-off's power joins this one's, about the cloud)
+    const radial = raster.rollOff
+      ? fitBackground({ ...raster, rollOff: null }, m, opts.background, noise, opts.tileGrid, ctx.black, null, { x: cx, y: cy, powers: [...SHARP_ROLL_OFF_POWERS, ...FLAT_ROLL_OFF_POWERS] })
+      : fitBackground(raster, m, opts.background, noise, opts.tileGrid, ctx.black, null, { x: cx, y: cy });
     const reach = (LOCAL_REACH * Math.sqrt(f.areaMm2 / Math.PI)) / raster.mmPerPx;
     const s = 1 / (Math.sqrt(3) * 1.1774 * raster.mmPerPx);
     const bump: Bump = { x: cx, y: cy, sLong: f.lengthMm * s, sShort: f.widthMm * s, angleRad: (f.angleDeg * Math.PI) / 180 };
@@ -825,7 +946,9 @@ function coarsened(work: WorkRaster, k: number): WorkRaster {
   const Y = coarsenedPlane(yw, work.w, work.h, k);
   const wt = coarsenedPlane(work.wt, work.w, work.h, k);
   for (let j = 0; j < Y.length; j++) Y[j] = wt[j] > 0 ? Y[j] / wt[j] : 0;
-  return { w: Math.ceil(work.w / k), h: Math.ceil(work.h / k), mmPerPx: work.mmPerPx * k, Y, wt, lens: work.lens ?? null };
+  const r = work.rollOff;
+  const rollOff = r ? { x: (r.x + 0.5) / k - 0.5, y: (r.y + 0.5) / k - 0.5, powers: r.powers } : null;
+  return { w: Math.ceil(work.w / k), h: Math.ceil(work.h / k), mmPerPx: work.mmPerPx * k, Y, wt, lens: work.lens ?? null, rollOff };
 }
 
 /** A plane box-averaged by k (plain mean of the pixels each coarse pixel covers). */

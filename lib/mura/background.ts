@@ -32,6 +32,16 @@ export interface WorkRaster {
   wt: Float32Array;
   /** a lens falloff term for the surface (see lensColumn), or null/absent (none) */
   lens?: LensTerm | null;
+  /** the panel's steep roll-off: radial terms about this centre (working px) that every surface fitted
+   *  on the raster carries, or null/absent (none; see steepRollOff in analyse.ts) */
+  rollOff?: RadialTerms | null;
+}
+
+/** Radial terms of a surface: powers of the distance from a centre (px), over the half-diagonal. */
+export interface RadialTerms {
+  x: number;
+  y: number;
+  powers: number[];
 }
 
 export interface BackgroundFit {
@@ -96,10 +106,17 @@ export function legendre(n: number, x: number, out: Float64Array): void {
   for (let k = 1; k < n; k++) out[k + 1] = ((2 * k + 1) * x * out[k] - k * out[k - 1]) / (k + 1);
 }
 
-/** Powers of the radial terms (distance from a given centre) a fit may add to the polynomial: with the
- *  polynomial's even powers they follow a roll-off whose profile is not a polynomial, e.g. one falling
- *  as the 1.5th power of the distance from its peak (sharper at the peak than any low-order surface). */
-const RADIAL_POWERS = [1, 3];
+/** Powers of the radial terms (distance from a given centre) a fit may add to the polynomial by default:
+ *  with the polynomial's even powers they follow a roll-off whose profile is not a polynomial, e.g. one
+ *  falling as the 1.5th power of the distance from its peak (sharper at the peak than any low-order
+ *  surface). */
+export const SHARP_ROLL_OFF_POWERS = [1, 3];
+/** ...and the power for one flatter at its peak than an order-4 surface can follow (falling as the
+ *  5th-6th power of the distance: a plateau with a steep fall to the corners). One term, which can only
+ *  rise or fall: with the 6th and 8th together, of opposite signs, the terms formed a ring that took up
+ *  the flanks of large clouds (three large clouds of the accuracy study gained as much from them as the
+ *  generated roll-offs: model error ratios 0.45-0.51). */
+export const FLAT_ROLL_OFF_POWERS = [6];
 
 /**
  * A lens falloff term: where each panel point lay in the photo, and the falloff profile's width. Falloff
@@ -236,8 +253,10 @@ interface Terms {
   bumpScale: Float64Array;
   /** level the bumps are scaled by (previous background), or null without bumps */
   level: Float32Array | null;
-  radialX: number;
-  radialY: number;
+  /** each radial term's centre and power (the raster's roll-off first, then the fit's own) */
+  radialX: Float64Array;
+  radialY: Float64Array;
+  radialPowers: Float64Array;
   nRadial: number;
   radialScale: number;
   /** the lens term (WorkRaster.lens), or null */
@@ -248,9 +267,19 @@ interface Terms {
   py: Float64Array;
 }
 
-/** Radial term t (odd power of the distance from the centre, over the half-diagonal) at (x, y). */
+/** Radial term t (a power of the distance from the centre, over the half-diagonal) at (x, y). */
 function radialAt(T: Terms, x: number, y: number, t: number): number {
-  return Math.hypot(x - T.radialX, y - T.radialY) ** RADIAL_POWERS[t] * T.radialScale ** RADIAL_POWERS[t];
+  const dx = (x - T.radialX[t]) * T.radialScale;
+  const dy = (y - T.radialY[t]) * T.radialScale;
+  return radialPower(dx * dx + dy * dy, T.radialPowers[t]);
+}
+
+/** r^p from r² (whole powers by products: the radial terms are evaluated at every working pixel). */
+function radialPower(r2: number, p: number): number {
+  if (!Number.isInteger(p) || p < 0) return Math.pow(r2, p / 2);
+  let v = p % 2 ? Math.sqrt(r2) : 1;
+  for (let k = 1; k < p; k += 2) v *= r2;
+  return v;
 }
 
 /** Bump k's column in cell c's row of the design: its Gaussian at the cell times the level there. */
@@ -379,24 +408,25 @@ function chooseBumpScales(T: Terms, F: Fitting, maxSigma: number): void {
   }
 }
 
-/**
- * Fit the background.
- * @param mask 1 = leave out (found features); may be null
- * @param noisePct per-working-pixel contrast noise (%), to separate the fit error from cell noise
- * @param tileGrid [cols, rows] or null
- * @param brightOnly black fields: glow and clouding are bright, so bright residuals are clipped at
- *        clipSigma but dark ones only at twice that
- */
-export function fitBackground(
+/** A fit's cells, design and state, set up once (fitBackground, radialCentreError). */
+interface SetUp {
+  T: Terms;
+  F: Fitting;
+  cells: Cells;
+  terms: [number, number][];
+  cellPx: number;
+}
+
+function setUpFit(
   work: WorkRaster,
   mask: Uint8Array | null,
   opts: BackgroundOptions,
   noisePct: number,
   tileGrid: [number, number] | null,
   brightOnly: boolean,
-  bumps: { list: Bump[]; level: Float32Array; maxSigma: number } | null = null,
-  radial: { x: number; y: number } | null = null,
-): BackgroundFit {
+  bumps: { list: Bump[]; level: Float32Array; maxSigma: number } | null,
+  radial: { x: number; y: number; powers?: number[] } | null,
+): SetUp {
   const { w, h } = work;
   const longMm = Math.max(w, h) * work.mmPerPx;
   const cellMm = opts.cellMm ?? longMm / 80;
@@ -416,7 +446,11 @@ export function fitBackground(
   const terms = termList(order);
   const bumpList = bumps?.list ?? [];
   const nBase = terms.length + nTileTerms;
-  const nRadial = radial ? RADIAL_POWERS.length : 0;
+  const radialSets: RadialTerms[] = [];
+  if (work.rollOff) radialSets.push(work.rollOff);
+  if (radial) radialSets.push({ x: radial.x, y: radial.y, powers: radial.powers ?? SHARP_ROLL_OFF_POWERS });
+  const radialTerms = radialSets.flatMap((r) => r.powers.map((p) => [r.x, r.y, p] as const));
+  const nRadial = radialTerms.length;
   const lens = work.lens ?? null;
   const nTerms = nBase + bumpList.length + nRadial + (lens ? 1 : 0);
   // a least-squares fit needs at least as many observations as unknowns
@@ -435,8 +469,9 @@ export function fitBackground(
     bumpList,
     bumpScale: new Float64Array(bumpList.length).fill(1),
     level: bumps ? bumps.level : null,
-    radialX: radial ? radial.x : 0,
-    radialY: radial ? radial.y : 0,
+    radialX: Float64Array.from(radialTerms, (t) => t[0]),
+    radialY: Float64Array.from(radialTerms, (t) => t[1]),
+    radialPowers: Float64Array.from(radialTerms, (t) => t[2]),
     nRadial,
     radialScale: 1 / Math.hypot(w / 2, h / 2),
     lens,
@@ -498,6 +533,37 @@ export function fitBackground(
     coef: new Float64Array(nTerms),
     resid: new Float64Array(nCells),
   };
+  return { T, F, cells, terms, cellPx };
+}
+
+/**
+ * Fit the background.
+ * @param mask 1 = leave out (found features); may be null
+ * @param noisePct per-working-pixel contrast noise (%), to separate the fit error from cell noise
+ * @param tileGrid [cols, rows] or null
+ * @param brightOnly black fields: glow and clouding are bright, so bright residuals are clipped at
+ *        clipSigma but dark ones only at twice that
+ * @param surface false: the fit's figures only, no surface (B and lensPart empty)
+ */
+export function fitBackground(
+  work: WorkRaster,
+  mask: Uint8Array | null,
+  opts: BackgroundOptions,
+  noisePct: number,
+  tileGrid: [number, number] | null,
+  brightOnly: boolean,
+  bumps: { list: Bump[]; level: Float32Array; maxSigma: number } | null = null,
+  radial: { x: number; y: number; powers?: number[] } | null = null,
+  surface = true,
+): BackgroundFit {
+  const { w, h } = work;
+  const cols = tileGrid ? tileGrid[0] : 1;
+  const rows = tileGrid ? tileGrid[1] : 1;
+  const nTiles = cols * rows;
+  const { T, F, cells, terms, cellPx } = setUpFit(work, mask, opts, noisePct, tileGrid, brightOnly, bumps, radial);
+  const { order, nBase, nTerms, bumpList, nRadial } = T;
+  const nCells = cells.n;
+  const design = F.design;
   clipRounds(F);
   // each bump's width, then the clipping once more with the widths chosen
   if (bumpList.length) {
@@ -511,16 +577,10 @@ export function fitBackground(
   // 3. fit error: residual scatter of all cells outside the feature mask (clipped ones included: the
   //    clipping removes what the surface cannot follow, so leaving them out would hide its error),
   //    less the cells' own noise
-  const used = new Float64Array(nCells);
   let nClipped = 0;
-  for (let k = 0; k < nCells; k++) {
-    const p = predictCell(design, nTerms, coef, k);
-    if (clipped[k]) nClipped++;
-    used[k] = p > 0 ? (100 * (cells.value[k] - p)) / p : 0;
-  }
-  const scatter = robustSigma(used);
+  for (let k = 0; k < nCells; k++) if (clipped[k]) nClipped++;
   const noiseLevel = F.cellNoise;
-  const fitErrorPct = Math.sqrt(Math.max(0, scatter * scatter - noiseLevel * noiseLevel));
+  const fitErrorPct = modelError(F, coef);
 
   // 4. tile offsets: centre them and move their mean into the constant term
   let tileOffsetsPct: Float64Array | null = null;
@@ -535,16 +595,16 @@ export function fitBackground(
     tileOffsetsPct = beta; // converted to % below, once B is known
   }
 
-  // 5. evaluate at working resolution
-  const B = evaluateSurface(T, coef);
+  // 5. evaluate at working resolution (not when only the fit's figures are asked for)
+  const B = surface ? evaluateSurface(T, coef) : new Float32Array(0);
   let lensPart: Float32Array | null = null;
-  if (T.lens !== null) {
+  if (T.lens !== null && surface) {
     lensPart = new Float32Array(w * h);
     writeLensPart(T, coef, lensPart);
     for (let i = 0; i < B.length; i++) B[i] += lensPart[i];
   }
 
-  if (tileOffsetsPct && tileGrid) {
+  if (tileOffsetsPct && tileGrid && surface) {
     for (let t = 0; t < nTiles; t++) {
       const tx = t % cols;
       const ty = Math.floor(t / cols);
@@ -574,7 +634,76 @@ export function fitBackground(
     tileOffsetsPct,
     bumps: bumpList.map((b, k) => ({ ...b, sLong: b.sLong * bumpScale[k], sShort: b.sShort * bumpScale[k], amplitude: coef[nBase + k] })),
     lensPart,
-    lensPower: lens ? coef[nBase + bumpList.length + nRadial] : null,
+    lensPower: T.lens ? coef[nBase + bumpList.length + nRadial] : null,
+  };
+}
+
+/** A fit's model error (%): the robust scatter of every cell's relative residual less the cells' own
+ *  noise in quadrature. */
+function modelError(F: Fitting, coef: Float64Array): number {
+  const { cells, design, nTerms } = F;
+  const used = new Float64Array(cells.n);
+  for (let k = 0; k < cells.n; k++) {
+    const p = predictCell(design, nTerms, coef, k);
+    used[k] = p > 0 ? (100 * (cells.value[k] - p)) / p : 0;
+  }
+  const scatter = robustSigma(used);
+  return Math.sqrt(Math.max(0, scatter * scatter - F.cellNoise * F.cellNoise));
+}
+
+/**
+ * The model error (%) of the raster outside the mask fitted by plain least squares (no clipping) with the
+ * surface's terms joined by radial terms of the given powers about a centre, as a function of the centre
+ * (px), with the radial terms' coefficients (the surface's level units, distance over the half-diagonal):
+ * the cells and the rest of the design are set up once, so a search over centres costs one small solve
+ * per centre. `outerShare` gives, for a centre, the share of the fall in squared residual (against the
+ * surface without the radial terms, on the same cells) that comes from cells at least `outer`
+ * half-diagonals from it.
+ */
+export function radialCentreError(
+  work: WorkRaster,
+  mask: Uint8Array | null,
+  opts: BackgroundOptions,
+  noisePct: number,
+  tileGrid: [number, number] | null,
+  powers: number[],
+): { at: (x: number, y: number) => { error: number; coef: number[] }; outerShare: (x: number, y: number, outer: number) => number } {
+  const plain = { ...opts, clipSigma: Infinity };
+  const { T, F, cells } = setUpFit(work, mask, plain, noisePct, tileGrid, false, null, { x: 0, y: 0, powers });
+  // the centre's own terms come last among the radial ones (after the raster's roll-off, if any)
+  const first = T.nRadial - powers.length;
+  const col = T.nBase + T.bumpList.length;
+  const solveAt = (x: number, y: number): Float64Array => {
+    for (let t = first; t < T.nRadial; t++) {
+      T.radialX[t] = x;
+      T.radialY[t] = y;
+    }
+    for (let c = 0; c < cells.n; c++) {
+      for (let t = first; t < T.nRadial; t++) F.design[c * T.nTerms + col + t] = radialAt(T, cells.x[c], cells.y[c], t);
+    }
+    return solveWeighted(F.design, T.nTerms, cells, F.clipped);
+  };
+  return {
+    at: (x, y) => {
+      const coef = solveAt(x, y);
+      return { error: modelError(F, coef), coef: Array.from(coef.subarray(col + first, col + T.nRadial)) };
+    },
+    outerShare: (x, y, outer) => {
+      const coef = solveAt(x, y);
+      const P = setUpFit(work, mask, plain, noisePct, tileGrid, false, null, null);
+      const pc = solveWeighted(P.F.design, P.T.nTerms, P.cells, P.F.clipped);
+      let gainOuter = 0;
+      let gain = 0;
+      for (let k = 0; k < cells.n; k++) {
+        const p1 = predictCell(F.design, T.nTerms, coef, k);
+        const p0 = predictCell(P.F.design, P.T.nTerms, pc, k);
+        if (!(p0 > 0 && p1 > 0)) continue;
+        const g = cells.weight[k] * (((cells.value[k] - p0) / p0) ** 2 - ((cells.value[k] - p1) / p1) ** 2);
+        gain += g;
+        if (Math.hypot(cells.x[k] - x, cells.y[k] - y) * T.radialScale >= outer) gainOuter += g;
+      }
+      return gain > 0 ? gainOuter / gain : 0;
+    },
   };
 }
 
@@ -609,7 +738,12 @@ function evaluateSurface(T: Terms, coef: Float64Array): Float32Array {
   }
   for (let t = 0; t < T.nRadial; t++) {
     const a = coef[T.nBase + T.bumpList.length + t];
-    for (let y = 0; y < h; y++) for (let x = 0; x < w; x++) B[y * w + x] += a * radialAt(T, x, y, t);
+    const s2 = T.radialScale * T.radialScale;
+    const p = T.radialPowers[t];
+    for (let y = 0; y < h; y++) {
+      const dy2 = (y - T.radialY[t]) ** 2;
+      for (let x = 0; x < w; x++) B[y * w + x] += a * radialPower(((x - T.radialX[t]) ** 2 + dy2) * s2, p);
+    }
   }
   return B;
 }

@@ -76,6 +76,24 @@ export interface BackgroundOptions {
    *  flank was lost (first set, seed 1036); so was one with clouds of either sign joined (second set,
    *  seed 1159), and the 25 MP study photo's bright cloud came out 3.7 % instead of 8.9 % */
   jointMinClouds: number;
+  /** lit fields: the surface is joined by a term falling as the 6th power of the distance from a centre
+   *  (found by search) when, fitted after the rounds with the features masked, it leaves a model error
+   *  of at most this share of the polynomial's (default 0.5; 0 = never). A panel whose light holds up
+   *  over the middle and falls steeply into the corners (as the 5th-6th power of the distance) is more
+   *  than an order-4 surface can follow: faint clouds over the plateau and dark specks in the far
+   *  corners (see steepRollOff in analyse.ts). Measured: 0.14-0.50 on 31 of the 90 photos of
+   *  `mura-accuracy.js --smooth=steep` (the rest, mostly falls of the 3rd-4th power, which the
+   *  polynomial follows, or features outweighing the fall, 0.51-1.0); 0.57 and more on the 180 photos
+   *  of the usual first and second sets where the term falls */
+  steepRollOffMaxRatio: number;
+  /** ...and only when at least this share of what the term gains (fall in squared residual) comes from
+   *  the cells at least 0.75 of the half-diagonal from its centre, where a steep roll-off lives (default
+   *  0.5: most of it). A large bright cloud near the middle, its flanks beyond its mask, gains nearly as
+   *  much from the term, but nearer its centre: a 188 mm cloud of +6 % on a 600 x 340 mm panel
+   *  (test/mura/large-clouds.test.ts) 0.39 at a ratio of 0.44, and carried, the term took its flanks
+   *  (mean contrast 1.98 % for 4.33 %). Generated steep roll-offs: 0.39-0.84; the five under 0.5 are
+   *  left to the polynomial, and four of them keep a faint cloud over the plateau (SEMU 1.3-1.8) */
+  steepRollOffMinOuterShare: number;
 }
 
 export interface MuraOptions {
@@ -201,6 +219,8 @@ export function resolveMuraOptions(input: MuraOptionsInput): MuraOptions {
     rollOffMaxErrorRatio: 1,
     blackCheckOrder: 4,
     jointMinClouds: 2,
+    steepRollOffMaxRatio: 0.5,
+    steepRollOffMinOuterShare: 0.5,
     ...stripUndefined(input.background ?? {}),
   };
   const o: MuraOptions = {
@@ -289,6 +309,8 @@ function validate(o: MuraOptions): void {
   if (!(b.rollOffMaxErrorRatio >= 0)) bad(`background.rollOffMaxErrorRatio must be 0 or more, got ${b.rollOffMaxErrorRatio}`);
   if (!(Number.isInteger(b.blackCheckOrder) && b.blackCheckOrder >= 0 && b.blackCheckOrder <= 6)) bad(`background.blackCheckOrder must be an integer 0..6, got ${b.blackCheckOrder}`);
   if (!(Number.isInteger(b.jointMinClouds) && b.jointMinClouds >= 0)) bad(`background.jointMinClouds must be a whole number 0 or more, got ${b.jointMinClouds}`);
+  if (!(b.steepRollOffMinOuterShare >= 0 && b.steepRollOffMinOuterShare <= 1)) bad(`background.steepRollOffMinOuterShare must be 0..1, got ${b.steepRollOffMinOuterShare}`);
+  if (!(b.steepRollOffMaxRatio >= 0 && b.steepRollOffMaxRatio <= 1)) bad(`background.steepRollOffMaxRatio must be 0..1, got ${b.steepRollOffMaxRatio}`);
   if (!(b.rollOffMaxShare >= 0 && b.rollOffMaxShare <= 1)) bad(`background.rollOffMaxShare must be 0..1, got ${b.rollOffMaxShare}`);
   if (o.tileGrid !== null) {
     const [c, r] = o.tileGrid;
