@@ -120,7 +120,7 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
     `polynomial surface of order ${fit.order} (Legendre terms)` +
     (steep
       ? ` joined by a fall as the 6th power of the distance from a centre at ${round((100 * (steep.centre.x + 0.5)) / work.w, 1)} % of the width and ${round((100 * (steep.centre.y + 0.5)) / work.h, 1)} % of the height` +
-        ` (the panel's light holds up over the middle and falls steeply into the corners, more steeply than the polynomial can follow: model error over the whole panel ${round(steep.errPolynomial, 3)} % without these terms, ${round(steep.errRollOff, 3)} % with them)`
+        ` (the panel's light holds up over the middle and falls steeply into the corners, more steeply than the polynomial can follow: model error over the panel outside the features ${round(steep.errPolynomial, 3)} % without this term, ${round(steep.errRollOff, 3)} % with it)`
       : '') +
     ` fitted robustly on ${round(fit.cellPx * work.mmPerPx, 2)} mm cells; ` +
     `${round(maskedPct, 1)} % of the panel masked as features; model error ${round(fit.fitErrorPct, 3)} %` +
