@@ -417,16 +417,20 @@ interface SetUp {
   cellPx: number;
 }
 
-function setUpFit(
-  work: WorkRaster,
-  mask: Uint8Array | null,
-  opts: BackgroundOptions,
-  noisePct: number,
-  tileGrid: [number, number] | null,
-  brightOnly: boolean,
-  bumps: { list: Bump[]; level: Float32Array; maxSigma: number } | null,
-  radial: { x: number; y: number; powers?: number[] } | null,
-): SetUp {
+/** Gaussian bumps a fit carries: their shapes, the level they are scaled by, the widest sigma (px). */
+interface BumpSet {
+  list: Bump[];
+  level: Float32Array;
+  maxSigma: number;
+}
+
+/** Radial terms a fit adds about a centre (px); powers SHARP_ROLL_OFF_POWERS unless given. */
+type RadialSpec = { x: number; y: number; powers?: number[] };
+
+/** A fit's shared arguments, as fitBackground takes them. */
+type FitArgs = [work: WorkRaster, mask: Uint8Array | null, opts: BackgroundOptions, noisePct: number, tileGrid: [number, number] | null, brightOnly: boolean];
+
+function setUpFit(...[work, mask, opts, noisePct, tileGrid, brightOnly, bumps, radial]: [...FitArgs, BumpSet | null, RadialSpec | null]): SetUp {
   const { w, h } = work;
   const longMm = Math.max(w, h) * work.mmPerPx;
   const cellMm = opts.cellMm ?? longMm / 80;
@@ -552,8 +556,8 @@ export function fitBackground(
   noisePct: number,
   tileGrid: [number, number] | null,
   brightOnly: boolean,
-  bumps: { list: Bump[]; level: Float32Array; maxSigma: number } | null = null,
-  radial: { x: number; y: number; powers?: number[] } | null = null,
+  bumps: BumpSet | null = null,
+  radial: RadialSpec | null = null,
   surface = true,
 ): BackgroundFit {
   const { w, h } = work;
