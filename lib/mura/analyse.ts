@@ -149,7 +149,6 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
     modelErrorRollOffPct: round(d.errRadial, 4),
     modelErrorCloudPct: round(d.errCloud, 4),
   }));
-
   return {
     blobs,
     leftOut,
@@ -647,44 +646,23 @@ function confirmOnBlack(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, mask: Ui
   return dropped;
 }
 
-/** Where the surface peaks (iHi) and dips (iLo) on the panel, and its fall (max - min) / max; iHi -1
- *  when it has no positive peak. */
-function surfaceFall(B: Float32Array, work: WorkRaster): { iHi: number; iLo: number; range: number } {
-  let hi = -Infinity;
-  let lo = Infinity;
-  let iHi = -1;
-  let iLo = -1;
-  for (let i = 0; i < B.length; i++) {
-    if (!(work.wt[i] > 0)) continue;
-    const b = B[i];
-    if (b > hi) {
-      hi = b;
-      iHi = i;
-    }
-    if (b < lo) {
-      lo = b;
-      iLo = i;
-    }
-  }
-  if (!(hi > 0)) return { iHi: -1, iLo: -1, range: 0 };
-  return { iHi, iLo, range: (hi - lo) / hi };
-}
-
 /**
  * Lit fields: whether the panel's light holds up over the middle and falls steeply into the corners (as
  * the 5th-6th power of the distance from a centre, as a panel or a lens left uncorrected may), more
  * steeply than an order-4 surface can follow. Such a surface passes under the plateau, leaving a faint
  * cloud of 1-2 % about the centre, and above the far corners, whose last centimetres read as dark spots
  * of 2-3 % (generated clean fields with 15-40 % corner loss); a real cloud on the plateau is measured
- * against a bump that takes the plateau's shortfall for its own (+4 % read as +16 %). Tested on the whole
- * panel before the features are found: the polynomial joined by FLAT_ROLL_OFF_POWERS about the centre
- * rollOffCentre finds, against the polynomial alone, both fitted by plain least squares (clipping leaves
- * out other cells for each, so the two errors would not measure the same cells: with it, terms about a
- * centre a little off made the error larger); taken when its model error is at most
- * background.steepRollOffMaxRatio of the polynomial's. The radial terms are symmetric about the centre
- * and nearly flat within half the half-diagonal of it, so they follow a fall all corners share, but
- * neither a blemish in one corner nor
- * a cloud in the middle. Returns the centre (working px) and the two model errors, or null.
+ * against a bump that takes the plateau's shortfall for its own (+4 % read as +16 %). Tested after the
+ * rounds, with their mask: the polynomial joined by FLAT_ROLL_OFF_POWERS about the centre rollOffCentre
+ * finds, against the polynomial alone, both fitted by plain least squares (clipping leaves out other
+ * cells for each, so the two errors would not measure the same cells: with it, terms about a centre a
+ * little off made the error larger). Taken when the term falls from the centre, its model error is at
+ * most background.steepRollOffMaxRatio of the polynomial's, and at least
+ * background.steepRollOffMinOuterShare of what it gains comes from the cells beyond ROLL_OFF_OUTER of
+ * the half-diagonal from its centre (a large cloud's flanks beyond its mask gain it nearer the middle).
+ * The term is symmetric about the centre and nearly flat within half the half-diagonal of it, so it
+ * follows a fall all corners share, but neither a blemish in one corner nor a cloud in the middle.
+ * Returns the centre (working px) and the two model errors, or null.
  */
 function steepRollOff(work: WorkRaster, mask: Uint8Array | null, opts: MuraOptions, noisePct: number): { centre: { x: number; y: number }; errPolynomial: number; errRollOff: number } | null {
   const { k, raster, mask: cMask } = coarseOf(work, mask);
@@ -826,8 +804,24 @@ function findAgain(ctx: Ctx, coarse: WorkRaster, fit2: BackgroundFit, edges: Ret
  */
 function dropRollOffClouds(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, opts: MuraOptions): { f: Found; errRadial: number; errCloud: number }[] {
   // where the surface peaks and dips inside the panel, and how far it falls
-  const { iHi, iLo, range } = surfaceFall(fit.B, work);
-  if (iHi < 0) return [];
+  let hi = -Infinity;
+  let lo = Infinity;
+  let iHi = -1;
+  let iLo = -1;
+  for (let i = 0; i < fit.B.length; i++) {
+    if (!(work.wt[i] > 0)) continue;
+    const b = fit.B[i];
+    if (b > hi) {
+      hi = b;
+      iHi = i;
+    }
+    if (b < lo) {
+      lo = b;
+      iLo = i;
+    }
+  }
+  if (!(hi > 0) || iHi < 0) return [];
+  const range = (hi - lo) / hi;
   const inside = (i: number): boolean => {
     const x = i % work.w;
     const y = (i - x) / work.w;
