@@ -190,7 +190,8 @@ export interface MuraResult {
   leftOut?: LeftOutFinding[];
   /** the panel's steep roll-off the background carried (a plateau falling steeply into the corners),
    *  or null when it carried none (absent in results written before it): its centre as fractions of the
-   *  panel's width and height, and the model error (%) over the whole panel without and with it */
+   *  panel's width and height, and the model error (%) over the panel outside the features without and
+   *  with it */
   steepRollOff?: { centreU: number; centreV: number; modelErrorPolynomialPct: number; modelErrorRollOffPct: number } | null;
   /** map pixels per pixel of the raster the mura analysis ran on (1 = the map itself) */
   workScale?: number;

@@ -669,8 +669,8 @@ function steepRollOff(work: WorkRaster, mask: Uint8Array | null, opts: MuraOptio
   const noise = noisePct / k;
   // cells twice the rounds' size: the fall is broad, and the search fits once per centre
   const bg = { ...opts.background, cellMm: (opts.background.cellMm ?? (Math.max(raster.w, raster.h) * raster.mmPerPx) / 80) * 2 };
-  const errPolynomial = fitBackground(raster, cMask, { ...bg, clipSigma: Infinity }, noise, opts.tileGrid, false, null, null, false).fitErrorPct;
   const search = radialCentreError(raster, cMask, bg, noise, opts.tileGrid, FLAT_ROLL_OFF_POWERS);
+  const errPolynomial = search.polynomialError;
   const found = rollOffCentre(raster, search.at);
   const outer = search.outerShare(found.x, found.y, ROLL_OFF_OUTER);
   if (process.env.MURA_DBG) {

@@ -660,9 +660,9 @@ function modelError(F: Fitting, coef: Float64Array): number {
  * surface's terms joined by radial terms of the given powers about a centre, as a function of the centre
  * (px), with the radial terms' coefficients (the surface's level units, distance over the half-diagonal):
  * the cells and the rest of the design are set up once, so a search over centres costs one small solve
- * per centre. `outerShare` gives, for a centre, the share of the fall in squared residual (against the
- * surface without the radial terms, on the same cells) that comes from cells at least `outer`
- * half-diagonals from it.
+ * per centre. `polynomialError` is the model error of the surface without the radial terms on the same
+ * cells; `outerShare` gives, for a centre, the share of the fall in squared residual against it that
+ * comes from cells at least `outer` half-diagonals from the centre.
  */
 export function radialCentreError(
   work: WorkRaster,
@@ -671,9 +671,12 @@ export function radialCentreError(
   noisePct: number,
   tileGrid: [number, number] | null,
   powers: number[],
-): { at: (x: number, y: number) => { error: number; coef: number[] }; outerShare: (x: number, y: number, outer: number) => number } {
+): { polynomialError: number; at: (x: number, y: number) => { error: number; coef: number[] }; outerShare: (x: number, y: number, outer: number) => number } {
   const plain = { ...opts, clipSigma: Infinity };
   const { T, F, cells } = setUpFit(work, mask, plain, noisePct, tileGrid, false, null, { x: 0, y: 0, powers });
+  // the surface without the radial terms, on the same cells
+  const P = setUpFit(work, mask, plain, noisePct, tileGrid, false, null, null);
+  const pc = solveWeighted(P.F.design, P.T.nTerms, P.cells, P.F.clipped);
   // the centre's own terms come last among the radial ones (after the raster's roll-off, if any)
   const first = T.nRadial - powers.length;
   const col = T.nBase + T.bumpList.length;
@@ -688,14 +691,13 @@ export function radialCentreError(
     return solveWeighted(F.design, T.nTerms, cells, F.clipped);
   };
   return {
+    polynomialError: modelError(P.F, pc),
     at: (x, y) => {
       const coef = solveAt(x, y);
       return { error: modelError(F, coef), coef: Array.from(coef.subarray(col + first, col + T.nRadial)) };
     },
     outerShare: (x, y, outer) => {
       const coef = solveAt(x, y);
-      const P = setUpFit(work, mask, plain, noisePct, tileGrid, false, null, null);
-      const pc = solveWeighted(P.F.design, P.T.nTerms, P.cells, P.F.clipped);
       let gainOuter = 0;
       let gain = 0;
       for (let k = 0; k < cells.n; k++) {

@@ -1,9 +1,10 @@
 // A plateau falling steeply into the corners (as the 5th-6th power of the distance from its centre) is
 // smooth variation, not mura: issue 4 allows at most 0.2 false findings of SEMU >= 1 per clean photo.
 // An order-4 surface cannot follow such a fall: it leaves a faint cloud over the plateau and dark specks
-// in the far corners, and a real cloud on the plateau is measured against a bump that runs away. The
-// background must carry the roll-off, and real features at its centre or in a corner keep their figures. The truths are analytical: the map's formula (scripts/mura-synth.ts,
-// radial) and the Gaussian's half-peak area and mean (helpers.ts, derived by hand).
+// in the far corners, and a real cloud on the plateau was measured against a bump that took the
+// plateau's shortfall for its own. The background must carry the roll-off, and real features at its
+// centre or in a corner keep their figures. The truths are analytical: the map's formula
+// (scripts/mura-synth.ts, radial) and the Gaussian's half-peak area and mean (helpers.ts, derived by hand).
 import { describe, expect, it } from 'vitest';
 import { analyseMura, resolveMuraOptions, type WorkRaster } from '../../lib/mura/index.js';
 import { FLAT_ROLL_OFF_POWERS, radialCentreError } from '../../lib/mura/background.js';
