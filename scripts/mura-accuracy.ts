@@ -87,6 +87,8 @@ const dir = join(
   '.cache',
   (process.argv.includes('--nominal') ? 'mura-accuracy-nominal' : 'mura-accuracy') +
     (panelMm ? `-panel-${panelMm.width}x${panelMm.height}-${width}x${height}` : '') +
+    // another photo size in its own folder too (the cached photos are reused by name)
+    (!panelMm && (width !== 2400 || height !== 1600) ? `-${width}x${height}` : '') +
     (distortion ? `-distortion-${distortion}` : '') +
     (noNoise ? '-no-noise' : '') +
     (fullWell !== null ? `-full-well-${fullWell}` : '') +
@@ -119,9 +121,11 @@ async function measure(name: string, spec: PhotoSpec): Promise<Measured> {
   const cachedTruth = join(dir, `${name}.truth.json`);
   let file: string;
   let truth: PhotoTruth;
-  if (!process.argv.includes('--render') && existsSync(cached) && existsSync(cachedTruth)) {
+  const reused = !process.argv.includes('--render') && existsSync(cached) && existsSync(cachedTruth) ? (JSON.parse(readFileSync(cachedTruth, 'utf8')) as PhotoTruth) : null;
+  // a cached photo of another size (a folder from before sizes had their own) is drawn again
+  if (reused && reused.image.width === spec.camera.width && reused.image.height === spec.camera.height) {
     file = cached;
-    truth = JSON.parse(readFileSync(cachedTruth, 'utf8')) as PhotoTruth;
+    truth = reused;
   } else {
     const r = await renderPhoto(spec);
     file = join(dir, `${name}.${r.ext}`);
