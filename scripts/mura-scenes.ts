@@ -105,9 +105,18 @@ export function otherSmooth(spec: PhotoSpec, kind: 'steep' | 'hump'): void {
   }
 }
 
-export function blackSpec(seed: number, width: number, height: number, panelMm: { width: number; height: number } | null = null): PhotoSpec {
+/** A black field with one or two edge or corner glows of `glowFactor` times the field at their edge
+ *  (the generator's default 2-20, i.e. 100-1900 %; `--glow=weak` of mura-accuracy draws 1.15-2). */
+export function blackSpec(
+  seed: number,
+  width: number,
+  height: number,
+  panelMm: { width: number; height: number } | null = null,
+  glowFactor: [number, number] | null = null,
+): PhotoSpec {
   const spec = randomScene(seed, {
     ...(panelMm ? { widthMm: panelMm.width, heightMm: panelMm.height } : {}),
+    ...(glowFactor ? { glowFactor } : {}),
     pattern: 'black',
     width,
     height,

@@ -728,7 +728,12 @@ function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number, spotPx:
   } else if (near !== null && sign * near > 0) {
     if (sign * (peak - near) < thr) return null;
     const far = surround(lv, fl.region, fl.gen, 3, 4);
-    if (sign * near > 3 * noise && far !== null && sign * far >= 0.6 * sign * near) {
+    // On black fields (no ring surfaces there) a region against the panel's edge is the top of a glow,
+    // and the ring about it lies on the glow's own tail, which an edge or a corner cuts to a part of a
+    // ring: the tail was taken for a plateau, and a weak corner glow (15-100 % above the field) came out
+    // in two pieces, the top measured above its own tail (see DEVELOPERS.md "Study log", Weak glows).
+    const glowTop = !ringFit && touchesBorder(lv, fl.region);
+    if (!glowTop && sign * near > 3 * noise && far !== null && sign * far >= 0.6 * sign * near) {
       pedestal = near;
       const again = flood(lv, peakIdx, sign, sign * (pedestal + 0.5 * (peak - pedestal)));
       if (!again) return null;
@@ -751,6 +756,20 @@ function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number, spotPx:
     }
   }
   return candidateOf(lv, sign, peak, peakIdx, pedestal, fl.region.sort(), noise, null);
+}
+
+/** Does a region (level px) reach the edge of the level's data, the panel's edge (a pixel of it next to
+ *  one outside the level or without data)? */
+function touchesBorder(lv: Level, region: Int32Array): boolean {
+  const { w, h, n } = lv;
+  for (let k = 0; k < region.length; k++) {
+    const i = region[k];
+    const x = i % w;
+    const y = (i - x) / w;
+    if (x === 0 || y === 0 || x === w - 1 || y === h - 1) return true;
+    if (!(n[i - 1] > 0) || !(n[i + 1] > 0) || !(n[i - w] > 0) || !(n[i + w] > 0)) return true;
+  }
+  return false;
 }
 
 /** A candidate from its half-peak region (sorted level px): centroid, extents, margin over the noise. */

@@ -88,6 +88,36 @@ describe('glow on black fields', () => {
     expect(Math.abs(carried.peakContrastPct - 100) / 100).toBeLessThan(0.15);
   });
 
+  it('finds a weak corner glow as one glow, its peak carried to the corner', () => {
+    // Mild leakage, 20-50 % above the field at the corner (exp(-d / decay), d from the corner), under
+    // 3 % noise per map pixel, the outer 2.5 mm left out as the pipeline does. Its top at the corner
+    // stands on its own tail, which the corner cuts to a quarter ring: taken for a plateau, the glow came
+    // out in two pieces, or as a glow and a spot beside it (6 of these 24 maps). One finding each, the
+    // corner's glow, its peak within issue 4's 25 % of the value drawn at the corner.
+    const cases: [number, number][] = [
+      [12, 30],
+      [23, 50],
+      [18, 20],
+      [15, 40],
+    ];
+    const border = 2.5;
+    for (const [decayMm, contrastPct] of cases) {
+      for (let seed = 1; seed <= 6; seed++) {
+        const map = synthMap({ widthMm: W, heightMm: H, pxPerMm: 2, level: 0.002, noisePct: 3, seed, smooth: [[0, 0.02], [0.03], [-0.05]], features: [{ kind: 'corner-glow', corner: 'bottom-left', decayMm, contrastPct }] });
+        const b = border * map.pxPerMm;
+        for (let y = 0; y < map.height; y++) for (let x = 0; x < map.width; x++) {
+          if (x < b || y < b || x >= map.width - b || y >= map.height - b) map.valid[y * map.width + x] = 0;
+        }
+        const blobs = analyseMura(map, { pattern: 'black', edgeBorderMm: border }).blobs;
+        const what = `decay ${decayMm} mm, ${contrastPct} %, seed ${seed}: ${blobs.map((x) => `${x.kind} ${x.peakContrastPct}`).join(', ')}`;
+        expect(blobs.length, what).toBe(1);
+        expect(blobs[0].kind, what).toBe('corner-glow');
+        expect(blobs[0].detail.corner, what).toBe('bottom-left');
+        expect(Math.abs(blobs[0].peakContrastPct / contrastPct - 1), what).toBeLessThan(0.25);
+      }
+    }
+  });
+
   it('finds a glow patch on part of an edge and a corner glow, each in its place', () => {
     const r = run(
       [
