@@ -15,7 +15,7 @@ export interface Kind {
   detail: Record<string, string | number>;
 }
 
-type Edge = 'top' | 'bottom' | 'left' | 'right';
+export type Edge = 'top' | 'bottom' | 'left' | 'right';
 
 export function classify(ctx: Ctx, f: Found): Kind {
   const o = ctx.opts;

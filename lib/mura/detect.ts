@@ -1171,7 +1171,47 @@ function sortedHas(a: Int32Array, v: number): boolean {
 
 function crossDistance(a: Candidate, b: Candidate): number {
   if (a.vertical !== b.vertical) return Infinity;
+  // ...and only where they are one stretch along the axis: their extents meet, or the map between their
+  // centres does not fall back to the background (joinedBetween). Two glows on one edge, or two
+  // stretches of a line with a clear gap between them, lie on one line too, and were taken for one
+  // feature, the weaker lost (two glows of 40 % on one edge, 80 mm apart: one reported); a strip the
+  // threshold breaks into pieces stays one, and so does a band a feature of the other sign cuts
+  const along = a.vertical ? Math.abs(a.cy - b.cy) : Math.abs(a.cx - b.cx);
+  if (along > 0.5 * (a.major * a.level.f + b.major * b.level.f) && !joinedBetween(a, b)) return Infinity;
   return a.vertical ? Math.abs(a.cx - b.cx) : Math.abs(a.cy - b.cy);
+}
+
+/**
+ * Are two candidates one stretch? On the coarser of their two levels, the signed contrast sampled along
+ * the segment between their centres (a level pixel a step) either stays above half the lower of its two
+ * ends or 3 noise sigmas of the level, or somewhere falls below zero by half the lower end (a feature
+ * of the other sign crossing there).
+ */
+function joinedBetween(a: Candidate, b: Candidate): boolean {
+  const lv = a.level.l >= b.level.l ? a.level : b.level;
+  const { w, h, s, f } = lv;
+  const sign = a.sign;
+  const at = (x: number, y: number): number => {
+    const lx = Math.min(w - 1, Math.max(0, Math.floor((x + 0.5) / f)));
+    const ly = Math.min(h - 1, Math.max(0, Math.floor((y + 0.5) / f)));
+    return sign * s[ly * w + lx];
+  };
+  const va = at(a.cx, a.cy);
+  const vb = at(b.cx, b.cy);
+  if (!(va > 0) || !(vb > 0)) return false;
+  const floor = 0.5 * Math.min(va, vb);
+  const n = Math.max(2, Math.ceil(Math.hypot(b.cx - a.cx, b.cy - a.cy) / f));
+  let low = Infinity;
+  for (let k = 1; k < n; k++) {
+    const v = at(a.cx + ((b.cx - a.cx) * k) / n, a.cy + ((b.cy - a.cy) * k) / n);
+    // (no data there, NaN: the segment leaves the panel's data, not a gap in the feature)
+    if (v < low) low = v;
+  }
+  // Up all the way (above half the lower end, or clearly out of the level's noise, 3 sigmas): one
+  // stretch, which another feature may partly cancel (a band under a cloud of the other sign). Down to
+  // the other sign by half the lower end: such a feature crosses it there, and it is still one. Only a
+  // gap back to the background between them makes two.
+  return low >= Math.min(floor, 3 * lv.noiseS) || low <= -floor;
 }
 
 /**

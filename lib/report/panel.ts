@@ -711,6 +711,7 @@ const DETAIL_WORDS: Record<string, (v: string) => string> = {
   seenPeakPct: (v) => `peak ${v} % where the map begins`,
   carriedToEdgeMm: (v) => `carried across the ${v} mm strip left out along the edges`,
   surroundPct: (v) => `on a surround of ${v} %`,
+  fadingEndSpecks: (v) => `with ${v === '1' ? 'a speck' : `${v} specks`} of its fading end along the edge`,
   belowResolution: (v) =>
     `${v === 'size' ? 'smaller' : 'narrower'} than the photo resolves: its ${v === 'size' ? 'area' : 'width'} is at most the figure given, its contrast and SEMU at least`,
 };

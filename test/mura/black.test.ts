@@ -118,6 +118,46 @@ describe('glow on black fields', () => {
     }
   });
 
+  it('counts a speck of a weak edge glow fading along its edge with the glow', () => {
+    // exp(-x / 6 mm) across, a Gaussian of 70 mm FWHM along the left edge, 20 % at its top, under 1 %
+    // noise per map pixel. Past its half-peak region the glow fades along the edge through the map's
+    // threshold, and a speck of it stood out on its own as a small spot beside the glow (seed 5 of these
+    // 10). One finding each: the edge glow.
+    const border = 2.5;
+    let specks = 0;
+    for (let seed = 1; seed <= 10; seed++) {
+      const map = synthMap({ widthMm: W, heightMm: H, pxPerMm: 2, level: 0.002, noisePct: 1, seed, smooth: [[0, 0.02], [0.03], [-0.05]], features: [{ kind: 'edge-glow', edge: 'left', decayMm: 6, contrastPct: 20, atMm: 75, fwhmAlongMm: 70 }] });
+      const b = border * map.pxPerMm;
+      for (let y = 0; y < map.height; y++) for (let x = 0; x < map.width; x++) {
+        if (x < b || y < b || x >= map.width - b || y >= map.height - b) map.valid[y * map.width + x] = 0;
+      }
+      const blobs = analyseMura(map, { pattern: 'black', edgeBorderMm: border }).blobs;
+      const what = `seed ${seed}: ${blobs.map((x) => `${x.kind} ${x.peakContrastPct} at ${x.xMm}, ${x.yMm}`).join('; ')}`;
+      expect(blobs.length, what).toBe(1);
+      expect(blobs[0].kind, what).toBe('edge-glow');
+      expect(blobs[0].detail.edge, what).toBe('left');
+      specks += Number(blobs[0].detail.fadingEndSpecks ?? 0);
+    }
+    expect(specks).toBeGreaterThan(0);
+  });
+
+  it('reports two glows on one edge, 80 mm apart, each on its own', () => {
+    // two patches on the left edge (exp(-x / 6 mm) across, 30 mm FWHM along), 40 % and 15 % at their
+    // tops, with the bare field between them. Lying on one line along the edge, they were taken for one
+    // feature and the fainter was lost; it is also beyond the brighter one's fading end (half its
+    // half-peak length past the region's end), so it is not counted with it either
+    const r = run(
+      [
+        { kind: 'edge-glow', edge: 'left', decayMm: 6, contrastPct: 40, atMm: 35, fwhmAlongMm: 30 },
+        { kind: 'edge-glow', edge: 'left', decayMm: 6, contrastPct: 15, atMm: 115, fwhmAlongMm: 30 },
+      ],
+      27,
+    );
+    const glows = r.blobs.filter((b) => b.kind === 'edge-glow' && b.detail.edge === 'left');
+    expect(glows.length, r.blobs.map((b) => `${b.kind} ${b.peakContrastPct} at ${b.yMm}`).join('; ')).toBe(2);
+    expect(glows.some((g) => Math.abs(g.yMm - 115) < 10)).toBe(true);
+  });
+
   it('finds a glow patch on part of an edge and a corner glow, each in its place', () => {
     const r = run(
       [
