@@ -3,7 +3,8 @@
 //  - glow (black fields only): bright, its peak on a panel edge (edge glow, "bleed") or in a corner
 //    where two edges meet (corner glow);
 //  - line: elongated (length >= 5 x width) and narrower than lineMaxWidthMm;
-//  - band: elongated (>= 3 x) along an axis, spanning at least bandMinSpan of the panel that way;
+//  - band: elongated (>= 3 x) along an axis, spanning at least bandMinSpan of the panel that way, or
+//    5 x and more along an axis whatever its span (a streak);
 //  - otherwise round: cloud when its half-peak region is at least cloudMinMm across (equivalent
 //    diameter), spot when smaller.
 
@@ -16,6 +17,9 @@ export interface Kind {
 }
 
 export type Edge = 'top' | 'bottom' | 'left' | 'right';
+
+/** Length over width from which a feature along an axis is a band (a line when thin) whatever its span. */
+const SHORT_BAND_ELONGATION = 5;
 
 export function classify(ctx: Ctx, f: Found): Kind {
   const o = ctx.opts;
@@ -30,8 +34,10 @@ export function classify(ctx: Ctx, f: Found): Kind {
     if (elong >= 3 && span >= o.bandMinSpan) {
       return { kind: thin ? 'line' : 'band', detail: { axis, widthMm: round(f.widthMm, 2), lengthMm: round(f.lengthMm, 1) } };
     }
-    if (elong >= 5 && thin) {
-      return { kind: 'line', detail: { axis, widthMm: round(f.widthMm, 2), lengthMm: round(f.lengthMm, 1) } };
+    // a streak along an axis: five times as long as wide is no cloud or spot, however short (a stretch
+    // of 10 x 110 mm on a 400 mm panel had been called a spot 34 mm across)
+    if (elong >= SHORT_BAND_ELONGATION) {
+      return { kind: thin ? 'line' : 'band', detail: { axis, widthMm: round(f.widthMm, 2), lengthMm: round(f.lengthMm, 1) } };
     }
   }
   const diameter = 2 * Math.sqrt(f.areaMm2 / Math.PI);

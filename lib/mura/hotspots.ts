@@ -108,8 +108,9 @@ export function groupHotspots(ctx: Ctx, singles: Finding[], opts: MuraOptions): 
   const medArea = medianOf(members.map((f) => f.areaMm2));
   const zones = members.filter((f) => f.areaMm2 <= 4 * medArea && f.areaMm2 >= medArea / 4);
   if (zones.length < opts.hotspotMinCount) return singles;
-  // (a zone whose centre lies about on the edge keeps a sliver along it: classified a line on its own)
-  const edgeCandidates = singles.filter((f) => f.polarity === 'bright' && (f.kind === 'spot' || f.kind === 'cloud' || f.kind === 'line'));
+  // (a zone whose centre lies about on the edge keeps a sliver along it: classified a line, or a short
+  // band when wider, on its own)
+  const edgeCandidates = singles.filter((f) => f.polarity === 'bright' && (f.kind === 'spot' || f.kind === 'cloud' || f.kind === 'line' || f.kind === 'band'));
   const edgeZones = edgeCandidates.filter((f) => cut(f) && f.areaMm2 <= 4 * medArea && onNode(f.cx * mm, f.cy * mm, 0, 0.4));
   const gaps = singles.filter((f) => f.polarity === 'dark' && f.kind === 'spot' && onNode(f.cx * mm, f.cy * mm, 0.5, 0.25));
   const inArray = new Set<Finding>([...zones, ...edgeZones, ...gaps]);
