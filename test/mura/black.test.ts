@@ -13,14 +13,19 @@ function run(features: SynthFeature[], seed: number, pattern: 'black' | 'gray' =
   return analyseMura(map, { pattern });
 }
 
-/** A glow on a black map whose outer `border` mm are left out (as the pipeline does for the bezel
- *  transition), analysed without and with the strip's width given: its first finding each time. */
-function seenAndCarried(glow: SynthFeature, seed: number, border: number) {
-  const map = synthMap({ widthMm: W, heightMm: H, pxPerMm: 2, level: 0.002, noisePct: 3, seed, smooth: [[0, 0.02], [0.03], [-0.05]], features: [glow] });
+/** A black map whose outer `border` mm are left out, as the pipeline does for the bezel transition. */
+function borderedBlackMap(features: SynthFeature[], seed: number, border: number, noisePct = 3) {
+  const map = synthMap({ widthMm: W, heightMm: H, pxPerMm: 2, level: 0.002, noisePct, seed, smooth: [[0, 0.02], [0.03], [-0.05]], features });
   const b = border * map.pxPerMm;
   for (let y = 0; y < map.height; y++) for (let x = 0; x < map.width; x++) {
     if (x < b || y < b || x >= map.width - b || y >= map.height - b) map.valid[y * map.width + x] = 0;
   }
+  return map;
+}
+
+/** A glow on such a map, analysed without and with the strip's width given: its first finding each time. */
+function seenAndCarried(glow: SynthFeature, seed: number, border: number) {
+  const map = borderedBlackMap([glow], seed, border);
   return { seen: analyseMura(map, { pattern: 'black' }).blobs[0], carried: analyseMura(map, { pattern: 'black', edgeBorderMm: border }).blobs[0] };
 }
 
@@ -103,11 +108,7 @@ describe('glow on black fields', () => {
     const border = 2.5;
     for (const [decayMm, contrastPct] of cases) {
       for (let seed = 1; seed <= 6; seed++) {
-        const map = synthMap({ widthMm: W, heightMm: H, pxPerMm: 2, level: 0.002, noisePct: 3, seed, smooth: [[0, 0.02], [0.03], [-0.05]], features: [{ kind: 'corner-glow', corner: 'bottom-left', decayMm, contrastPct }] });
-        const b = border * map.pxPerMm;
-        for (let y = 0; y < map.height; y++) for (let x = 0; x < map.width; x++) {
-          if (x < b || y < b || x >= map.width - b || y >= map.height - b) map.valid[y * map.width + x] = 0;
-        }
+        const map = borderedBlackMap([{ kind: 'corner-glow', corner: 'bottom-left', decayMm, contrastPct }], seed, border);
         const blobs = analyseMura(map, { pattern: 'black', edgeBorderMm: border }).blobs;
         const what = `decay ${decayMm} mm, ${contrastPct} %, seed ${seed}: ${blobs.map((x) => `${x.kind} ${x.peakContrastPct}`).join(', ')}`;
         expect(blobs.length, what).toBe(1);
@@ -126,11 +127,7 @@ describe('glow on black fields', () => {
     const border = 2.5;
     let specks = 0;
     for (let seed = 1; seed <= 10; seed++) {
-      const map = synthMap({ widthMm: W, heightMm: H, pxPerMm: 2, level: 0.002, noisePct: 1, seed, smooth: [[0, 0.02], [0.03], [-0.05]], features: [{ kind: 'edge-glow', edge: 'left', decayMm: 6, contrastPct: 20, atMm: 75, fwhmAlongMm: 70 }] });
-      const b = border * map.pxPerMm;
-      for (let y = 0; y < map.height; y++) for (let x = 0; x < map.width; x++) {
-        if (x < b || y < b || x >= map.width - b || y >= map.height - b) map.valid[y * map.width + x] = 0;
-      }
+      const map = borderedBlackMap([{ kind: 'edge-glow', edge: 'left', decayMm: 6, contrastPct: 20, atMm: 75, fwhmAlongMm: 70 }], seed, border, 1);
       const blobs = analyseMura(map, { pattern: 'black', edgeBorderMm: border }).blobs;
       const what = `seed ${seed}: ${blobs.map((x) => `${x.kind} ${x.peakContrastPct} at ${x.xMm}, ${x.yMm}`).join('; ')}`;
       expect(blobs.length, what).toBe(1);
