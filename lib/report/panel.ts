@@ -778,10 +778,15 @@ function drawMura(ctx: Ctx, p: PreparedPhoto): void {
     { header: 'SEMU', width: PAGE.contentWidth - 471, align: 'right' },
   ];
   const opts = { size: 7.6, keepRows: 3 };
+  // the table's key goes above it, with its start: below it, a table ending at the foot of a page left
+  // the key alone on the next one
+  const key = 'Contrast is the signed mean over the half-peak region (negative = darker than the background). Blobs are numbered in order of SEMU, as in the reasons.';
+  const keyStyle = { size: 7, colour: MUTED, after: 4 };
+  const keyH = measure(doc, key, PAGE.contentWidth, { size: 7 }) + 4;
   // keep the heading, the map and the start of its table together when they fit on one page
   const introH = measure(doc, intro, PAGE.contentWidth, { size: 8 }) + 6;
   const mapH = block ? mapBlockHeight(doc, block) : 0;
-  const tableH = rows.length > 0 ? tableHeight(doc, columns, rows, opts) + 6 : 20;
+  const tableH = rows.length > 0 ? keyH + tableHeight(doc, columns, rows, opts) + 6 : 20;
   const together = introH + mapH + tableH;
   flow.heading('Mura', 2, together + 40 <= PAGE.bottom - PAGE.top ? together : introH + mapH);
   flow.text(intro, { size: 8, after: 6 });
@@ -789,12 +794,9 @@ function drawMura(ctx: Ctx, p: PreparedPhoto): void {
   if (ph.blobs.length === 0) {
     flow.text('No mura was found above the detection threshold.', { size: 9, after: 6 });
   } else {
+    flow.ensure(keyH + tableHeight(doc, columns, rows, opts));
+    flow.text(key, keyStyle);
     drawTable(flow, columns, rows, opts);
-    flow.text('Contrast is the signed mean over the half-peak region (negative = darker than the background). Blobs are numbered in order of SEMU, as in the reasons.', {
-      size: 7,
-      colour: MUTED,
-      after: 6,
-    });
   }
   for (const t of leftOutLines(m.leftOut ?? [])) flow.text(t, { size: 7.6, after: 4 });
 }
