@@ -123,7 +123,8 @@ describe('glow on black fields', () => {
     // exp(-x / 6 mm) across, a Gaussian of 70 mm FWHM along the left edge, 20 % at its top, under 1 %
     // noise per map pixel. Past its half-peak region the glow fades along the edge through the map's
     // threshold, and a speck of it stood out on its own as a small spot beside the glow (seed 5 of these
-    // 10). One finding each: the edge glow.
+    // 10). One finding each: the edge glow (one glow drawn, from the map's own formula; common practice
+    // that its fading end is part of it).
     const border = 2.5;
     let specks = 0;
     for (let seed = 1; seed <= 10; seed++) {
@@ -142,7 +143,8 @@ describe('glow on black fields', () => {
     // two patches on the left edge (exp(-x / 6 mm) across, 30 mm FWHM along), 40 % and 15 % at their
     // tops, with the bare field between them. Lying on one line along the edge, they were taken for one
     // feature and the fainter was lost; it is also beyond the brighter one's fading end (half its
-    // half-peak length past the region's end), so it is not counted with it either
+    // half-peak length past the region's end), so it is not counted with it either. Places from the
+    // map's own formula; two patches with the bare field between them are two findings (common practice)
     const r = run(
       [
         { kind: 'edge-glow', edge: 'left', decayMm: 6, contrastPct: 40, atMm: 35, fwhmAlongMm: 30 },
