@@ -31,6 +31,7 @@ export function graySpec(
   panelMm: { width: number; height: number } | null = null,
   varied = false,
   lines = false,
+  edges = false,
 ): PhotoSpec {
   const spec = randomScene(seed, {
     ...(panelMm ? { widthMm: panelMm.width, heightMm: panelMm.height } : {}),
@@ -55,6 +56,7 @@ export function graySpec(
     if (varied) varyShape(f, shapeRng);
     if (f.kind === 'cloud' && cloudSizes === 'half-peak') sizeCloud(spec, i, f.sizeMm);
   });
+  if (edges) toEdges(spec, new Rng(seed * 6007 + 11));
   return spec;
 }
 
@@ -79,6 +81,29 @@ function varyShape(f: FeatureSpec, rng: Rng): void {
       const from = rng.uniform(0, 0.3);
       f.from = from;
       f.to = Math.min(1, from + rng.uniform(0.45, 1));
+    }
+  }
+}
+
+/**
+ * The same scene with its features moved against the panel's edges (`edges`): a spot's or cloud's centre
+ * 2-12 % of the panel from one edge (the other coordinate 15-85 %), or, one time in three, from two edges
+ * (a corner); a band's 3-12 % from an edge. Clouds keep the envelope sized where they were drawn, so one
+ * cut by the edge has a smaller half-peak region (the truth is taken inside the panel). Mura at the border
+ * is common on real panels (edge-lit backlights, frame pressure) and where a whole-panel surface fit is
+ * least constrained.
+ */
+function toEdges(spec: PhotoSpec, rng: Rng): void {
+  const near = () => (rng.next() < 0.5 ? rng.uniform(0.02, 0.12) : rng.uniform(0.88, 0.98));
+  for (const f of spec.panel.features ?? []) {
+    if (f.kind === 'spot' || f.kind === 'cloud') {
+      if (rng.next() < 1 / 3) {
+        f.u = near();
+        f.v = near();
+      } else if (rng.next() < 0.5) f.u = near();
+      else f.v = near();
+    } else if (f.kind === 'band') {
+      f.position = rng.next() < 0.5 ? rng.uniform(0.03, 0.12) : rng.uniform(0.88, 0.97);
     }
   }
 }
