@@ -8,7 +8,7 @@
 import { EvenfieldError } from '../errors.js';
 import type { Blob, LeftOutFinding, MuraResult, PanelMap, Plane } from '../types.js';
 import { bumpDistance2, fitBackground, FLAT_ROLL_OFF_POWERS, radialCentreError, SHARP_ROLL_OFF_POWERS, type BackgroundFit, type Bump, type WorkRaster } from './background.js';
-import { buildLevels, codingFloorPct, detectFeatures, noiseCorrelation } from './detect.js';
+import { addQuadratic, buildLevels, codingFloorPct, detectFeatures, noiseCorrelation, quadTerms, solve6 } from './detect.js';
 import { classify, round } from './classify.js';
 import type { Edge } from './classify.js';
 import { panelEdges, register, type Ctx, type Found } from './context.js';
@@ -70,6 +70,7 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
   }
   // clouds the joint fit carried are measured against it already
   const remeasured = jointBumps > 0 ? 0 : remeasureLargeClouds(ctx, work, fit, mask, opts);
+  const atEdge = remeasureEdgeFeatures(ctx, work, fit, opts);
   const droppedClouds = dropRollOffClouds(ctx, work, fit, opts);
   // after the roll-off test, which masks the other findings in its fits
   const unconfirmed = black ? confirmOnBlack(ctx, work, fit, mask, opts) : 0;
@@ -132,6 +133,9 @@ export function analyseMura(map: PanelMap, input: MuraOptionsInput): MuraAnalysi
       : '') +
     (remeasured
       ? `; ${remeasured} large cloud${remeasured > 1 ? 's' : ''} measured against a surface fitted together with a Gaussian bump of ${remeasured > 1 ? 'their' : 'its'} size (the map shows the common surface)`
+      : '') +
+    (atEdge
+      ? `; ${atEdge} feature${atEdge > 1 ? 's' : ''} at the panel's edge measured against a quadratic fitted over a ring around ${atEdge > 1 ? 'them' : 'it'} (the whole-panel surface bends towards a feature there)`
       : '') +
     (rollOff
       ? `; ${rollOff} faint cloud${rollOff > 1 ? 's' : ''} on the surface's peak or dip left out: a radial roll-off about ${rollOff > 1 ? 'them' : 'it'} explained ${rollOff > 1 ? 'them' : 'it'} (a profile sharper or flatter than the polynomial can follow)`
@@ -423,8 +427,7 @@ function featureMask(ctx: Ctx, opts: MuraOptions): Uint8Array {
   // would keep the surface from ever reaching there. A true feature there is still found, partly
   // absorbed. On black fields glow is at the edges by nature and is masked like any feature.
   // A band or line across the panel touches two edges by nature and is masked like any feature.
-  const half = (f: Found): number =>
-    (f.lengthMm < 2 * f.widthMm ? Math.sqrt(f.areaMm2 / Math.PI) : f.widthMm / 2) / ctx.mmPerPx;
+  const half = (f: Found): number => halfSize(f, ctx.mmPerPx);
   const spans = (f: Found): boolean => (f.bbox[2] - f.bbox[0]) >= ACROSS_SPAN * w || (f.bbox[3] - f.bbox[1]) >= ACROSS_SPAN * h;
   // (a band running along the panel's edge, touching it along its length, is the surface missing that edge)
   const alongEdge = (f: Found): boolean =>
@@ -540,6 +543,125 @@ function remeasureLargeClouds(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, ma
     }
   }
   return count;
+}
+
+/**
+ * Round features at the panel's edge measured again against a local surface.
+ *
+ * The whole-panel polynomial has the least support at the panel's edges, where its higher terms are
+ * freest: a cloud reaching an edge pulls it up (down for a dark one) whether the cloud is masked (the
+ * surface then extrapolates into the masked part of the edge, following the flanks left outside the
+ * mask) or not (left in the fit, as featureMask leaves edge findings), and 20-55 % of its contrast went
+ * into the surface (study scenes with the features moved against the edges, `mura-accuracy.js --edges`).
+ * Each round feature (spot or cloud) of SEMU background.edgeRingMinSemu and more, centred within 1.5 of its
+ * radii of an edge, is measured again against a quadratic of the luminance fitted over a ring
+ * background.edgeRingInner to background.edgeRingOuter of its radii around it, with the other features
+ * kept out of the ring to twice their half-size: along an edge the ring holds the panel on both sides
+ * of the feature, so the level under it is interpolated along the edge rather than extrapolated across
+ * it. The new figures replace the old only when the quadratic fits the ring (no sector of it off by
+ * more than background.edgeRingMaxLack of the feature's contrast), the region found again is the same
+ * feature (it holds the old peak or centroid and no other feature's peak) and it shows more of the
+ * feature than the whole-panel surface did, which is what the absorption predicts (a smaller figure is
+ * more likely the quadratic missing the roll-off across a wide ring). Lit fields only: on black ones
+ * the edges hold the glow. Returns how many were replaced.
+ */
+function remeasureEdgeFeatures(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, opts: MuraOptions): number {
+  const o = opts.background;
+  if (ctx.black || o.edgeRingInner <= 0) return 0;
+  const todo = ctx.found.map((f, index) => ({ f, index })).filter(({ f }) => nearEdge(ctx, f, o.edgeRingMinSemu, opts));
+  if (todo.length === 0) return 0;
+  const { k, raster: coarse, edges } = coarseOf(work, null);
+  const level = k === 1 ? fit.B : coarsenedPlane(fit.B, work.w, work.h, k);
+  // a working-raster point (px) as a coarse pixel index
+  const at = (x: number, y: number): number =>
+    Math.min(coarse.h - 1, Math.max(0, Math.round((y + 0.5) / k - 0.5))) * coarse.w + Math.min(coarse.w - 1, Math.max(0, Math.round((x + 0.5) / k - 0.5)));
+  const A = new Float64Array(36);
+  const b = new Float64Array(6);
+  const t = new Float64Array(6);
+  let count = 0;
+  for (const { f, index } of todo) {
+    const others = new Uint8Array(work.w * work.h);
+    for (const g of ctx.found) if (g !== f) dilateInto(others, ctx, g, 2 * halfSize(g, ctx.mmPerPx));
+    const om = k === 1 ? others : coarsenedMask(others, work.w, work.h, k);
+    const cx = (f.cx + 0.5) / k - 0.5;
+    const cy = (f.cy + 0.5) / k - 0.5;
+    const rho = o.edgeRingInner * (Math.sqrt(f.areaMm2 / Math.PI) / coarse.mmPerPx);
+    const rOut = o.edgeRingOuter * (rho / o.edgeRingInner);
+    const x0 = Math.max(0, Math.floor(cx - rOut));
+    const x1 = Math.min(coarse.w - 1, Math.ceil(cx + rOut));
+    const y0 = Math.max(0, Math.floor(cy - rOut));
+    const y1 = Math.min(coarse.h - 1, Math.ceil(cy + rOut));
+    const inRing = (x: number, y: number, i: number): boolean => {
+      const d = Math.hypot(x - cx, y - cy);
+      return d >= rho && d <= rOut && coarse.wt[i] > 0.5 && !om[i];
+    };
+    A.fill(0);
+    b.fill(0);
+    let n = 0;
+    for (let y = y0; y <= y1; y++) {
+      for (let x = x0; x <= x1; x++) {
+        const i = y * coarse.w + x;
+        if (!inRing(x, y, i)) continue;
+        addQuadratic(A, b, t, (x - cx) / rho, (y - cy) / rho, coarse.Y[i]);
+        n++;
+      }
+    }
+    const c = n >= EDGE_RING_MIN_SAMPLES ? solve6(A, b) : null;
+    if (!c) continue;
+    const q = (x: number, y: number): number => {
+      quadTerms(t, (x - cx) / rho, (y - cy) / rho);
+      let v = 0;
+      for (let j = 0; j < 6; j++) v += c[j] * t[j];
+      return v;
+    };
+    // lack of fit: the ring's mean relative residual in 12 sectors x 2 radial halves (pixel noise averages out)
+    const secSum = new Float64Array(24);
+    const secN = new Float64Array(24);
+    for (let y = y0; y <= y1; y++) {
+      for (let x = x0; x <= x1; x++) {
+        const i = y * coarse.w + x;
+        if (!inRing(x, y, i)) continue;
+        const qq = q(x, y);
+        const sector = Math.min(11, Math.floor(((Math.atan2(y - cy, x - cx) + Math.PI) / (2 * Math.PI)) * 12));
+        const s = 2 * sector + (Math.hypot(x - cx, y - cy) > 0.5 * (rho + rOut) ? 1 : 0);
+        secSum[s] += (100 * (coarse.Y[i] - qq)) / qq;
+        secN[s]++;
+      }
+    }
+    let lack = 0;
+    for (let j = 0; j < 24; j++) if (secN[j] >= 20) lack = Math.max(lack, Math.abs(secSum[j] / secN[j]));
+    const B2 = Float32Array.from(level);
+    for (let y = y0; y <= y1; y++) for (let x = x0; x <= x1; x++) if (Math.hypot(x - cx, y - cy) <= rOut) B2[y * coarse.w + x] = q(x, y);
+    const best = findAgain(ctx, coarse, { ...fit, B: B2 }, edges, f, (f.px + 0.5) / k - 0.5, (f.py + 0.5) / k - 0.5, 1, [cx, cy]);
+    if (process.env.MURA_DBG) {
+      console.log(`  edge ring x${k} (${(cx * coarse.mmPerPx).toFixed(0)},${(cy * coarse.mmPerPx).toFixed(0)}) inner ${(rho * coarse.mmPerPx).toFixed(0)} mm, ${n} px, lack ${lack.toFixed(3)} % -> ${best ? `A ${best.areaMm2.toFixed(0)} C ${best.contrastPct.toFixed(3)}` : 'not found'} (was A ${f.areaMm2.toFixed(0)} C ${f.contrastPct.toFixed(3)})`);
+    }
+    if (!best || lack > o.edgeRingMaxLack * Math.abs(best.contrastPct)) continue;
+    const own = new Set(best.pixels);
+    if (!own.has(at(f.px, f.py)) && !own.has(at(f.cx, f.cy))) continue;
+    if (ctx.found.some((g) => g !== f && own.has(at(g.px, g.py)))) continue;
+    if (Math.abs(best.contrastPct) < Math.abs(f.contrastPct)) continue;
+    ctx.found[index] = k === 1 ? best : refined(best, k, work.w, work.h, coarse.w);
+    count++;
+  }
+  return count;
+}
+
+/** Fewest ring pixels (coarse raster) a local surface of remeasureEdgeFeatures is fitted on. */
+const EDGE_RING_MIN_SAMPLES = 200;
+
+/** Half a finding's size (px): its equivalent radius when round, half its width when elongated. */
+function halfSize(f: Found, mmPerPx: number): number {
+  return (f.lengthMm < 2 * f.widthMm ? Math.sqrt(f.areaMm2 / Math.PI) : f.widthMm / 2) / mmPerPx;
+}
+
+/** A round finding (spot or cloud) of at least minSemu whose peak lies within 1.5 of its equivalent
+ *  radii of the panel's edge (remeasureEdgeFeatures). */
+function nearEdge(ctx: Ctx, f: Found, minSemu: number, opts: MuraOptions): boolean {
+  if (f.source !== 'blob' || f.lengthMm >= 2 * f.widthMm) return false;
+  if (semu(f.contrastPct, f.areaMm2, opts.semuConstants) < minSemu) return false;
+  const r = Math.sqrt(f.areaMm2 / Math.PI) / ctx.mmPerPx;
+  return Math.min(f.px, f.py, ctx.w - 1 - f.px, ctx.h - 1 - f.py) < 1.5 * r;
 }
 
 /** Joint fits: the second starts from the clouds the first found again (their sizes and places against
@@ -751,7 +873,7 @@ function coarseOf(work: WorkRaster, mask: Uint8Array | null): Coarse {
  * Search the coarse raster's contrast against `fit2` for the feature `f` (same polarity, a blob, its
  * centre within half its equivalent radius of (cx, cy), coarse pixels); the strongest such, or null.
  */
-function findAgain(ctx: Ctx, coarse: WorkRaster, fit2: BackgroundFit, edges: ReturnType<typeof panelEdges>, f: Found, cx: number, cy: number): Found | null {
+function findAgain(ctx: Ctx, coarse: WorkRaster, fit2: BackgroundFit, edges: ReturnType<typeof panelEdges>, f: Found, cx: number, cy: number, reach = 0.5, centroid: [number, number] | null = null): Found | null {
   const opts = ctx.opts;
   const C2 = contrastOf(coarse, fit2);
   const Cdet = opts.tileGrid ? withoutTileSteps(C2, coarse, fit2, opts.tileGrid) : C2;
@@ -776,7 +898,8 @@ function findAgain(ctx: Ctx, coarse: WorkRaster, fit2: BackgroundFit, edges: Ret
   const r = Math.sqrt(f.areaMm2 / Math.PI) / coarse.mmPerPx;
   let best: Found | null = null;
   for (const g of ctx2.found) {
-    if (g.sign !== f.sign || g.source !== 'blob' || Math.hypot(g.px - cx, g.py - cy) > 0.5 * r) continue;
+    if (g.sign !== f.sign || g.source !== 'blob') continue;
+    if (Math.hypot(g.px - cx, g.py - cy) > reach * r && !(centroid && Math.hypot(g.cx - centroid[0], g.cy - centroid[1]) <= reach * r)) continue;
     if (!best || Math.abs(g.contrastPct) * g.areaMm2 > Math.abs(best.contrastPct) * best.areaMm2) best = g;
   }
   return best;

@@ -980,7 +980,7 @@ function halfWidth(region: Int32Array, w: number): number {
 }
 
 /** The six terms 1, x, y, x², xy, y² of a quadratic surface at (dx, dy), into t. */
-function quadTerms(t: Float64Array, dx: number, dy: number): Float64Array {
+export function quadTerms(t: Float64Array, dx: number, dy: number): Float64Array {
   t[0] = 1;
   t[1] = dx;
   t[2] = dy;
@@ -991,7 +991,7 @@ function quadTerms(t: Float64Array, dx: number, dy: number): Float64Array {
 }
 
 /** One sample v at (dx, dy) added to the normal equations A c = b of a quadratic surface (t: scratch). */
-function addQuadratic(A: Float64Array, b: Float64Array, t: Float64Array, dx: number, dy: number, v: number): void {
+export function addQuadratic(A: Float64Array, b: Float64Array, t: Float64Array, dx: number, dy: number, v: number): void {
   quadTerms(t, dx, dy);
   for (let i = 0; i < 6; i++) {
     b[i] += t[i] * v;
@@ -1000,7 +1000,7 @@ function addQuadratic(A: Float64Array, b: Float64Array, t: Float64Array, dx: num
 }
 
 /** Gaussian elimination with partial pivoting of a 6 x 6 system (row-major); null when singular. */
-function solve6(A: Float64Array, b: Float64Array): Float64Array | null {
+export function solve6(A: Float64Array, b: Float64Array): Float64Array | null {
   const m = Float64Array.from(A);
   const x = Float64Array.from(b);
   for (let col = 0; col < 6; col++) {
