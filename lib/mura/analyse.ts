@@ -553,8 +553,8 @@ function remeasureLargeClouds(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, ma
  * surface then extrapolates into the masked part of the edge, following the flanks left outside the
  * mask) or not (left in the fit, as featureMask leaves edge findings), and 20-55 % of its contrast went
  * into the surface (study scenes with the features moved against the edges, `mura-accuracy.js --edges`).
- * Each round feature (spot or cloud) of SEMU background.edgeRingMinSemu and more, centred within 1.5 of its
- * radii of an edge, is measured again against a quadratic of the luminance fitted over a ring
+ * Each round feature (spot or cloud) of SEMU background.edgeRingMinSemu and more whose peak lies within 1.5
+ * of its radii of an edge is measured again against a quadratic of the luminance fitted over a ring
  * background.edgeRingInner to background.edgeRingOuter of its radii around it, with the other features
  * kept out of the ring to twice their half-size: along an edge the ring holds the panel on both sides
  * of the feature, so the level under it is interpolated along the edge rather than extrapolated across
@@ -871,7 +871,8 @@ function coarseOf(work: WorkRaster, mask: Uint8Array | null): Coarse {
 
 /**
  * Search the coarse raster's contrast against `fit2` for the feature `f` (same polarity, a blob, its
- * centre within half its equivalent radius of (cx, cy), coarse pixels); the strongest such, or null.
+ * peak within `reach` of f's equivalent radius of (cx, cy), or its centroid that near `centroid` when
+ * given; coarse pixels); the strongest such, or null.
  */
 function findAgain(ctx: Ctx, coarse: WorkRaster, fit2: BackgroundFit, edges: ReturnType<typeof panelEdges>, f: Found, cx: number, cy: number, reach = 0.5, centroid: [number, number] | null = null): Found | null {
   const opts = ctx.opts;
