@@ -556,7 +556,7 @@ function remeasureLargeClouds(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, ma
  * Each round feature (spot or cloud) of SEMU background.edgeRingMinSemu and more whose peak lies within 1.5
  * of its radii of an edge is measured again against a quadratic of the luminance fitted over a ring
  * background.edgeRingInner to background.edgeRingOuter of its radii around it, with the other features
- * kept out of the ring to twice their half-size: along an edge the ring holds the panel on both sides
+ * of the reporting floor (semuFloor) and more kept out of the ring to twice their half-size: along an edge the ring holds the panel on both sides
  * of the feature, so the level under it is interpolated along the edge rather than extrapolated across
  * it. The new figures replace the old only when the quadratic fits the ring (no sector of it off by
  * more than background.edgeRingMaxLack of the feature's contrast), the region found again is the same
@@ -581,7 +581,11 @@ function remeasureEdgeFeatures(ctx: Ctx, work: WorkRaster, fit: BackgroundFit, o
   let count = 0;
   for (const { f, index } of todo) {
     const others = new Uint8Array(work.w * work.h);
-    for (const g of ctx.found) if (g !== f) dilateInto(others, ctx, g, 2 * halfSize(g, ctx.mmPerPx));
+    // (findings under the reporting floor are mostly the whole-panel surface's own misfit around the
+    // feature: kept out, they took most of a corner's quarter ring away)
+    for (const g of ctx.found) {
+      if (g !== f && semu(g.contrastPct, g.areaMm2, opts.semuConstants) >= opts.semuFloor) dilateInto(others, ctx, g, 2 * halfSize(g, ctx.mmPerPx));
+    }
     const om = k === 1 ? others : coarsenedMask(others, work.w, work.h, k);
     const cx = (f.cx + 0.5) / k - 0.5;
     const cy = (f.cy + 0.5) / k - 0.5;

@@ -6,8 +6,32 @@
 // checked against the generator's truth (each feature's mean contrast and area over its own half-peak
 // region inside the panel) with issue 4's tolerances.
 import { describe, expect, it } from 'vitest';
+import { analyseMura } from '../../lib/mura/index.js';
 import { graySpec } from '../../scripts/mura-scenes.js';
-import { measureGenerated } from './helpers.js';
+import { synthMap } from '../../scripts/mura-synth.js';
+import { measureGenerated, nearest, relErr } from './helpers.js';
+
+/**
+ * Half-peak figures of a Gaussian of sigma s (mm) and peak c (%) centred at (x, y) inside a W x H panel,
+ * cut by the panel's edges: the region where it is at least half its peak, inside the panel, and its mean
+ * there, by summing over a 0.25 mm grid (the Gaussian's own formula; its peak lies inside the panel).
+ */
+function clippedGaussTruth(x0: number, y0: number, s: number, c: number, W: number, H: number): { areaMm2: number; contrastPct: number } {
+  const h = 0.25;
+  const r = s * Math.sqrt(2 * Math.LN2);
+  let area = 0;
+  let sum = 0;
+  for (let y = Math.max(0, y0 - r); y < Math.min(H, y0 + r); y += h) {
+    for (let x = Math.max(0, x0 - r); x < Math.min(W, x0 + r); x += h) {
+      const phi = Math.exp(-((x + h / 2 - x0) ** 2 + (y + h / 2 - y0) ** 2) / (2 * s * s));
+      if (phi >= 0.5) {
+        area += h * h;
+        sum += phi * h * h;
+      }
+    }
+  }
+  return { areaMm2: area, contrastPct: (c * sum) / area };
+}
 
 describe('clouds at the panel edge', () => {
   const scenes = [
@@ -31,3 +55,39 @@ describe('clouds at the panel edge', () => {
     }, 60_000);
   }
 });
+
+describe('clouds in a corner (synthetic maps)', () => {
+  // A 600 x 340 mm map with the generator's kind of roll-off (13 % at the corners as the 2.4th power of
+  // the distance from a centre a little off the middle) and an order-2 tilt, a Gaussian cloud whose
+  // half-peak region runs into a corner, 0.5 % noise. Against the whole-panel surface alone they came out
+  // 34 % and 26 % faint; with the ring measurement but every other finding kept out of the ring, the
+  // dark one still 34 %: faint findings left by the surface's own misfit (SEMU 0.3-0.4) took most of its
+  // quarter ring away. Only findings of the reporting floor are kept out now. Issue 4's tolerances.
+  const corners = [
+    { x: 560, y: 300, s: 50, peak: -5, seed: 60 },
+    { x: 50, y: 290, s: 45, peak: 4, seed: 62 },
+  ];
+  for (const c of corners) {
+    it(`measures a ${c.peak > 0 ? 'bright' : 'dark'} cloud ${Math.round(Math.min(c.x, 600 - c.x))} mm and ${Math.round(Math.min(c.y, 340 - c.y))} mm from two edges`, () => {
+      const map = synthMap({
+        widthMm: 600,
+        heightMm: 340,
+        pxPerMm: 1,
+        noisePct: 0.5,
+        seed: c.seed,
+        smooth: [[0, 0.03, -0.05], [0.04, 0.01], [-0.06]],
+        radial: { loss: 0.13, power: 2.4, u0: 0.55, v0: 0.55 },
+        features: [{ kind: 'gauss', xMm: c.x, yMm: c.y, sigmaMm: c.s, contrastPct: c.peak }],
+      });
+      const r = analyseMura(map, { pattern: 'gray' });
+      const t = clippedGaussTruth(c.x, c.y, c.s, c.peak, 600, 340);
+      const b = nearest(r.blobs, c.x, c.y);
+      const got = r.blobs.map((x) => `${x.kind} (${x.xMm}, ${x.yMm}) C ${x.contrastPct} A ${x.areaMm2}`).join('; ');
+      expect(b, got).toBeDefined();
+      expect(b!.kind, got).toBe('cloud');
+      expect(relErr(b!.contrastPct, t.contrastPct), `${got}; truth C ${t.contrastPct.toFixed(2)} A ${t.areaMm2.toFixed(0)}`).toBeLessThan(0.25);
+      expect(relErr(b!.areaMm2, t.areaMm2), `${got}; truth C ${t.contrastPct.toFixed(2)} A ${t.areaMm2.toFixed(0)}`).toBeLessThan(0.3);
+    });
+  }
+});
+
