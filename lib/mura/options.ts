@@ -79,7 +79,8 @@ export interface BackgroundOptions {
   /** lit fields: a round feature (spot or cloud) whose peak lies within 1.5 of its equivalent radii of the
    *  panel's edge is measured again against a quadratic of the luminance fitted over a ring this many of its
    *  radii (inner) to edgeRingOuter radii (outer) around it (default 3; 0 = off; see remeasureEdgeFeatures
-   *  in analyse.ts). The whole-panel surface is freest at the edges and took 20-55 % of such features'
+   *  in analyse.ts; the other reported features are kept out of the ring). The whole-panel surface is
+   *  freest at the edges and took 20-55 % of such features'
    *  contrast. Accuracy study, scenes with the features moved against the edges (`--edges`): contrast
    *  within 25 % 79.5 -> 88.0 % (85.1 -> 97.9 % of the features standing alone), area within 30 %
    *  91.6 -> 92.8 %; the usual sets unchanged or better */
