@@ -710,6 +710,7 @@ const DETAIL_WORDS: Record<string, (v: string) => string> = {
   form: (v) => v,
   seenPeakPct: (v) => `peak ${v} % where the map begins`,
   carriedToEdgeMm: (v) => `carried across the ${v} mm strip left out along the edges`,
+  borderStripMm2: (v) => `${v} mm² of it under the strip left out along the edges`,
   surroundPct: (v) => `on a surround of ${v} %`,
   fadingEndSpecks: (v) => `with ${v === '1' ? 'a speck' : `${v} specks`} of its fading end along the edge`,
   belowResolution: (v) =>

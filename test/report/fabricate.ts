@@ -209,8 +209,13 @@ export function fakePhoto(spec: FakePhotoSpec, index: number, mapW = 600): { pho
       contrastPct: b.contrastPct * 0.72,
       peakContrastPct: b.contrastPct,
       semu: b.semu,
-      // an edge glow as the analysis gives it: the peak where the map begins and how far it was carried
-      detail: (b.kind === 'edge-glow' ? { edge: 'left', depthMm: 9.2, seenPeakPct: 12.5, carriedToEdgeMm: 2.56 } : {}) as Record<string, string | number>,
+      // an edge glow as the analysis gives it: the peak where the map begins and how far it was carried;
+      // the first photo's spot as one reaching the strip left out along the edges
+      detail: (b.kind === 'edge-glow'
+        ? { edge: 'left', depthMm: 9.2, seenPeakPct: 12.5, carriedToEdgeMm: 2.56 }
+        : b.kind === 'spot' && index === 0
+          ? { diameterMm: 12.4, borderStripMm2: 31.5 }
+          : {}) as Record<string, string | number>,
     };
   });
   const photo: PhotoResult = {

@@ -84,7 +84,9 @@ describe('per-panel report (three patterns, fabricated test data)', () => {
     // an edge glow carries its depth, the peak seen where the map begins and the strip it was carried over
     const t = flat(text);
     expect(t).toMatch(/reaching 9\.20* mm in, peak 12\.50* % where the map begins, carried across the 2\.560* mm strip left out along the edges/);
-    for (const key of ['seenPeakPct', 'carriedToEdgeMm', 'depthMm', 'surroundPct']) expect(t).not.toContain(key);
+    // a spot whose region was carried across that strip: the area carried
+    expect(t).toMatch(/12\.40* mm across, 31\.50* mm² of it under the strip left out along the edges/);
+    for (const key of ['seenPeakPct', 'carriedToEdgeMm', 'depthMm', 'surroundPct', 'borderStripMm2', 'diameterMm']) expect(t).not.toContain(key);
   });
 
   it('says next to the verdict that it is a camera estimate, and has method, hashes and cautions', () => {
