@@ -32,6 +32,7 @@ export function graySpec(
   varied = false,
   lines = false,
   edges = false,
+  elliptic = false,
 ): PhotoSpec {
   const spec = randomScene(seed, {
     ...(panelMm ? { widthMm: panelMm.width, heightMm: panelMm.height } : {}),
@@ -57,7 +58,23 @@ export function graySpec(
     if (f.kind === 'cloud' && cloudSizes === 'half-peak') sizeCloud(spec, i, f.sizeMm);
   });
   if (edges) toEdges(spec, new Rng(seed * 6007 + 11));
+  if (elliptic) toEllipses(spec, new Rng(seed * 8011 + 5));
   return spec;
+}
+
+/**
+ * The same scene with its spots and clouds drawn as ellipses (`elliptic`): each stretched by an aspect
+ * of 1-3 (log-uniform; the long axis over the short) at an angle of 0-180 degrees, about its centre and
+ * keeping its area, so the half-peak area is the round one's. Many real mura are elongated at any angle
+ * (a pressure mark, a clouded diffuser), and another generator may well draw them so.
+ */
+function toEllipses(spec: PhotoSpec, rng: Rng): void {
+  for (const f of spec.panel.features ?? []) {
+    if (f.kind !== 'spot' && f.kind !== 'cloud') continue;
+    if (f.kind === 'spot' && f.profile === 'disc') continue;
+    f.aspect = Math.exp(rng.uniform(0, Math.log(3)));
+    f.angleDeg = rng.uniform(0, 180);
+  }
 }
 
 /**

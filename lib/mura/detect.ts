@@ -401,32 +401,45 @@ export function detectFeatures(ctx: Ctx, levelsIn: Level[], useFitFloor = true):
     else groups.push([c]);
   }
   const chosen = groups.map(pick);
+  const fallback = new Map<Candidate, Candidate | null>();
+  groups.forEach((g, k) => fallback.set(chosen[k], fallbackOf(g, chosen[k])));
   if (process.env.MURA_DBG) for (const g of groups) console.log('group', g.map((c) => `L${c.level.l} pk${c.peak.toFixed(2)} ped${c.pedestal.toFixed(2)} at ${peakOf(c).map((v) => (v * ctx.mmPerPx).toFixed(0))} minor ${c.minor.toFixed(1)} snr ${c.snr.toFixed(0)}`).join(' ; '));
   // strongest first, so that a weaker re-detection of the same pixels is the one dropped
   chosen.sort((a, b) => Math.abs(b.peak - b.pedestal) * Math.sqrt(b.region.length * b.level.f ** 2) - Math.abs(a.peak - a.pedestal) * Math.sqrt(a.region.length * a.level.f ** 2));
-  for (const c of chosen) {
+  const tryOne = (c: Candidate): 'taken' | 'dropped' | 'duplicate' => {
     const f = toFound(ctx, c);
-    if (!f) continue;
-    if (Math.abs(f.contrastPct) < floor) continue;
-    if (f.zNoise < o.thresholdSigma) continue;
+    if (!f) return 'dropped';
+    if (Math.abs(f.contrastPct) < floor) return 'dropped';
+    if (f.zNoise < o.thresholdSigma) return 'dropped';
     // a half-peak region smaller than a quarter of the smallest feature searched for is a pixel or two
     // (an edge or corner artefact), not a feature this analysis resolves
-    if (f.unblurredAreaMm2 < (0.25 * Math.PI * o.minFeatureMm ** 2) / 4) continue;
+    if (f.unblurredAreaMm2 < (0.25 * Math.PI * o.minFeatureMm ** 2) / 4) return 'dropped';
     // black fields show light that leaks (bleed, clouding, glow): a spot or cloud darker than its
     // surround is less leakage, not a defect of the black, and where the lens and the panel roll off
     // towards the corners it is mostly the low-order surface missing the roll-off
-    if (ctx.black && f.sign < 0) continue;
+    if (ctx.black && f.sign < 0) return 'dropped';
     // no larger than two JPEG blocks and no stronger than a block's coding error (a quantised AC term
     // draws a pattern of a code value or two over its block; three taken): cannot be told from it
     const extentMm = Math.max(f.lengthMm, 2 * Math.sqrt(f.areaMm2 / Math.PI));
     const step = localCodeStepPct(ctx, f.cx, f.cy) ?? o.codeStepPct;
     const wholeCode = step !== null ? step / (o.codeLevel?.stepCodes ?? 1) : null;
-    if (o.jpegBlockMm !== null && extentMm < 2 * o.jpegBlockMm && (wholeCode === null || Math.abs(f.peakContrastPct) < 3 * wholeCode)) continue;
+    if (o.jpegBlockMm !== null && extentMm < 2 * o.jpegBlockMm && (wholeCode === null || Math.abs(f.peakContrastPct) < 3 * wholeCode)) return 'dropped';
     // within one or a few of the 8-bit coding's plateaus: must beat the code step
     if (process.env.MURA_DBG && step !== null) console.log(`  step at (${(f.cx * ctx.mmPerPx).toFixed(0)},${(f.cy * ctx.mmPerPx).toFixed(0)}) ${step.toFixed(2)} % (centre ${o.codeStepPct?.toFixed(2)}) C ${f.contrastPct.toFixed(2)} extent ${extentMm.toFixed(0)}`);
-    if (step !== null && Math.abs(f.contrastPct) < codingFloorPct(o, extentMm, step)) continue;
-    if (isDuplicate(ctx, f)) continue;
+    if (step !== null && Math.abs(f.contrastPct) < codingFloorPct(o, extentMm, step)) return 'dropped';
+    if (isDuplicate(ctx, f)) return 'duplicate';
     register(ctx, f);
+    return 'taken';
+  };
+  for (const c of chosen) {
+    const other = fallback.get(c);
+    const r = tryOne(c);
+    if (process.env.MURA_DBG && r !== 'taken') console.log(`  chosen L${c.level.l} at ${peakOf(c).map((v) => (v * ctx.mmPerPx).toFixed(0))} ${r}; fallback ${other ? `L${other.level.l}` : 'none'}`);
+    // (a view dropped as a duplicate is a feature found already: nothing more is tried)
+    if (r === 'dropped' && other) {
+      const r2 = tryOne(other);
+      if (process.env.MURA_DBG) console.log(`    fallback ${r2}`);
+    }
   }
   // what follows (masks, tile seams and steps) works on the contrast map as it is
   if (original) ctx.C = original;
@@ -1219,6 +1232,21 @@ function joinedBetween(a: Candidate, b: Candidate): boolean {
  * px across its narrow way and its peak stands 10 sigmas over that level's noise; failing that, the one
  * with the best margin over the noise among those at least 3 px across (or simply the best margin).
  */
+/**
+ * What a group's feature is taken from when its chosen view, standing on a pedestal, is dropped (too
+ * faint, too small, under the coding's step...): the finest level that resolves the group (6 px across
+ * or more) without a pedestal. A faint broad feature resolved nowhere with a signal of 10 has its finest
+ * view chosen, which can be a speck of noise on its top, measured against the feature itself as its
+ * surround, a few mm² across and insignificant; the feature was then lost (an ellipse of 94 x 35 mm and
+ * -1.4 %, `mura-accuracy.js --elliptic`, seed 1055). Only then: taking another view, coarsest-resolved
+ * or best signal first, for any dropped one added large false findings (the blur of several features on
+ * a coarse level) and lost a band on the study's first set.
+ */
+function fallbackOf(g: Candidate[], chosen: Candidate): Candidate | null {
+  if (chosen.pedestal === 0) return null;
+  return [...g].sort((a, b) => a.level.l - b.level.l).find((c) => c !== chosen && c.minor >= 6 && c.pedestal === 0) ?? null;
+}
+
 function pick(g: Candidate[]): Candidate {
   const byLevel = [...g].sort((a, b) => a.level.l - b.level.l);
   for (const c of byLevel) if (c.minor >= 6 && c.snr >= 10) return c;

@@ -19,6 +19,27 @@ const truthOf = (f: FeatureSpec, pattern: PanelSpec['pattern'] = 'white') => {
 };
 
 describe('feature truth (C = 100 (L - B) / B, half-peak region)', () => {
+  // An elliptical Gaussian exp(-(a^2 / sa^2 + b^2 / sb^2) / 2) with sa = k s, sb = s / k is at least half
+  // its peak over an ellipse of semi-axes k rh and rh / k (rh = s sqrt(2 ln 2)): the disc's area
+  // pi 2 ln2 s^2 again, and the same mean P / (2 ln 2) (the map (a, b) -> (a / k, k b) has determinant 1).
+  // Its extent along the long axis at angle theta is k times the disc's.
+  for (const [aspect, angle] of [[2.5, 30], [3, 90], [1.4, 160]] as const) {
+    it(`Gaussian spot stretched to aspect ${aspect} at ${angle} degrees: the disc's area and mean`, () => {
+      const fwhm = 12;
+      const s = fwhm / (2 * Math.sqrt(2 * Math.LN2));
+      const t = truthOf({ kind: 'spot', u: 0.4, v: 0.55, sizeMm: fwhm, contrastPct: -3, aspect, angleDeg: angle });
+      const area = Math.PI * 2 * Math.LN2 * s * s;
+      expect(Math.abs(t.areaMm2 / area - 1)).toBeLessThan(3e-3);
+      expect(Math.abs(t.contrastPct / (-3 / (2 * Math.LN2)) - 1)).toBeLessThan(2e-3);
+      // the panel's value a long half-axis from the centre along the angle is half the peak
+      const p = buildPanel(panelWith([{ kind: 'spot', u: 0.4, v: 0.55, sizeMm: fwhm, contrastPct: -3, aspect, angleDeg: angle }]));
+      const r = Math.sqrt(aspect) * (fwhm / 2);
+      const th = (angle * Math.PI) / 180;
+      expect(p.parts[0].phi(0.4 * W + r * Math.cos(th), 0.55 * H + r * Math.sin(th))).toBeCloseTo(0.5, 9);
+      expect(p.parts[0].phi(0.4 * W - (r / aspect) * Math.sin(th), 0.55 * H + (r / aspect) * Math.cos(th))).toBeCloseTo(0.5, 9);
+    });
+  }
+
   // Gaussian spot of standard deviation s and peak P: C(r) = P exp(-r^2 / 2 s^2).
   // |C| >= |P|/2  <=>  r^2 <= 2 s^2 ln 2, so the region is a disc of area pi 2 ln2 s^2 (= pi FWHM^2 / 4).
   // Mean over it: (1/A) int_0^rh P exp(-r^2/2s^2) 2 pi r dr = P 2 pi s^2 (1 - 1/2) / (2 pi ln2 s^2) = P / (2 ln 2).
