@@ -33,6 +33,21 @@ function clippedGaussTruth(x0: number, y0: number, s: number, c: number, W: numb
   return { areaMm2: area, contrastPct: (c * sum) / area };
 }
 
+/**
+ * An edge scene of the study (`mura-accuracy.js --edges`, the scene moved against the edges) through the
+ * whole pipeline: the truth's first bright feature of `kind` of SEMU >= 3, the blob found within half its
+ * size of it (if any), and the findings and the truth as text for the messages.
+ */
+async function edgeScene(seed: number, kind: 'cloud' | 'spot') {
+  const { truth, result } = await measureGenerated(graySpec(seed, false, 2400, 1600, 'half-peak', null, false, false, true), `E${seed}_gray50`);
+  expect(result.status).toBe('ok');
+  const t = truth.features.find((f) => f.kind === kind && f.polarity === 'bright' && f.semu >= 3)!;
+  expect(t, `the scene has a bright ${kind} of SEMU >= 3`).toBeDefined();
+  const b = result.blobs.find((x) => x.polarity === 'bright' && Math.hypot(x.xMm - t.xMm, x.yMm - t.yMm) < 0.5 * Math.sqrt(t.areaMm2));
+  const got = result.blobs.map((x) => `${x.kind} (${x.xMm}, ${x.yMm}) C ${x.contrastPct} A ${x.areaMm2}`).join('; ');
+  return { t, b, got: `${got}; truth C ${t.contrastPct.toFixed(2)} A ${t.areaMm2.toFixed(0)}` };
+}
+
 describe('clouds at the panel edge', () => {
   const scenes = [
     // a bright cloud of 122 mm (5.8 % mean) whose half-peak region runs into the bottom-right corner,
@@ -43,12 +58,7 @@ describe('clouds at the panel edge', () => {
   ];
   for (const { seed, what } of scenes) {
     it(`measures a ${what} within issue 4's tolerances (scene ${seed})`, async () => {
-      const { truth, result } = await measureGenerated(graySpec(seed, false, 2400, 1600, 'half-peak', null, false, false, true), `E${seed}_gray50`);
-      expect(result.status).toBe('ok');
-      const cloud = truth.features.find((f) => f.kind === 'cloud' && f.semu >= 3)!;
-      expect(cloud, 'the scene has a cloud of SEMU >= 3').toBeDefined();
-      const b = result.blobs.find((x) => x.polarity === 'bright' && Math.hypot(x.xMm - cloud.xMm, x.yMm - cloud.yMm) < 0.5 * Math.sqrt(cloud.areaMm2));
-      const got = result.blobs.map((x) => `${x.kind} (${x.xMm}, ${x.yMm}) C ${x.contrastPct} A ${x.areaMm2}`).join('; ');
+      const { t: cloud, b, got } = await edgeScene(seed, 'cloud');
       expect(b, got).toBeDefined();
       expect(Math.abs(b!.contrastPct / cloud.contrastPct - 1), got).toBeLessThan(0.25);
       expect(Math.abs(b!.areaMm2 / cloud.areaMm2 - 1), got).toBeLessThan(0.3);
@@ -108,17 +118,11 @@ describe('spots beside the panel edge', () => {
   ];
   for (const { seed, what } of scenes) {
     it(`measures a ${what} within issue 4's tolerances (scene ${seed})`, async () => {
-      const { truth, result } = await measureGenerated(graySpec(seed, false, 2400, 1600, 'half-peak', null, false, false, true), `E${seed}_gray50`);
-      expect(result.status).toBe('ok');
-      const spot = truth.features.find((f) => f.kind === 'spot' && f.polarity === 'bright' && f.semu >= 3)!;
-      expect(spot, 'the scene has a bright spot of SEMU >= 3').toBeDefined();
-      const b = result.blobs.find((x) => x.polarity === 'bright' && Math.hypot(x.xMm - spot.xMm, x.yMm - spot.yMm) < 0.5 * Math.sqrt(spot.areaMm2));
-      const got = result.blobs.map((x) => `${x.kind} (${x.xMm}, ${x.yMm}) C ${x.contrastPct} A ${x.areaMm2}`).join('; ');
-      const want = `truth C ${spot.contrastPct.toFixed(2)} A ${spot.areaMm2.toFixed(0)}`;
+      const { t: spot, b, got } = await edgeScene(seed, 'spot');
       expect(b, got).toBeDefined();
       expect(b!.kind, got).toBe('spot');
-      expect(relErr(b!.contrastPct, spot.contrastPct), `${got}; ${want}`).toBeLessThan(0.25);
-      expect(relErr(b!.areaMm2, spot.areaMm2), `${got}; ${want}`).toBeLessThan(0.3);
+      expect(relErr(b!.contrastPct, spot.contrastPct), got).toBeLessThan(0.25);
+      expect(relErr(b!.areaMm2, spot.areaMm2), got).toBeLessThan(0.3);
       expect(b!.detail.borderStripMm2, got).toBeGreaterThan(0);
     }, 60_000);
   }
