@@ -1228,25 +1228,25 @@ function joinedBetween(a: Candidate, b: Candidate): boolean {
 }
 
 /**
- * The level a feature is measured on: the finest one where its half-peak region is at least 6 level
- * px across its narrow way and its peak stands 10 sigmas over that level's noise; failing that, the one
- * with the best margin over the noise among those at least 3 px across (or simply the best margin).
- */
-/**
  * What a group's feature is taken from when its chosen view, standing on a pedestal, is dropped (too
  * faint, too small, under the coding's step...): the finest level that resolves the group (6 px across
  * or more) without a pedestal. A faint broad feature resolved nowhere with a signal of 10 has its finest
  * view chosen, which can be a speck of noise on its top, measured against the feature itself as its
  * surround, a few mm² across and insignificant; the feature was then lost (an ellipse of 94 x 35 mm and
- * -1.4 %, `mura-accuracy.js --elliptic`, seed 1055). Only then: taking another view, coarsest-resolved
- * or best signal first, for any dropped one added large false findings (the blur of several features on
- * a coarse level) and lost a band on the study's first set.
+ * -1.4 %, `mura-accuracy.js --elliptic`, seed 1055). Only for a view on a pedestal: trying the group's
+ * other views (resolved ones first, each by signal) whenever the chosen one was dropped added large false
+ * findings (the blur of several features on a coarse level) and lost a band on the study's first set.
  */
 function fallbackOf(g: Candidate[], chosen: Candidate): Candidate | null {
   if (chosen.pedestal === 0) return null;
   return [...g].sort((a, b) => a.level.l - b.level.l).find((c) => c !== chosen && c.minor >= 6 && c.pedestal === 0) ?? null;
 }
 
+/**
+ * The level a feature is measured on: the finest one where its half-peak region is at least 6 level
+ * px across its narrow way and its peak stands 10 sigmas over that level's noise; failing that, the one
+ * with the best margin over the noise among those at least 3 px across (or simply the best margin).
+ */
 function pick(g: Candidate[]): Candidate {
   const byLevel = [...g].sort((a, b) => a.level.l - b.level.l);
   for (const c of byLevel) if (c.minor >= 6 && c.snr >= 10) return c;

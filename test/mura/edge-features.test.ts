@@ -101,7 +101,6 @@ describe('clouds in a corner (synthetic maps)', () => {
   }
 });
 
-
 describe('spots beside the panel edge', () => {
   // The analysed map leaves out a strip along every edge (the bezel's transition: 3 camera pixels, one
   // JPEG block on lit fields, one map pixel; about 5 mm in these photos). A spot whose half-peak region
