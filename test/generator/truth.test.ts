@@ -22,7 +22,8 @@ describe('feature truth (C = 100 (L - B) / B, half-peak region)', () => {
   // An elliptical Gaussian exp(-(a^2 / sa^2 + b^2 / sb^2) / 2) with sa = k s, sb = s / k is at least half
   // its peak over an ellipse of semi-axes k rh and rh / k (rh = s sqrt(2 ln 2)): the disc's area
   // pi 2 ln2 s^2 again, and the same mean P / (2 ln 2) (the map (a, b) -> (a / k, k b) has determinant 1).
-  // Its extent along the long axis at angle theta is k times the disc's.
+  // Its extent along the long axis at angle theta is k times the disc's. (Derived by hand from the
+  // Gaussian's formula; the change of variables is common practice.)
   for (const [aspect, angle] of [[2.5, 30], [3, 90], [1.4, 160]] as const) {
     it(`Gaussian spot stretched to aspect ${aspect} at ${angle} degrees: the disc's area and mean`, () => {
       const fwhm = 12;

@@ -108,7 +108,8 @@ describe('spots beside the panel edge', () => {
   // and 38 % small. A region that reaches the map's edge is now carried across the strip to the panel's
   // edge (findingOf in lib/mura/analyse.ts). Scenes of the study's second set of edge scenes
   // (`mura-accuracy.js --edges --seeds=100`), against the generator's truth (the half-peak region inside
-  // the panel and the mean over it), with issue 4's tolerances.
+  // the panel and the mean over it; the generator's spot truth is checked against the Gaussian's closed
+  // form in test/generator/truth.test.ts), with issue 4's tolerances.
   const scenes = [
     // a bright spot of 28 mm (5.9 %) centred 7 mm above the bottom edge (510 mm² of it inside the panel)
     { seed: 1127, what: '28 mm spot 7 mm from the bottom edge' },

@@ -4,7 +4,8 @@
 // them, a faint dark ellipse, was lost: resolved on no level with a signal of 10, it had its finest view
 // chosen - a speck of noise on its own top, measured against the ellipse as its surround and dropped as
 // insignificant - and nothing else was tried (the group fallback in detectFeatures, lib/mura/detect.ts).
-// Checked against the generator's truth (the half-peak region and its mean) with issue 4's tolerance on
+// Checked against the generator's truth (the half-peak region and its mean; the ellipse's area and mean
+// are checked against the Gaussian's closed form in test/generator/truth.test.ts) with issue 4's tolerance on
 // contrast; the feature is of SEMU 1.57, over the 1.5 of issue 4's recall line.
 import { describe, expect, it } from 'vitest';
 import { graySpec } from '../../scripts/mura-scenes.js';
