@@ -11,7 +11,8 @@ const entry = new URL('../dist/lib/cli/main.js', import.meta.url);
 const relaunch = new URL('../dist/lib/cli/relaunch.js', import.meta.url);
 if (!existsSync(fileURLToPath(entry)) || !existsSync(fileURLToPath(relaunch))) {
   process.stderr.write('evenfield: not built yet: run "npm install" (or "npm run build") in the project folder\n');
-  process.exit(2);
+  // 3: evenfield itself could not run (README, "Exit status"); 2 would read as a lot with an unusable photo
+  process.exit(3);
 }
 const { relaunchEnv, relaunchNodeOptions, runInChild, followLauncher } = await import(relaunch.href);
 const extraEnv = relaunchEnv(process.argv.slice(2), process.env, process.platform, process.execArgv);

@@ -40,7 +40,17 @@ export const EXIT = {
   allPass: 0,
   someFail: 1,
   unusable: 2,
+  /** evenfield itself could not run: not built, its process could not start, or a fault of its own (an
+   *  unexpected exception): kept apart from 2 so that a script never reads a broken run as a lot with an
+   *  unusable photo in it */
+  failed: 3,
 } as const;
+
+/** The exit status for an error that ended the whole command: 2 for a problem with the input or the
+ *  command line, 3 for a fault of evenfield's own (an `internal` error or any other exception). */
+export function exitStatusOf(e: unknown): number {
+  return isEvenfieldError(e) && e.code !== 'internal' ? EXIT.unusable : EXIT.failed;
+}
 
 export function isEvenfieldError(e: unknown): e is EvenfieldError {
   return e instanceof EvenfieldError;

@@ -4,7 +4,7 @@ import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import yargs from 'yargs';
 import { hideBin } from 'yargs/helpers';
-import { EvenfieldError, EXIT, isEvenfieldError } from '../errors.js';
+import { EvenfieldError, EXIT, exitStatusOf, isEvenfieldError } from '../errors.js';
 import { collectImages, groupByManifest, groupByName, parseCornersText } from '../batch/grouping.js';
 import { CAMERA_RAW_ADVICE } from '../io/index.js';
 import type { GroupingResult } from '../batch/grouping.js';
@@ -301,10 +301,10 @@ export async function main(argv: string[]): Promise<number> {
     if (isEvenfieldError(e)) {
       // one line per problem (a criteria file can have several), each a whole message on its own
       for (const line of e.message.split('\n')) process.stderr.write(`evenfield: ${line}\n`);
-      return EXIT.unusable;
+      return exitStatusOf(e);
     }
-    process.stderr.write(`evenfield: ${e instanceof Error ? e.message.split('\n')[0] : String(e)}\n`);
-    return EXIT.unusable;
+    process.stderr.write(`evenfield: ${e instanceof Error ? e.message.split('\n')[0] : String(e)} (a fault in evenfield: please report it with the command line)\n`);
+    return exitStatusOf(e);
   }
   return status;
 }

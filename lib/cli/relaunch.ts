@@ -16,6 +16,7 @@
 // This module must stay light: it runs before the command's own modules are loaded.
 
 import { spawn } from 'node:child_process';
+import { EXIT } from '../errors.js';
 
 /** The allocator settings the child gets (glibc mallopt names: M_ARENA_MAX, M_MMAP_THRESHOLD). */
 export const ALLOCATOR_ENV: Readonly<Record<string, string>> = {
@@ -102,7 +103,7 @@ export function runInChild(script: string, extraEnv: Record<string, string>, ext
     for (const [sig, h] of handlers) process.on(sig, h);
     child.on('error', (e) => {
       process.stderr.write(`evenfield: cannot start the command's process: ${e.message}\n`);
-      resolveRun(2);
+      resolveRun(EXIT.failed);
     });
     child.on('exit', (code, signal) => {
       for (const [sig, h] of handlers) process.off(sig, h);
@@ -110,7 +111,7 @@ export function runInChild(script: string, extraEnv: Record<string, string>, ext
         process.kill(process.pid, signal);
         return;
       }
-      resolveRun(code ?? 2);
+      resolveRun(code ?? EXIT.failed);
     });
   });
 }

@@ -1,11 +1,12 @@
 // The command as a user runs it: exit statuses, one-line errors, the rest of the batch still measured.
 import { spawnSync } from 'node:child_process';
-import { existsSync, mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
+import { copyFileSync, existsSync, mkdirSync, mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import sharp from 'sharp';
 import { beforeAll, describe, expect, it } from 'vitest';
 import { randomScene, renderPhoto } from '../../fixtures/generator/index.js';
+import { EvenfieldError, EXIT, exitStatusOf } from '../../lib/errors.js';
 
 const BIN = join(__dirname, '..', '..', 'bin', 'evenfield.js');
 
@@ -100,5 +101,31 @@ describe('evenfield inspect', () => {
     const r = run(['inspect', join(dir, 'nope.jpg'), '--out', join(dir, 'o3')]);
     expect(r.status).toBe(2);
     expect(r.stderr.trim()).toMatch(/nope\.jpg: no such file or folder$/);
+  });
+});
+
+// Exit statuses as the README's "Exit status" table gives them: 2 is a problem with the input or the command
+// line, 3 that evenfield itself could not run, so that a script (the demo's among them) never reads a
+// broken run as a lot with an unusable photo in it. Common practice: distinct statuses for bad input and
+// for a tool's own failure.
+describe('evenfield could not run', () => {
+  it('a launcher without its compiled command says how to build it, on one line, and exits 3', () => {
+    const root = mkdtempSync(join(tmpdir(), 'ef-unbuilt-'));
+    mkdirSync(join(root, 'bin'));
+    copyFileSync(BIN, join(root, 'bin', 'evenfield.js'));
+    const r = spawnSync(process.execPath, [join(root, 'bin', 'evenfield.js'), 'inspect', dir], { encoding: 'utf8' });
+    expect(r.status).toBe(EXIT.failed);
+    expect(EXIT.failed).toBe(3);
+    const lines = r.stderr.trim().split('\n');
+    expect(lines).toHaveLength(1);
+    expect(lines[0]).toMatch(/^evenfield: not built yet: run "npm install"/);
+  });
+
+  it('a problem with the input or options is 2, a fault of evenfield\'s own is 3', () => {
+    expect(exitStatusOf(new EvenfieldError('criteria', 'line 3: unknown key', 'c.yaml'))).toBe(2);
+    expect(exitStatusOf(new EvenfieldError('usage', 'choose one of --linear and --response'))).toBe(2);
+    expect(exitStatusOf(new EvenfieldError('internal', 'report: 2 artifact entries for 3 photos'))).toBe(3);
+    expect(exitStatusOf(new TypeError("Cannot read properties of undefined (reading 'w')"))).toBe(3);
+    expect(exitStatusOf('a string thrown')).toBe(3);
   });
 });
