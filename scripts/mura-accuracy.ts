@@ -14,7 +14,7 @@
 // Corners are the generator's true ones, so that a geometry miss does not count as a mura miss.
 //
 //   npx tsc -p tsconfig.build.json && node dist/scripts/mura-accuracy.js [gray] [clean] [black] [width] [height] [--big] [--render] [--seeds=N] [--panel=WxH]
-//     [--distortion=K] [--no-noise] [--full-well=N] [--mosaic] [--denoise=K,S] [--sharpen=A,S] [--varied] [--edges] [--elliptic] [--smooth=steep|hump] [--glow=weak]
+//     [--distortion=K] [--no-noise] [--full-well=N] [--mosaic] [--denoise=K,S] [--sharpen=A,S] [--varied] [--edges] [--elliptic] [--smooth=steep|hump] [--exposure=P] [--glow=weak]
 //
 // Rendered photos and their truth are kept under .cache/ and reused (--render draws them again).
 
@@ -81,8 +81,16 @@ const elliptic = process.argv.includes('--elliptic');
 const smoothArg = process.argv.find((a) => a.startsWith('--smooth='));
 const smooth = smoothArg ? smoothArg.slice('--smooth='.length) : null;
 if (smooth !== null && smooth !== 'steep' && smooth !== 'hump') throw new Error('--smooth= takes steep or hump');
+// --exposure=P: the gray and clean fields exposed so the pattern's centre is at P of full scale, linear
+// (the generator's scenes expose for a white field at 0.5-0.85, which puts 50 % gray at about 0.1-0.2,
+// code 90-125 of 255; one who exposes each field for itself puts gray near the top, one who keeps the
+// white field's exposure for a dimmer panel lower)
+const exposureArg = process.argv.find((a) => a.startsWith('--exposure='));
+const grayExposure = exposureArg ? Number(exposureArg.slice('--exposure='.length)) : null;
+if (grayExposure !== null && !(grayExposure > 0 && grayExposure < 1)) throw new Error('--exposure=P needs a fraction of full scale between 0 and 1, e.g. --exposure=0.5');
 const withSmooth = (spec: PhotoSpec): PhotoSpec => {
   if (smooth) otherSmooth(spec, smooth as 'steep' | 'hump');
+  if (grayExposure !== null) spec.exposure = { patternCentre: grayExposure };
   return spec;
 };
 // --glow=weak: black fields whose glows are 1.15-2 x the field at their edge (15-100 %) instead of the
@@ -112,6 +120,7 @@ const dir = join(
     (edges ? '-edges' : '') +
     (elliptic ? '-elliptic' : '') +
     (smooth ? `-smooth-${smooth}` : '') +
+    (grayExposure !== null ? `-exposure-${grayExposure}` : '') +
     (glow ? `-glow-${glow}` : ''),
 );
 mkdirSync(dir, { recursive: true });
@@ -348,6 +357,8 @@ async function main(): Promise<void> {
   const misses: string[] = [];
   const wrongKinds: string[] = [];
   const badAcc: string[] = [];
+  // every feature in the contrast and area tallies, for looking at the errors by kind and size (summary.json)
+  const accuracy: { seed: number; kind: string; sizeMm: number; semu: number; contrastErr: number; areaErr: number; alone: boolean }[] = [];
   const errors: string[] = [];
   const ms: number[] = [];
   // features another one of the other sign cancels in the photo (compositeOf), and the tallies without them
@@ -407,6 +418,15 @@ async function main(): Promise<void> {
           const ae = (b.areaMm2 - t.areaMm2) / t.areaMm2;
           cErr.push(ce);
           aErr.push(ae);
+          accuracy.push({
+            seed,
+            kind: t.kind,
+            sizeMm: Math.round(t.kind === 'band' || t.kind === 'line' ? Number(t.detail.widthMm) : 2 * Math.sqrt(t.areaMm2 / Math.PI)),
+            semu: Math.round(100 * t.semu) / 100,
+            contrastErr: Math.round(1000 * ce) / 1000,
+            areaErr: Math.round(1000 * ae) / 1000,
+            alone: standsAlone(t, r.truth),
+          });
           if (Math.abs(ce) <= 0.25) contrastOk++;
           if (Math.abs(ae) <= 0.3) areaOk++;
           if (!cancelled) {
@@ -449,7 +469,7 @@ async function main(): Promise<void> {
   for (const m of wrongKinds) log(`  kind: ${m}`);
   for (const m of badAcc) log(`  accuracy: ${m}`);
   for (const e of errors) log(`  error: ${e}`);
-  summary.gray = { photos: nGray, recallN, recallHit, kindN, kindOk, accN, contrastOk, areaOk, isoN, isoContrastOk, isoAreaOk, falseSemu1, misses, wrongKinds, badAcc, errors };
+  summary.gray = { photos: nGray, recallN, recallHit, kindN, kindOk, accN, contrastOk, areaOk, isoN, isoContrastOk, isoAreaOk, falseSemu1, misses, wrongKinds, badAcc, accuracy, errors };
 
   // 2. clean gray fields
   let cleanFalse = 0;
