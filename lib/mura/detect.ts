@@ -79,6 +79,10 @@ const MAX_REGION = 40000;
 /** a peak joined to a higher one above its half height is looked at as a feature under that one when it
  *  stands this many detection thresholds above the saddle */
 const MERGED_PROMINENCE = 1.5;
+/** basinHalfPeak: most of a catchment's half-peak edge that may run along the watershed */
+const BASIN_MAX_CUT = 0.35;
+/** ...and its least size, level px (a cloud's half-peak region on the level it is seen on) */
+const BASIN_MIN_PX = 12;
 /** levels beyond this index are never skipped for size */
 const MAX_LEVEL_INDEX = 3;
 
@@ -537,7 +541,25 @@ function candidatesOn(lv: Level, sign: 1 | -1, thr: number, out: Candidate[], sp
     }
     if (!near) continue;
     const under = plateauUnder(lv, near, sign, thr, lo);
-    if (under) out.push(under);
+    if (under) {
+      out.push(under);
+      continue;
+    }
+    // two clouds side by side, the lower joined to the higher above half its height: its half-peak region
+    // within its own catchment (see basinHalfPeak)
+    const basin = basinHalfPeak(lv, lo, sign, thr, [...peaks, ...merged]);
+    if (!basin) continue;
+    out.push(basin);
+    // the higher one's half-peak region, when it took in this one's top, kept to its own catchment too
+    for (let q2 = 0; q2 < mine.length; q2++) {
+      const c = mine[q2];
+      if (!sortedHas(c.region, lo) || c.pedestal !== 0 || c.hidden !== null) continue;
+      const own = catchment(lv, c.peakIdx, sign, [...peaks, ...merged]);
+      if (!own || own.region.length < BASIN_MIN_PX) continue;
+      const cut = candidateOf(lv, sign, sign * own.top, c.peakIdx, 0, own.region, noiseAt(lv, c.peakIdx), null);
+      out[out.indexOf(c)] = cut;
+      mine[q2] = cut;
+    }
   }
   function push(j: number): void {
     if (!seen[j] && sign * s[j] > thr) {
@@ -900,6 +922,128 @@ function plateauUnder(lv: Level, c: Candidate, sign: 1 | -1, thr: number, start:
     }
     return hi;
   }
+}
+
+/**
+ * A peak joined to a higher one above half its own height, neither a spot nor a plateau under a sharper
+ * feature (plateauUnder): two clouds side by side whose flanks overlap, the saddle between them above half
+ * the lower one's height, as where two clouds 130 mm apart on a 600 x 340 mm panel show against a surface
+ * that carries their flanks (jointCloudFit). Its half-peak region is taken within its own catchment: the
+ * level's pixels at half its top and above, split between the component's peaks (`markers`) by flooding
+ * from the highest down (a marker-controlled watershed: a region that reaches another marker's is not
+ * joined to it; one without a marker, a speck of noise, joins the first it meets). Null when the region
+ * is a sliver of another feature rather than one of its own: more than BASIN_MAX_CUT of its edge runs
+ * along the watershed (a noise bump on a cloud's flank takes a wedge of the flank, bounded by the
+ * watershed on both sides), or it is smaller than a cloud on this level. The part of the lower cloud
+ * beyond the watershed is lost to the higher one, so its area is a little small and its mean contrast
+ * a little high.
+ */
+function basinHalfPeak(lv: Level, lo: number, sign: 1 | -1, thr: number, markers: number[]): Candidate | null {
+  const c = catchment(lv, lo, sign, markers);
+  if (!c || c.edge === 0 || c.cut > BASIN_MAX_CUT * c.edge) return null;
+  if (c.region.length < BASIN_MIN_PX) return null;
+  const noise = noiseAt(lv, lo);
+  if (c.top < (thr * noise) / lv.noiseS) return null;
+  return candidateOf(lv, sign, sign * c.top, lo, 0, c.region, noise, null);
+}
+
+/**
+ * The half-peak region of the peak `at` within its own catchment among `markers` (see basinHalfPeak):
+ * the region (sorted level px), the top it is taken at (signed as the feature: positive), and how many of
+ * its edges run along the watershed (`cut`) of all its edges (`edge`). Null when the region at half the
+ * top is too large for this level.
+ */
+function catchment(lv: Level, at: number, sign: 1 | -1, markers: number[]): { region: Int32Array; top: number; cut: number; edge: number } | null {
+  const { w, h, s, stamp } = lv;
+  let top = sign * s[at];
+  // the region at half the top, flooded through everything at that level (the other peaks too)
+  const regionAt = (level: number): number[] | null => {
+    const gen = ++lv.gen;
+    const out: number[] = [at];
+    stamp[at] = gen;
+    for (let k = 0; k < out.length; k++) {
+      if (out.length > MAX_REGION && lv.l < MAX_LEVEL_INDEX) return null;
+      const i = out[k];
+      const x = i % w;
+      const nb = [x > 0 ? i - 1 : -1, x < w - 1 ? i + 1 : -1, i >= w ? i - w : -1, i < w * h - w ? i + w : -1];
+      for (const j of nb) {
+        if (j < 0 || stamp[j] === gen || !(sign * s[j] >= level)) continue;
+        stamp[j] = gen;
+        out.push(j);
+      }
+    }
+    return out;
+  };
+  let all = regionAt(0.5 * top);
+  if (!all) return null;
+  const fitted = fittedTop(lv, at, Math.sqrt(all.length / Math.PI), sign);
+  if (fitted !== null && sign * fitted < top) {
+    top = sign * fitted;
+    all = regionAt(0.5 * top);
+    if (!all) return null;
+  }
+  const reg = all;
+  const n = reg.length;
+  const slot = (lv.slot ??= new Int32Array(w * h));
+  for (let k = 0; k < n; k++) slot[reg[k]] = k + 1;
+  const order = new Int32Array(n);
+  for (let k = 0; k < n; k++) order[k] = k;
+  order.sort((a, b) => sign * s[reg[b]] - sign * s[reg[a]] || a - b);
+  const isMarker = new Uint8Array(n);
+  for (const m of markers) if (slot[m] > 0) isMarker[slot[m] - 1] = 1;
+  isMarker[slot[at] - 1] = 1;
+  const parent = new Int32Array(n).fill(-1);
+  const mark = new Int32Array(n).fill(-1); // a root's marker (place), -1 for none
+  const find = (i: number): number => {
+    let r = i;
+    while (parent[r] !== r) r = parent[r];
+    while (parent[i] !== r) {
+      const nx = parent[i];
+      parent[i] = r;
+      i = nx;
+    }
+    return r;
+  };
+  for (let t = 0; t < n; t++) {
+    const k = order[t];
+    parent[k] = k;
+    mark[k] = isMarker[k] ? k : -1;
+    const i = reg[k];
+    const x = i % w;
+    const nb = [x > 0 ? i - 1 : -1, x < w - 1 ? i + 1 : -1, i >= w ? i - w : -1, i < w * h - w ? i + w : -1];
+    for (const j of nb) {
+      if (j < 0 || slot[j] === 0) continue;
+      const kj = slot[j] - 1;
+      if (parent[kj] < 0) continue;
+      const a = find(k);
+      const b = find(kj);
+      if (a === b) continue;
+      // two catchments with markers of their own meet: the watershed; else one joins the other
+      if (mark[a] >= 0 && mark[b] >= 0) continue;
+      parent[a] = b;
+      if (mark[b] < 0) mark[b] = mark[a];
+    }
+  }
+  const own = mark[find(slot[at] - 1)];
+  const region: number[] = [];
+  let cut = 0;
+  let edge = 0;
+  for (let k = 0; k < n; k++) {
+    if (mark[find(k)] !== own) continue;
+    const i = reg[k];
+    region.push(i);
+    const x = i % w;
+    const nb = [x > 0 ? i - 1 : -1, x < w - 1 ? i + 1 : -1, i >= w ? i - w : -1, i < w * h - w ? i + w : -1];
+    for (const j of nb) {
+      if (j < 0) continue;
+      const kj = slot[j] - 1;
+      if (kj >= 0 && mark[find(kj)] === own) continue;
+      edge++;
+      if (kj >= 0) cut++;
+    }
+  }
+  for (let k = 0; k < n; k++) slot[reg[k]] = 0;
+  return { region: Int32Array.from(region).sort(), top, cut, edge };
 }
 
 /**
