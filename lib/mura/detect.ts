@@ -651,8 +651,9 @@ function noiseAt(lv: Level, i: number): number {
   return lv.tileNoise[Math.floor(y / TILE) * lv.tilesX + Math.floor(x / TILE)];
 }
 
-/** Pixels 4-connected to start where sign * s >= level; marks them with a fresh stamp on the level. */
-function flood(lv: Level, start: number, sign: 1 | -1, level: number): { region: Int32Array; gen: number } | null {
+/** Pixels 4-connected to start where sign * s >= level; marks them with a fresh stamp on the level.
+ *  Null when the region is too large for the level or (stopAbove) reaches a pixel above the start. */
+function flood(lv: Level, start: number, sign: 1 | -1, level: number, stopAbove = true): { region: Int32Array; gen: number } | null {
   const { w, h, s, stamp } = lv;
   const gen = ++lv.gen;
   const out: number[] = [start];
@@ -676,7 +677,7 @@ function flood(lv: Level, start: number, sign: 1 | -1, level: number): { region:
     if (stamp[j] === gen) return;
     const v = sign * s[j];
     if (!(v >= level)) return;
-    if (v > top) above = true;
+    if (stopAbove && v > top) above = true;
     stamp[j] = gen;
     out.push(j);
   }
@@ -927,7 +928,7 @@ function plateauUnder(lv: Level, c: Candidate, sign: 1 | -1, thr: number, start:
 /**
  * A peak joined to a higher one above half its own height, neither a spot nor a plateau under a sharper
  * feature (plateauUnder): two clouds side by side whose flanks overlap, the saddle between them above half
- * the lower one's height, as where two clouds 130 mm apart on a 600 x 340 mm panel show against a surface
+ * the lower one's height, as where two clouds 140 mm apart on a 600 x 340 mm panel show against a surface
  * that carries their flanks (jointCloudFit). Its half-peak region is taken within its own catchment: the
  * level's pixels at half its top and above, split between the component's peaks (`markers`) by flooding
  * from the highest down (a marker-controlled watershed: a region that reaches another marker's is not
@@ -954,26 +955,10 @@ function basinHalfPeak(lv: Level, lo: number, sign: 1 | -1, thr: number, markers
  * top is too large for this level.
  */
 function catchment(lv: Level, at: number, sign: 1 | -1, markers: number[]): { region: Int32Array; top: number; cut: number; edge: number } | null {
-  const { w, h, s, stamp } = lv;
+  const { w, h, s } = lv;
   let top = sign * s[at];
   // the region at half the top, flooded through everything at that level (the other peaks too)
-  const regionAt = (level: number): number[] | null => {
-    const gen = ++lv.gen;
-    const out: number[] = [at];
-    stamp[at] = gen;
-    for (let k = 0; k < out.length; k++) {
-      if (out.length > MAX_REGION && lv.l < MAX_LEVEL_INDEX) return null;
-      const i = out[k];
-      const x = i % w;
-      const nb = [x > 0 ? i - 1 : -1, x < w - 1 ? i + 1 : -1, i >= w ? i - w : -1, i < w * h - w ? i + w : -1];
-      for (const j of nb) {
-        if (j < 0 || stamp[j] === gen || !(sign * s[j] >= level)) continue;
-        stamp[j] = gen;
-        out.push(j);
-      }
-    }
-    return out;
-  };
+  const regionAt = (level: number): Int32Array | null => flood(lv, at, sign, level, false)?.region ?? null;
   let all = regionAt(0.5 * top);
   if (!all) return null;
   const fitted = fittedTop(lv, at, Math.sqrt(all.length / Math.PI), sign);
