@@ -547,8 +547,10 @@ function candidatesOn(lv: Level, sign: 1 | -1, thr: number, out: Candidate[], sp
     }
     // two clouds side by side, the lower joined to the higher above half its height: its half-peak region
     // within its own catchment (see basinHalfPeak)
+    // (round ones only: a band with a spot of the other sign on it shows as two peaks along it, and its
+    // region cut in two leaves most of the band out of the next round's mask)
     const basin = basinHalfPeak(lv, lo, sign, thr, [...peaks, ...merged]);
-    if (!basin) continue;
+    if (!basin || basin.major >= 2 * basin.minor) continue;
     out.push(basin);
     // the higher one's half-peak region, when it took in this one's top, kept to its own catchment too
     for (let q2 = 0; q2 < mine.length; q2++) {
@@ -557,6 +559,7 @@ function candidatesOn(lv: Level, sign: 1 | -1, thr: number, out: Candidate[], sp
       const own = catchment(lv, c.peakIdx, sign, [...peaks, ...merged]);
       if (!own || own.region.length < BASIN_MIN_PX) continue;
       const cut = candidateOf(lv, sign, sign * own.top, c.peakIdx, 0, own.region, noiseAt(lv, c.peakIdx), null);
+      if (cut.major >= 2 * cut.minor) continue;
       out[out.indexOf(c)] = cut;
       mine[q2] = cut;
     }
