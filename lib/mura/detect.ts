@@ -515,6 +515,8 @@ function candidatesOn(lv: Level, sign: 1 | -1, thr: number, out: Candidate[], sp
       if (under) out.push(under);
     }
   }
+  // every peak of the level's components, the markers a catchment is split between (basinHalfPeak)
+  const markers = [...peaks, ...merged];
   // A broad peak joined to a higher, sharper one above half its own height (a cloud with a spot on its
   // flank) has no half-peak region of its own that stops short of the spot, yet it is a feature: its
   // half-peak region is flooded through the spot's surroundings.
@@ -549,14 +551,14 @@ function candidatesOn(lv: Level, sign: 1 | -1, thr: number, out: Candidate[], sp
     // within its own catchment (see basinHalfPeak)
     // (round ones only: a band with a spot of the other sign on it shows as two peaks along it, and its
     // region cut in two leaves most of the band out of the next round's mask)
-    const basin = basinHalfPeak(lv, lo, sign, thr, [...peaks, ...merged]);
+    const basin = basinHalfPeak(lv, lo, sign, thr, markers);
     if (!basin || basin.major >= 2 * basin.minor) continue;
     out.push(basin);
     // the higher one's half-peak region, when it took in this one's top, kept to its own catchment too
     for (let q2 = 0; q2 < mine.length; q2++) {
       const c = mine[q2];
       if (!sortedHas(c.region, lo) || c.pedestal !== 0 || c.hidden !== null) continue;
-      const own = catchment(lv, c.peakIdx, sign, [...peaks, ...merged]);
+      const own = catchment(lv, c.peakIdx, sign, markers);
       if (!own || own.region.length < BASIN_MIN_PX) continue;
       const cut = candidateOf(lv, sign, sign * own.top, c.peakIdx, 0, own.region, noiseAt(lv, c.peakIdx), null);
       if (cut.major >= 2 * cut.minor) continue;
