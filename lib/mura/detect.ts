@@ -70,6 +70,9 @@ interface Candidate {
   /** level px of the region covered by a sharper feature standing on this one (sorted): part of its
    *  extent, left out of its mean contrast; null for none */
   hidden: Int32Array | null;
+  /** a spot found above a surface fitted about it (spotAboveSurface): the surface, the level under the
+   *  spot wherever it reaches, within `radius` level px of the peak */
+  under?: { surface: (x: number, y: number) => number; radius: number };
 }
 
 /** most candidates kept per level and sign (the strongest): a guard against pathological maps */
@@ -79,6 +82,10 @@ const MAX_REGION = 40000;
 /** a peak joined to a higher one above its half height is looked at as a feature under that one when it
  *  stands this many detection thresholds above the saddle */
 const MERGED_PROMINENCE = 1.5;
+/** spotAboveSurface: how far a spot's half-peak radius may be from the scale it was sought at (share) */
+const SPOT_SCALE_MATCH = 0.15;
+/** sameFeature: a view without a pedestal this many times wider than a spot on one is another feature's */
+const SPOT_VIEW_RATIO = 2;
 /** basinHalfPeak: most of a catchment's half-peak edge that may run along the watershed */
 const BASIN_MAX_CUT = 0.35;
 /** ...and its least size, level px (a cloud's half-peak region on the level it is seen on) */
@@ -511,17 +518,42 @@ function candidatesOn(lv: Level, sign: 1 | -1, thr: number, out: Candidate[], sp
     mine.push(c);
     // a feature on a plateau of its sign: the plateau is a feature too
     if (sign * c.pedestal > 0) {
-      const under = plateauUnder(lv, c, sign, thr, null);
+      const under = c.under ? plateauBeneath(lv, c, sign, thr, c.under, mine.filter((o) => o !== c && sign * o.pedestal > 0)) : plateauUnder(lv, c, sign, thr, null);
       if (under) out.push(under);
     }
   }
   // every peak of the level's components, the markers a catchment is split between (basinHalfPeak)
   const markers = [...peaks, ...merged];
+  // two clouds side by side, the lower joined to the higher above half its height: its half-peak region
+  // within its own catchment (see basinHalfPeak), and the higher one's, when it took in this one's top,
+  // kept to its own catchment too
+  // (round ones only: a band with a spot of the other sign on it shows as two peaks along it, and its
+  // region cut in two leaves most of the band out of the next round's mask)
+  const takeBasin = (lo: number, cloudSized: boolean): boolean => {
+    const basin = basinHalfPeak(lv, lo, sign, thr, markers);
+    if (!basin || basin.major >= 2 * basin.minor) return false;
+    if (cloudSized && 2 * Math.sqrt(basin.region.length / Math.PI) < spotPx) return false;
+    out.push(basin);
+    for (let q2 = 0; q2 < mine.length; q2++) {
+      const c = mine[q2];
+      if (!sortedHas(c.region, lo) || c.pedestal !== 0 || c.hidden !== null) continue;
+      const own = catchment(lv, c.peakIdx, sign, markers);
+      if (!own || own.region.length < BASIN_MIN_PX) continue;
+      const cut = candidateOf(lv, sign, sign * own.top, c.peakIdx, 0, own.region, noiseAt(lv, c.peakIdx), null);
+      if (cut.major >= 2 * cut.minor) continue;
+      out[out.indexOf(c)] = cut;
+      mine[q2] = cut;
+    }
+    return true;
+  };
   // A broad peak joined to a higher, sharper one above half its own height (a cloud with a spot on its
   // flank) has no half-peak region of its own that stops short of the spot, yet it is a feature: its
   // half-peak region is flooded through the spot's surroundings.
   for (let q = 0; q < merged.length; q++) {
     const lo = merged[q];
+    // a catchment of a cloud's size first: a cloud beside another of about its height shows a cap above
+    // the saddle of a spot's size
+    if (takeBasin(lo, true)) continue;
     // a sharp peak joined to a higher feature above half its height (a spot on a cloud's flank): its
     // half-peak region taken above the saddle it meets the other at, kept when it is a spot's size
     const spot = halfPeak(lv, lo, sign, thr, spotPx, ringFit, saddles[q]);
@@ -547,24 +579,7 @@ function candidatesOn(lv: Level, sign: 1 | -1, thr: number, out: Candidate[], sp
       out.push(under);
       continue;
     }
-    // two clouds side by side, the lower joined to the higher above half its height: its half-peak region
-    // within its own catchment (see basinHalfPeak)
-    // (round ones only: a band with a spot of the other sign on it shows as two peaks along it, and its
-    // region cut in two leaves most of the band out of the next round's mask)
-    const basin = basinHalfPeak(lv, lo, sign, thr, markers);
-    if (!basin || basin.major >= 2 * basin.minor) continue;
-    out.push(basin);
-    // the higher one's half-peak region, when it took in this one's top, kept to its own catchment too
-    for (let q2 = 0; q2 < mine.length; q2++) {
-      const c = mine[q2];
-      if (!sortedHas(c.region, lo) || c.pedestal !== 0 || c.hidden !== null) continue;
-      const own = catchment(lv, c.peakIdx, sign, markers);
-      if (!own || own.region.length < BASIN_MIN_PX) continue;
-      const cut = candidateOf(lv, sign, sign * own.top, c.peakIdx, 0, own.region, noiseAt(lv, c.peakIdx), null);
-      if (cut.major >= 2 * cut.minor) continue;
-      out[out.indexOf(c)] = cut;
-      mine[q2] = cut;
-    }
+    takeBasin(lo, false);
   }
   function push(j: number): void {
     if (!seen[j] && sign * s[j] > thr) {
@@ -749,6 +764,11 @@ function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number, spotPx:
     }
     return candidateOf(lv, sign, peak, peakIdx, pedestal, fl.region.sort(), noise, null);
   }
+  // a spot standing above the top of the cloud it sits on (see spotAboveSurface)
+  if (!isSpot && ringFit) {
+    const sp = spotAboveSurface(lv, peakIdx, sign, peak, thr, noise, spotPx);
+    if (sp) return sp;
+  }
   const ring = isSpot && ringFit ? ringSurface(lv, fl.region, fl.gen, 2.5, 4) : null;
   const near = surround(lv, fl.region, fl.gen, 1.5, 2.5);
   if (ring) {
@@ -797,6 +817,224 @@ function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number, spotPx:
     }
   }
   return candidateOf(lv, sign, peak, peakIdx, pedestal, fl.region.sort(), noise, null);
+}
+
+/**
+ * A spot on a cloud's upper flank that stands above the cloud's own top: the half-peak region taken from
+ * the background spreads over the cloud, which shows no peak of its own, and the spot was lost in it (a
+ * 3 % spot of 24 mm on a 5 % cloud of 118 mm, 30-60 mm from the cloud's centre). The spot's own scale is
+ * sought: for radii r from 1.5 level px up to a spot's, a quadratic surface is fitted over the ring 2.5 to
+ * 4 r out around the peak (as for any spot, halfPeak), and the region standing above that surface by half
+ * of the peak's height over it is flooded from the peak; the spot is at the radius whose region is r in
+ * radius, within SPOT_SCALE_MATCH (the best match taken). Kept when the surface under the peak stands
+ * clear of the noise on the spot's side (a plateau), the spot clear of the threshold above it, and the
+ * ring fits within a quarter of the spot's height. A lone cloud's cap, which a quadratic follows, leaves
+ * too little above the surface at small radii, and at larger ones a region far wider than the radius.
+ * The plateau is then found under the spot (plateauBeneath, in candidatesOn).
+ */
+function spotAboveSurface(lv: Level, peakIdx: number, sign: 1 | -1, peak: number, thr: number, noise: number, spotPx: number): Candidate | null {
+  const { w, h, s, stamp } = lv;
+  const px = peakIdx % w;
+  const py = (peakIdx - px) / w;
+  const maxN = (Math.PI * spotPx * spotPx) / 4;
+  const A = new Float64Array(36);
+  const b = new Float64Array(6);
+  const t = new Float64Array(6);
+  let best: { err: number; region: Int32Array; level: number; under: NonNullable<Candidate['under']> } | null = null;
+  for (let r = 1.5; 2 * r < spotPx; r *= 1.2) {
+    const r0 = 2.5 * r;
+    const r1 = 4 * r;
+    const ri = Math.ceil(r1);
+    // the ring's samples (a grid of at most about 64 x 64 over its box)
+    const stride = Math.max(1, Math.floor((2 * ri + 1) / 64));
+    const ring: number[] = [];
+    for (let y = Math.max(0, py - ri); y <= Math.min(h - 1, py + ri); y += stride) {
+      for (let x = Math.max(0, px - ri); x <= Math.min(w - 1, px + ri); x += stride) {
+        const d2 = (x - px) ** 2 + (y - py) ** 2;
+        if (d2 < r0 * r0 || d2 > r1 * r1) continue;
+        const v = s[y * w + x];
+        if (Number.isFinite(v)) ring.push((x - px) / r1, (y - py) / r1, v);
+      }
+    }
+    // most of the ring on the panel
+    const m = ring.length / 3;
+    if (m < 24 || m < (0.6 * Math.PI * (r1 * r1 - r0 * r0)) / (stride * stride)) continue;
+    A.fill(0);
+    b.fill(0);
+    for (let k = 0; k < ring.length; k += 3) addQuadratic(A, b, t, ring[k], ring[k + 1], ring[k + 2]);
+    const c = solve6(A, b);
+    if (!c) continue;
+    const coef = Float64Array.from(c);
+    const terms = new Float64Array(6);
+    const at = (u: number, v: number): number => {
+      quadTerms(terms, u, v);
+      let q = 0;
+      for (let k = 0; k < 6; k++) q += coef[k] * terms[k];
+      return q;
+    };
+    const surface = (x: number, y: number): number => at((x - px) / r1, (y - py) / r1);
+    const level = coef[0];
+    const height = sign * (peak - level);
+    if (!(sign * level > 3 * noise) || height < thr) continue;
+    // the region standing above the surface by half the spot's height, joined to the peak
+    const gen = ++lv.gen;
+    const out: number[] = [peakIdx];
+    stamp[peakIdx] = gen;
+    let tooBig = false;
+    for (let k = 0; k < out.length && !tooBig; k++) {
+      const i = out[k];
+      const x = i % w;
+      const nb = [x > 0 ? i - 1 : -1, x < w - 1 ? i + 1 : -1, i >= w ? i - w : -1, i < w * h - w ? i + w : -1];
+      for (const j of nb) {
+        if (j < 0 || stamp[j] === gen) continue;
+        const jx = j % w;
+        const v = s[j];
+        if (!Number.isFinite(v) || !(sign * (v - surface(jx, (j - jx) / w)) >= 0.5 * height)) continue;
+        stamp[j] = gen;
+        out.push(j);
+        if (out.length > maxN) tooBig = true;
+      }
+    }
+    if (tooBig) continue;
+    const err = Math.abs(Math.sqrt(out.length / Math.PI) / r - 1);
+    if (err > SPOT_SCALE_MATCH || (best && err >= best.err)) continue;
+    let ss = 0;
+    for (let k = 0; k < ring.length; k += 3) ss += (ring[k + 2] - at(ring[k], ring[k + 1])) ** 2;
+    if (Math.sqrt(ss / m) >= 0.25 * height) continue;
+    best = { err, region: Int32Array.from(out).sort(), level, under: { surface, radius: r0 } };
+  }
+  if (!best) return null;
+  return { ...candidateOf(lv, sign, peak, peakIdx, best.level, best.region, noise, null), under: best.under };
+}
+
+/**
+ * The plateau under a spot found above a surface (spotAboveSurface): the level map with the spot's
+ * surroundings (the disc inside the ring the surface was fitted on) replaced by the surface, the level
+ * under the spot. Other spots standing on the plateau (`others`: found on this level with a pedestal of
+ * their sign) are passed over: a disc of 2.5 x their half-peak radius around each (where a Gaussian spot
+ * is down to 1.3 % of its top) neither stops the flood nor counts towards the top. The plateau's top is
+ * found by climbing from the spot on that map, in steps of a third of the disc's radius over 3 x 3 means
+ * (a noise bump does not stop the climb), and its half-peak region is flooded from there; it must take in
+ * the spot's place. Both discs are hidden: part of the plateau's extent, left out of its mean contrast
+ * (as for plateauUnder). Null when the plateau does not stand out of the noise on its own, its top is not
+ * the top of its region, or it shows little beside the discs.
+ */
+function plateauBeneath(lv: Level, c: Candidate, sign: 1 | -1, thr: number, under: NonNullable<Candidate['under']>, others: Candidate[]): Candidate | null {
+  const { w, h, s, stamp } = lv;
+  const px = c.peakIdx % w;
+  const py = (c.peakIdx - px) / w;
+  const r2 = under.radius * under.radius;
+  const inDisc = (i: number): boolean => {
+    const x = i % w;
+    const y = (i - x) / w;
+    return (x - px) * (x - px) + (y - py) * (y - py) <= r2;
+  };
+  const discs = others.map((o) => {
+    const ox = o.peakIdx % w;
+    return { x: ox, y: (o.peakIdx - ox) / w, r2: (2.5 * Math.max(1, Math.sqrt(o.region.length / Math.PI))) ** 2 };
+  });
+  const inOther = (i: number): boolean => {
+    const x = i % w;
+    const y = (i - x) / w;
+    for (const d of discs) if ((x - d.x) * (x - d.x) + (y - d.y) * (y - d.y) <= d.r2) return true;
+    return false;
+  };
+  // the map under the spot, signed as the feature (NaN: no data)
+  const val = (i: number): number => {
+    if (!inDisc(i)) return sign * s[i];
+    const x = i % w;
+    return sign * under.surface(x, (i - x) / w);
+  };
+  const grow = (from: number, level: number): Int32Array | null => {
+    const gen = ++lv.gen;
+    const out: number[] = [from];
+    stamp[from] = gen;
+    for (let k = 0; k < out.length; k++) {
+      if (out.length > MAX_REGION && lv.l < MAX_LEVEL_INDEX) return null;
+      const i = out[k];
+      const x = i % w;
+      const nb = [x > 0 ? i - 1 : -1, x < w - 1 ? i + 1 : -1, i >= w ? i - w : -1, i < w * h - w ? i + w : -1];
+      for (const j of nb) {
+        if (j < 0 || stamp[j] === gen) continue;
+        const other = inOther(j) && !inDisc(j);
+        const v = val(j);
+        if (other ? !Number.isFinite(v) : !(v >= level)) continue;
+        stamp[j] = gen;
+        out.push(j);
+      }
+    }
+    return Int32Array.from(out).sort();
+  };
+  // climb from the spot: 3 x 3 means, steps of a third of the disc's radius, then single px
+  const mean3 = (x: number, y: number): number => {
+    let sum = 0;
+    let n = 0;
+    for (let dy = -1; dy <= 1; dy++) {
+      for (let dx = -1; dx <= 1; dx++) {
+        const xx = x + dx;
+        const yy = y + dy;
+        if (xx < 0 || yy < 0 || xx >= w || yy >= h) continue;
+        const i = yy * w + xx;
+        if (inOther(i) && !inDisc(i)) continue;
+        const v = val(i);
+        if (Number.isFinite(v)) {
+          sum += v;
+          n++;
+        }
+      }
+    }
+    return n ? sum / n : -Infinity;
+  };
+  let bx = px;
+  let by = py;
+  let bv = mean3(bx, by);
+  for (const step of [Math.max(1, Math.round(under.radius / 3)), 1]) {
+    for (let moves = 0; moves < w + h; moves++) {
+      let nx = bx;
+      let ny = by;
+      let nv = bv;
+      for (let dy = -step; dy <= step; dy += step) {
+        for (let dx = -step; dx <= step; dx += step) {
+          const xx = bx + dx;
+          const yy = by + dy;
+          if ((dx === 0 && dy === 0) || xx < 0 || yy < 0 || xx >= w || yy >= h) continue;
+          const v = mean3(xx, yy);
+          if (v > nv) {
+            nx = xx;
+            ny = yy;
+            nv = v;
+          }
+        }
+      }
+      if (nx === bx && ny === by) break;
+      bx = nx;
+      by = ny;
+      bv = nv;
+    }
+  }
+  const best = by * w + bx;
+  if (!(bv >= 2 * thr)) return null;
+  // the top: the climb's 3 x 3 mean, or where it lies clear of the spot's disc the quadratic fitted about
+  // it (fittedTop, the discs left out), over the region at half the mean
+  let region = grow(best, 0.5 * bv);
+  if (!region) return null;
+  let top = bv;
+  const fitted = inDisc(best) ? null : fittedTop(lv, best, halfWidth(region, w), sign, (i) => inDisc(i) || inOther(i));
+  if (fitted !== null) top = sign * fitted;
+  region = grow(best, 0.5 * top);
+  if (!region) return null;
+  if (!sortedHas(region, c.peakIdx)) return null;
+  // the top of its own region: no 3 x 3 mean shown in it stands above the top by the level's noise (about
+  // three noise sigmas of such a mean; a higher feature joined)
+  for (const i of region) {
+    if (inDisc(i) || inOther(i)) continue;
+    const x = i % w;
+    if (mean3(x, (i - x) / w) > top + noiseAt(lv, i)) return null;
+  }
+  const hidden = region.filter((i) => inDisc(i) || inOther(i));
+  const shown = region.length - hidden.length;
+  if (shown < c.region.length || shown < 0.25 * region.length) return null;
+  return candidateOf(lv, sign, sign * top, best, 0, region, noiseAt(lv, best), hidden.length ? hidden : null);
 }
 
 /** Does a region (level px) reach the edge of the level's data, the panel's edge (a pixel of it next to
@@ -1262,6 +1500,14 @@ function ringSurface(lv: Level, region: Int32Array, gen: number, inner: number, 
  */
 function sameFeature(a: Candidate, b: Candidate): boolean {
   if (a.sign !== b.sign) return false;
+  // a spot standing on a plateau of its sign and a view without one several times its size: the
+  // plateau's (or the plateau and the spot seen together, on a coarse level), not the spot's
+  const onA = a.sign * a.pedestal > 0;
+  const onB = b.sign * b.pedestal > 0;
+  if (onA !== onB) {
+    const [spot, other] = onA ? [a, b] : [b, a];
+    if (other.minor * other.level.f > SPOT_VIEW_RATIO * spot.minor * spot.level.f) return false;
+  }
   // the finer one's peak in the coarser one's region, not on a plateau of its own: it is the top of
   // that coarser structure
   const [fine, coarse] = a.level.l <= b.level.l ? [a, b] : [b, a];
@@ -1424,7 +1670,13 @@ function toFound(ctx: Ctx, c: Candidate): Found | null {
   const axis: Axis | null = null;
   const found = measureRegion(ctx, pixels, c.pedestal, c.peak, [(pkx + 0.5) * f - 0.5, (pky + 0.5) * f - 0.5], c.sign, 'blob', axis);
   if (!found) return null;
-  if (shown < all) found.areaMm2 *= all / shown;
+  if (shown < all) {
+    found.areaMm2 *= all / shown;
+    // centred on the whole region: the hidden part, where the sharper feature stands, is often near the
+    // plateau's middle, and the contrast-weighted centre of the rest lies off to the far side
+    found.cx = c.cx;
+    found.cy = c.cy;
+  }
   // take the level's blur out of the extent (quadrature, per axis, as for a Gaussian profile)
   const a2 = c.major * c.major;
   const b2 = c.minor * c.minor;

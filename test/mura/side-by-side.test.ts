@@ -3,7 +3,9 @@
 // catchment (detect.ts basinHalfPeak). Truths are analytical: each cloud's half-peak area and mean
 // contrast alone, from the Gaussian's closed form (helpers.ts gaussTruth); tolerances are issue 4's
 // (mean contrast within 25 %, area within 30 %). Before the catchments the lower cloud was lost (first
-// scene) or read as a spot of 0.5 % of its area beside a higher cloud twice its size (second).
+// scene) or read as a spot of 0.5 % of its area beside a higher cloud twice its size (second). In the
+// third the lower cloud's cap above the saddle is of a spot's size: it read as a spot of 1 % beside a
+// cloud of twice the area until a catchment of a cloud's size was tried before a spot above the saddle.
 import { describe, expect, it } from 'vitest';
 import { analyseMura } from '../../lib/mura/index.js';
 import { graySpec, otherSmooth } from '../../scripts/mura-scenes.js';
@@ -34,6 +36,7 @@ describe('clouds side by side', () => {
   const cases: [string, Cloud, Cloud][] = [
     ['a sharp 10 % cloud beside a broad 7 % one, 120 mm apart', { x: 200, y: 150, s: 31, peak: 10 }, { x: 320, y: 180, s: 50, peak: 7 }],
     ['an 8 % and a 6 % cloud of about the same size, 120 mm apart', { x: 200, y: 150, s: 40, peak: 8 }, { x: 320, y: 180, s: 45, peak: 6 }],
+    ['a 6 % and a 5 % cloud of one size, 100 mm apart', { x: 250, y: 170, s: 35, peak: 6 }, { x: 350, y: 170, s: 35, peak: 5 }],
   ];
   for (const [name, a, b] of cases) {
     it(`${name}: both found as clouds, each with its own contrast and area`, () => {
