@@ -908,6 +908,33 @@ function spotAboveSurface(lv: Level, peakIdx: number, sign: 1 | -1, peak: number
 }
 
 /**
+ * The region flooded from `from` over the 4-neighbours that `take` accepts (sorted level px): null when
+ * `take` answers 'stop' for a neighbour, or the region grows past MAX_REGION on a level that has a coarser
+ * one (measured there instead).
+ */
+function floodBy(lv: Level, from: number, take: (j: number) => boolean | 'stop'): Int32Array | null {
+  const { w, h, stamp } = lv;
+  const gen = ++lv.gen;
+  const out: number[] = [from];
+  stamp[from] = gen;
+  for (let k = 0; k < out.length; k++) {
+    if (out.length > MAX_REGION && lv.l < MAX_LEVEL_INDEX) return null;
+    const i = out[k];
+    const x = i % w;
+    const nb = [x > 0 ? i - 1 : -1, x < w - 1 ? i + 1 : -1, i >= w ? i - w : -1, i < w * h - w ? i + w : -1];
+    for (const j of nb) {
+      if (j < 0 || stamp[j] === gen) continue;
+      const t = take(j);
+      if (t === 'stop') return null;
+      if (!t) continue;
+      stamp[j] = gen;
+      out.push(j);
+    }
+  }
+  return Int32Array.from(out).sort();
+}
+
+/**
  * The plateau under a spot found above a surface (spotAboveSurface): the level map with the spot's
  * surroundings (the disc inside the ring the surface was fitted on) replaced by the surface, the level
  * under the spot. Other spots standing on the plateau (`others`: found on this level with a pedestal of
@@ -945,26 +972,12 @@ function plateauBeneath(lv: Level, c: Candidate, sign: 1 | -1, thr: number, unde
     const x = i % w;
     return sign * under.surface(x, (i - x) / w);
   };
-  const grow = (from: number, level: number): Int32Array | null => {
-    const gen = ++lv.gen;
-    const out: number[] = [from];
-    stamp[from] = gen;
-    for (let k = 0; k < out.length; k++) {
-      if (out.length > MAX_REGION && lv.l < MAX_LEVEL_INDEX) return null;
-      const i = out[k];
-      const x = i % w;
-      const nb = [x > 0 ? i - 1 : -1, x < w - 1 ? i + 1 : -1, i >= w ? i - w : -1, i < w * h - w ? i + w : -1];
-      for (const j of nb) {
-        if (j < 0 || stamp[j] === gen) continue;
-        const other = inOther(j) && !inDisc(j);
-        const v = val(j);
-        if (other ? !Number.isFinite(v) : !(v >= level)) continue;
-        stamp[j] = gen;
-        out.push(j);
-      }
-    }
-    return Int32Array.from(out).sort();
-  };
+  // the region at `level` and above on that map (the other spots' discs passable where there are data)
+  const grow = (from: number, level: number): Int32Array | null =>
+    floodBy(lv, from, (j) => {
+      const v = val(j);
+      return inOther(j) && !inDisc(j) ? Number.isFinite(v) : v >= level;
+    });
   // climb from the spot: 3 x 3 means, steps of a third of the disc's radius, then single px
   const mean3 = (x: number, y: number): number => {
     let sum = 0;
@@ -1108,27 +1121,13 @@ function plateauUnder(lv: Level, c: Candidate, sign: 1 | -1, thr: number, start:
   if (sign * top < 2 * thr) return null;
   // flood at half the top, the disc passable (its pixels neither stop the flood nor count as higher)
   const flood2 = (level: number): Int32Array | null => {
-    gen = ++lv.gen;
-    const out: number[] = [best];
-    stamp[best] = gen;
     const peakV = sign * s[best];
-    for (let k = 0; k < out.length; k++) {
-      if (out.length > MAX_REGION && lv.l < MAX_LEVEL_INDEX) return null;
-      const i = out[k];
-      const x = i % w;
-      const nb = [x > 0 ? i - 1 : -1, x < w - 1 ? i + 1 : -1, i >= w ? i - w : -1, i < w * h - w ? i + w : -1];
-      for (const j of nb) {
-        if (j < 0 || stamp[j] === gen) continue;
-        const v = sign * s[j];
-        const disc = inDisc(j);
-        if (!disc && !(v >= level)) continue;
-        if (disc && !Number.isFinite(v)) continue;
-        if (!disc && v > peakV) return null;
-        stamp[j] = gen;
-        out.push(j);
-      }
-    }
-    return Int32Array.from(out).sort();
+    return floodBy(lv, best, (j) => {
+      const v = sign * s[j];
+      if (inDisc(j)) return Number.isFinite(v);
+      if (!(v >= level)) return false;
+      return v > peakV ? 'stop' : true;
+    });
   };
   let region = flood2(0.5 * sign * top);
   if (!region) return null;

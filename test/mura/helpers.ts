@@ -4,6 +4,7 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { renderPhoto } from '../../fixtures/generator/index.js';
 import type { PhotoSpec } from '../../fixtures/generator/index.js';
+import { analyseMura } from '../../lib/mura/index.js';
 import { measurePhoto } from '../../lib/pipeline/index.js';
 import type { Blob } from '../../lib/types.js';
 import { generatedPhotoOptions, STUDY_QUALITY } from '../../scripts/generated-options.js';
@@ -74,4 +75,31 @@ export async function measureGenerated(spec: PhotoSpec, name: string) {
     generatedPhotoOptions(spec, { corners: truth.corners, falloff: { kind: 'cos4', focal35mm: spec.camera.focal35 }, quality: STUDY_QUALITY }),
   );
   return { truth, result: m.result };
+}
+
+/** A Gaussian bump on a synthetic map: centre (mm), sigma (mm), peak contrast (%). */
+export interface GaussBump {
+  x: number;
+  y: number;
+  s: number;
+  peak: number;
+}
+
+/** Gaussian bumps on a 600 x 340 mm synthetic map at 1 px/mm with 0.5 % noise and smooth variation
+ *  (polynomial coefficients, mura-synth.ts; by default of order 2). */
+export function bumpMap(bumps: GaussBump[], seed: number, smooth: number[][] = [[0, 0.03, -0.05], [0.02, 0.01], [-0.04]]) {
+  return synthMap({
+    widthMm: 600,
+    heightMm: 340,
+    pxPerMm: 1,
+    noisePct: 0.5,
+    seed,
+    smooth,
+    features: bumps.map((c) => ({ kind: 'gauss' as const, xMm: c.x, yMm: c.y, sigmaMm: c.s, contrastPct: c.peak })),
+  });
+}
+
+/** bumpMap with its default smooth variation, analysed as a gray field. */
+export function analyseBumps(bumps: GaussBump[], seed: number) {
+  return analyseMura(bumpMap(bumps, seed), { pattern: 'gray' });
 }

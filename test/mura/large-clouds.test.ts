@@ -4,7 +4,7 @@
 import { describe, expect, it } from 'vitest';
 import { analyseMura, fitBackground, legendre, resolveMuraOptions, type WorkRaster } from '../../lib/mura/index.js';
 import { synthMap } from '../../scripts/mura-synth.js';
-import { gaussTruth, nearest, relErr, THREE_CLOUDS, threeCloudMap } from './helpers.js';
+import { bumpMap, gaussTruth, nearest, relErr, THREE_CLOUDS, threeCloudMap } from './helpers.js';
 
 describe('surface with a bump', () => {
   it('recovers an exact polynomial and the amplitude and width of a Gaussian on it', () => {
@@ -54,16 +54,7 @@ describe('clouds of about half the panel short side', () => {
   // a 600 x 340 mm panel with smooth variation up to order 4 (about +-15 %)
   const smooth = [[0, 0.04, -0.08, 0, 0.02], [0.03, 0.01, 0.01], [-0.1, 0.01], [0.01]];
   const measure = (sigma: number, peak: number, x: number, y: number, seed: number, pattern: 'gray' | 'black' = 'gray') => {
-    const map = synthMap({
-      widthMm: 600,
-      heightMm: 340,
-      pxPerMm: 1,
-      noisePct: 0.5,
-      seed,
-      smooth,
-      features: [{ kind: 'gauss', xMm: x, yMm: y, sigmaMm: sigma, contrastPct: peak }],
-    });
-    const r = analyseMura(map, { pattern });
+    const r = analyseMura(bumpMap([{ x, y, s: sigma, peak }], seed, smooth), { pattern });
     return { ...nearest(r.blobs, x, y)!, model: r.backgroundModel };
   };
 

@@ -7,40 +7,19 @@
 // third the lower cloud's cap above the saddle is of a spot's size: it read as a spot of 1 % beside a
 // cloud of twice the area until a catchment of a cloud's size was tried before a spot above the saddle.
 import { describe, expect, it } from 'vitest';
-import { analyseMura } from '../../lib/mura/index.js';
 import { graySpec, otherSmooth } from '../../scripts/mura-scenes.js';
-import { synthMap } from '../../scripts/mura-synth.js';
-import { gaussTruth, measureGenerated, nearest, relErr } from './helpers.js';
-
-interface Cloud {
-  x: number;
-  y: number;
-  s: number;
-  peak: number;
-}
-
-function scene(a: Cloud, b: Cloud) {
-  const map = synthMap({
-    widthMm: 600,
-    heightMm: 340,
-    pxPerMm: 1,
-    noisePct: 0.5,
-    seed: 5,
-    smooth: [[0, 0.03, -0.05], [0.02, 0.01], [-0.04]],
-    features: [a, b].map((c) => ({ kind: 'gauss' as const, xMm: c.x, yMm: c.y, sigmaMm: c.s, contrastPct: c.peak })),
-  });
-  return analyseMura(map, { pattern: 'gray' });
-}
+import { analyseBumps, gaussTruth, measureGenerated, nearest, relErr } from './helpers.js';
+import type { GaussBump } from './helpers.js';
 
 describe('clouds side by side', () => {
-  const cases: [string, Cloud, Cloud][] = [
+  const cases: [string, GaussBump, GaussBump][] = [
     ['a sharp 10 % cloud beside a broad 7 % one, 120 mm apart', { x: 200, y: 150, s: 31, peak: 10 }, { x: 320, y: 180, s: 50, peak: 7 }],
     ['an 8 % and a 6 % cloud of about the same size, 120 mm apart', { x: 200, y: 150, s: 40, peak: 8 }, { x: 320, y: 180, s: 45, peak: 6 }],
     ['a 6 % and a 5 % cloud of one size, 100 mm apart', { x: 250, y: 170, s: 35, peak: 6 }, { x: 350, y: 170, s: 35, peak: 5 }],
   ];
   for (const [name, a, b] of cases) {
     it(`${name}: both found as clouds, each with its own contrast and area`, () => {
-      const r = scene(a, b);
+      const r = analyseBumps([a, b], 5);
       const clouds = r.blobs.filter((f) => f.semu >= 1);
       expect(clouds).toHaveLength(2);
       for (const c of [a, b]) {
