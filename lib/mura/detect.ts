@@ -529,8 +529,7 @@ function candidatesOn(lv: Level, sign: 1 | -1, thr: number, out: Candidate[], sp
   // kept to its own catchment too
   // (round ones only: a band with a spot of the other sign on it shows as two peaks along it, and its
   // region cut in two leaves most of the band out of the next round's mask)
-  const takeBasin = (lo: number, cloudSized: boolean): boolean => {
-    const basin = basinHalfPeak(lv, lo, sign, thr, markers);
+  const takeBasin = (lo: number, basin: Candidate | null, cloudSized: boolean): boolean => {
     if (!basin || basin.major >= 2 * basin.minor) return false;
     if (cloudSized && 2 * Math.sqrt(basin.region.length / Math.PI) < spotPx) return false;
     out.push(basin);
@@ -553,7 +552,8 @@ function candidatesOn(lv: Level, sign: 1 | -1, thr: number, out: Candidate[], sp
     const lo = merged[q];
     // a catchment of a cloud's size first: a cloud beside another of about its height shows a cap above
     // the saddle of a spot's size
-    if (takeBasin(lo, true)) continue;
+    const basin = basinHalfPeak(lv, lo, sign, thr, markers);
+    if (takeBasin(lo, basin, true)) continue;
     // a sharp peak joined to a higher feature above half its height (a spot on a cloud's flank): its
     // half-peak region taken above the saddle it meets the other at, kept when it is a spot's size
     const spot = halfPeak(lv, lo, sign, thr, spotPx, ringFit, saddles[q]);
@@ -579,7 +579,7 @@ function candidatesOn(lv: Level, sign: 1 | -1, thr: number, out: Candidate[], sp
       out.push(under);
       continue;
     }
-    takeBasin(lo, false);
+    takeBasin(lo, basin, false);
   }
   function push(j: number): void {
     if (!seen[j] && sign * s[j] > thr) {
