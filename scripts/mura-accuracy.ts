@@ -14,7 +14,7 @@
 // Corners are the generator's true ones, so that a geometry miss does not count as a mura miss.
 //
 //   npx tsc -p tsconfig.build.json && node dist/scripts/mura-accuracy.js [gray] [clean] [black] [width] [height] [--big] [--render] [--seeds=N] [--panel=WxH]
-//     [--distortion=K] [--no-noise] [--full-well=N] [--mosaic] [--denoise=K,S] [--sharpen=A,S] [--varied] [--edges] [--elliptic] [--stacked] [--smooth=steep|hump] [--exposure=P] [--glow=weak]
+//     [--distortion=K] [--no-noise] [--full-well=N] [--mosaic] [--denoise=K,S] [--sharpen=A,S] [--varied] [--edges] [--elliptic] [--stacked[=other]] [--smooth=steep|hump] [--exposure=P] [--glow=weak]
 //
 // Rendered photos and their truth are kept under .cache/ and reused (--render draws them again).
 
@@ -76,9 +76,11 @@ const edges = process.argv.includes('--edges');
 // --elliptic: the same scenes with the spots and clouds stretched into ellipses of aspect 1-3 at any
 // angle, keeping their area (mura-scenes.ts toEllipses)
 const elliptic = process.argv.includes('--elliptic');
-// --stacked: the same scenes with a spot added on the first cloud of each, of its polarity (mura-scenes.ts
-// addStackedSpot)
-const stacked = process.argv.includes('--stacked');
+// --stacked, --stacked=other: the same scenes with a spot added on the first cloud of each, of its
+// polarity or the other (mura-scenes.ts addStackedSpot)
+const stackedArg = process.argv.find((a) => a === '--stacked' || a.startsWith('--stacked='));
+const stacked: false | 'same' | 'other' = !stackedArg ? false : stackedArg === '--stacked' ? 'same' : stackedArg === '--stacked=other' ? 'other' : false;
+if (stackedArg && !stacked) throw new Error('--stacked= takes other (or nothing: a spot of the cloud\'s polarity)');
 // --smooth=steep|hump: the gray and clean scenes with other smooth variation (mura-scenes.ts otherSmooth:
 // a plateau falling steeply into the corners, or a broad rise or hollow)
 const smoothArg = process.argv.find((a) => a.startsWith('--smooth='));
@@ -122,7 +124,7 @@ const dir = join(
     (withLines ? '-lines' : '') +
     (edges ? '-edges' : '') +
     (elliptic ? '-elliptic' : '') +
-    (stacked ? '-stacked' : '') +
+    (stacked === 'same' ? '-stacked' : stacked === 'other' ? '-stacked-other' : '') +
     (smooth ? `-smooth-${smooth}` : '') +
     (grayExposure !== null ? `-exposure-${grayExposure}` : '') +
     (glow ? `-glow-${glow}` : ''),

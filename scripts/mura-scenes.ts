@@ -33,7 +33,7 @@ export function graySpec(
   lines = false,
   edges = false,
   elliptic = false,
-  stacked = false,
+  stacked: false | 'same' | 'other' = false,
 ): PhotoSpec {
   const spec = randomScene(seed, {
     ...(panelMm ? { widthMm: panelMm.width, heightMm: panelMm.height } : {}),
@@ -60,18 +60,18 @@ export function graySpec(
   });
   if (edges) toEdges(spec, new Rng(seed * 6007 + 11));
   if (elliptic) toEllipses(spec, new Rng(seed * 8011 + 5));
-  if (stacked) addStackedSpot(spec, new Rng(seed * 9001 + 23));
+  if (stacked) addStackedSpot(spec, new Rng(seed * 9001 + 23), stacked);
   return spec;
 }
 
 /**
  * The same scene with a spot added on its first cloud (`stacked`), where there is one: 5-40 mm, of the
- * cloud's polarity, 0.5-20 % (log-uniform), its centre 0.15-0.5 of the cloud's half-peak diameter from the
- * cloud's, in any direction. A spot on a clouded area (a pressure mark on a diffuser's cloud, a particle
+ * cloud's polarity ('same') or the other ('other'), 0.5-20 % (log-uniform), its centre 0.15-0.5 of the
+ * cloud's half-peak diameter from the cloud's, in any direction. A spot on a clouded area (a pressure mark on a diffuser's cloud, a particle
  * over a dim zone) is common on real panels; where the spot stands above the cloud's own top, the cloud
  * shows no peak of its own.
  */
-function addStackedSpot(spec: PhotoSpec, rng: Rng): void {
+function addStackedSpot(spec: PhotoSpec, rng: Rng, polarity: 'same' | 'other'): void {
   const features = spec.panel.features ?? [];
   const cloud = features.find((f) => f.kind === 'cloud');
   if (!cloud || cloud.kind !== 'cloud') return;
@@ -86,7 +86,7 @@ function addStackedSpot(spec: PhotoSpec, rng: Rng): void {
     u: clamp(cloud.u + (r * Math.cos(a)) / spec.panel.widthMm),
     v: clamp(cloud.v + (r * Math.sin(a)) / spec.panel.heightMm),
     sizeMm: rng.uniform(5, 40),
-    contrastPct: Math.sign(cloud.contrastPct) * c,
+    contrastPct: (polarity === 'same' ? 1 : -1) * Math.sign(cloud.contrastPct) * c,
   });
   spec.panel.features = features;
 }

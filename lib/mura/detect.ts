@@ -779,6 +779,13 @@ function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number, spotPx:
     // a level of either sign, clear of the noise, and a surface that fits the ring well; of the other
     // sign only while the half level stays on the spot's side of the background (below that the flood
     // would run out over the background beyond the plateau)
+    // on a plateau of the other sign (a bright spot on a dark cloud) the region from the background is
+    // the part of the spot above the background, and the ring about it lies on the spot's own flanks:
+    // the spot is sought at its own scale, as one above its cloud's top is (spotAboveSurface)
+    if (-sign * p > 3 * noise) {
+      const sp = spotAboveSurface(lv, peakIdx, sign, peak, thr, noise, spotPx, true);
+      if (sp) return sp;
+    }
     if (Math.abs(p) > 3 * noise && ring.rms < 0.25 * Math.abs(peak - p) && (sign * p > 0 || -sign * p < sign * peak)) {
       const again = spotOn(p);
       if (again) {
@@ -828,11 +835,12 @@ function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number, spotPx:
  * of the peak's height over it is flooded from the peak; the spot is at the radius whose region is r in
  * radius, within SPOT_SCALE_MATCH (the best match taken). Kept when the surface under the peak stands
  * clear of the noise on the spot's side (a plateau), the spot clear of the threshold above it, and the
- * ring fits within a quarter of the spot's height. A lone cloud's cap, which a quadratic follows, leaves
+ * ring fits within a quarter of the spot's height (with `otherSign`, a plateau of the other sign: a bright
+ * spot on a dark cloud, deeper than the spot rises). A lone cloud's cap, which a quadratic follows, leaves
  * too little above the surface at small radii, and at larger ones a region far wider than the radius.
  * The plateau is then found under the spot (plateauBeneath, in candidatesOn).
  */
-function spotAboveSurface(lv: Level, peakIdx: number, sign: 1 | -1, peak: number, thr: number, noise: number, spotPx: number): Candidate | null {
+function spotAboveSurface(lv: Level, peakIdx: number, sign: 1 | -1, peak: number, thr: number, noise: number, spotPx: number, otherSign = false): Candidate | null {
   const { w, h, s, stamp } = lv;
   const px = peakIdx % w;
   const py = (peakIdx - px) / w;
@@ -875,7 +883,7 @@ function spotAboveSurface(lv: Level, peakIdx: number, sign: 1 | -1, peak: number
     const surface = (x: number, y: number): number => at((x - px) / r1, (y - py) / r1);
     const level = coef[0];
     const height = sign * (peak - level);
-    if (!(sign * level > 3 * noise) || height < thr) continue;
+    if (!((otherSign ? -sign : sign) * level > 3 * noise) || height < thr) continue;
     // the region standing above the surface by half the spot's height, joined to the peak
     const gen = ++lv.gen;
     const out: number[] = [peakIdx];
@@ -904,7 +912,9 @@ function spotAboveSurface(lv: Level, peakIdx: number, sign: 1 | -1, peak: number
     best = { err, region: Int32Array.from(out).sort(), level, under: { surface, radius: r0 } };
   }
   if (!best) return null;
-  return { ...candidateOf(lv, sign, peak, peakIdx, best.level, best.region, noise, null), under: best.under };
+  const spot = candidateOf(lv, sign, peak, peakIdx, best.level, best.region, noise, null);
+  // (a plateau of the other sign is a feature of the other sign's pass)
+  return otherSign ? spot : { ...spot, under: best.under };
 }
 
 /**
