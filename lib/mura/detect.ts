@@ -776,9 +776,6 @@ function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number, spotPx:
     if (near !== null && sign * near > 0 && sign * (peak - near) < thr) return null;
     const p = ring.level;
     if (sign * p > 0 && sign * (peak - p) < thr) return null;
-    // a level of either sign, clear of the noise, and a surface that fits the ring well; of the other
-    // sign only while the half level stays on the spot's side of the background (below that the flood
-    // would run out over the background beyond the plateau)
     // on a plateau of the other sign (a bright spot on a dark cloud) the region from the background is
     // the part of the spot above the background, and the ring about it lies on the spot's own flanks:
     // the spot is sought at its own scale, as one above its cloud's top is (spotAboveSurface)
@@ -786,6 +783,9 @@ function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number, spotPx:
       const sp = spotAboveSurface(lv, peakIdx, sign, peak, thr, noise, spotPx, true);
       if (sp) return sp;
     }
+    // a level of either sign, clear of the noise, and a surface that fits the ring well; of the other
+    // sign only while the half level stays on the spot's side of the background (below that the flood
+    // would run out over the background beyond the plateau)
     if (Math.abs(p) > 3 * noise && ring.rms < 0.25 * Math.abs(peak - p) && (sign * p > 0 || -sign * p < sign * peak)) {
       const again = spotOn(p);
       if (again) {
@@ -841,7 +841,7 @@ function halfPeak(lv: Level, peakIdx: number, sign: 1 | -1, thr: number, spotPx:
  * The plateau is then found under the spot (plateauBeneath, in candidatesOn).
  */
 function spotAboveSurface(lv: Level, peakIdx: number, sign: 1 | -1, peak: number, thr: number, noise: number, spotPx: number, otherSign = false): Candidate | null {
-  const { w, h, s, stamp } = lv;
+  const { w, h, s } = lv;
   const px = peakIdx % w;
   const py = (peakIdx - px) / w;
   const maxN = (Math.PI * spotPx * spotPx) / 4;
@@ -884,32 +884,22 @@ function spotAboveSurface(lv: Level, peakIdx: number, sign: 1 | -1, peak: number
     const level = coef[0];
     const height = sign * (peak - level);
     if (!((otherSign ? -sign : sign) * level > 3 * noise) || height < thr) continue;
-    // the region standing above the surface by half the spot's height, joined to the peak
-    const gen = ++lv.gen;
-    const out: number[] = [peakIdx];
-    stamp[peakIdx] = gen;
-    let tooBig = false;
-    for (let k = 0; k < out.length && !tooBig; k++) {
-      const i = out[k];
-      const x = i % w;
-      const nb = [x > 0 ? i - 1 : -1, x < w - 1 ? i + 1 : -1, i >= w ? i - w : -1, i < w * h - w ? i + w : -1];
-      for (const j of nb) {
-        if (j < 0 || stamp[j] === gen) continue;
-        const jx = j % w;
-        const v = s[j];
-        if (!Number.isFinite(v) || !(sign * (v - surface(jx, (j - jx) / w)) >= 0.5 * height)) continue;
-        stamp[j] = gen;
-        out.push(j);
-        if (out.length > maxN) tooBig = true;
-      }
-    }
-    if (tooBig) continue;
+    // the region standing above the surface by half the spot's height, joined to the peak (no larger
+    // than a spot)
+    let n = 1;
+    const out = floodBy(lv, peakIdx, (j) => {
+      const v = s[j];
+      const jx = j % w;
+      if (!Number.isFinite(v) || !(sign * (v - surface(jx, (j - jx) / w)) >= 0.5 * height)) return false;
+      return ++n > maxN ? 'stop' : true;
+    });
+    if (!out) continue;
     const err = Math.abs(Math.sqrt(out.length / Math.PI) / r - 1);
     if (err > SPOT_SCALE_MATCH || (best && err >= best.err)) continue;
     let ss = 0;
     for (let k = 0; k < ring.length; k += 3) ss += (ring[k + 2] - at(ring[k], ring[k + 1])) ** 2;
     if (Math.sqrt(ss / m) >= 0.25 * height) continue;
-    best = { err, region: Int32Array.from(out).sort(), level, under: { surface, radius: r0 } };
+    best = { err, region: out, level, under: { surface, radius: r0 } };
   }
   if (!best) return null;
   const spot = candidateOf(lv, sign, peak, peakIdx, best.level, best.region, noise, null);
@@ -957,7 +947,7 @@ function floodBy(lv: Level, from: number, take: (j: number) => boolean | 'stop')
  * the top of its region, or it shows little beside the discs.
  */
 function plateauBeneath(lv: Level, c: Candidate, sign: 1 | -1, thr: number, under: NonNullable<Candidate['under']>, others: Candidate[]): Candidate | null {
-  const { w, h, s, stamp } = lv;
+  const { w, h, s } = lv;
   const px = c.peakIdx % w;
   const py = (c.peakIdx - px) / w;
   const r2 = under.radius * under.radius;
